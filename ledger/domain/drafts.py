@@ -1,0 +1,170 @@
+"""Validated input on its way into the ledger, and the checks that decide whether it may go in.
+
+A draft holds what the user asked for, already parsed (masses in mg, dates as ``date``).
+``validate_event`` compares it with the system's state and returns findings: errors stop the
+write, warnings are recorded with the event and shown.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import date
+
+from ledger.domain.records import (
+    CheckResult,
+    Cylinder,
+    Destination,
+    EventKind,
+    Finding,
+    FollowUpResult,
+    Severity,
+    SystemState,
+    Technician,
+)
+
+# Event kinds that move refrigerant, and so may name a cylinder.
+MASS_KINDS = frozenset({EventKind.ADD, EventKind.RECOVER, EventKind.RETIRE})
+
+
+@dataclass(frozen=True, slots=True)
+class EventDraft:
+    """An event as requested, before it is checked against the system's state."""
+
+    kind: EventKind
+    performed_on: date
+    mass_mg: int | None = None
+    refrigerant: str | None = None  # in-service / retrofit; for add/recover an assertion
+    charge_mg: int | None = None
+    result: str | None = None
+    location: str | None = None
+    method: str | None = None
+    destination: str | None = None
+    cylinder_code: str | None = None
+    cylinder_before_mg: int | None = None
+    cylinder_after_mg: int | None = None
+    technician: str | None = None
+    recorded_by: str | None = None
+    note: str = ""
+    voids_id: int | None = None
+    reason: str | None = None
+    attachments: tuple[str, ...] = ()
+    reclaimed: bool = False
+
+
+def error(field: str, message: str, source: str = "input") -> Finding:
+    """An error finding about one field."""
+    return Finding(source=source, message=f"{field}: {message}", severity=Severity.ERROR, field=field)
+
+
+def cylinder_mass_mg(draft: EventDraft) -> tuple[int | None, list[Finding]]:
+    """The mass moved, from ``--mass`` or from cylinder weights before/after.
+
+    Charging empties the cylinder (before > after); recovering fills it (after > before).
+    """
+    before, after = draft.cylinder_before_mg, draft.cylinder_after_mg
+    if before is None and after is None:
+        return draft.mass_mg, []
+    if before is None or after is None:
+        return None, [error("--before/--after", "give both cylinder weights, or --mass")]
+    moved = before - after if draft.kind is EventKind.ADD else after - before
+    if moved <= 0:
+        if draft.kind is EventKind.ADD:
+            return None, [error("--before", f"{before} mg is not heavier than --after {after} mg")]
+        return None, [error("--after", f"{after} mg is not heavier than --before {before} mg")]
+    if draft.mass_mg is not None and draft.mass_mg != moved:
+        return None, [error("--mass", "disagrees with the cylinder weights; give one or the other")]
+    return moved, []
+
+
+def validate_event(
+    draft: EventDraft,
+    state: SystemState,
+    *,
+    today: date,
+    same_refrigerant: bool | None,
+    cylinder: Cylinder | None,
+    cylinder_matches: bool | None,
+    technician: Technician | None,
+) -> list[Finding]:
+    """Check a draft against the system's state on the event's date.
+
+    Args:
+        draft: the requested event.
+        state: the system's state folded to the draft's date (``state_of``).
+        today: the site-local date now (events cannot be in the future).
+        same_refrigerant: for add/recover with ``--refrigerant``: whether it names the
+            refrigerant the system holds (None when not given).
+        cylinder: the named cylinder, if any.
+        cylinder_matches: whether the cylinder holds the system's refrigerant.
+        technician: the technician who did the work, if named.
+    Returns:
+        Findings; any with severity ERROR means the event must not be written.
+    """
+    found: list[Finding] = []
+    on = draft.performed_on
+    if on > today:
+        found.append(error("--on", f"{on.isoformat()} is in the future (today is {today.isoformat()})"))
+    if draft.kind is not EventKind.VOID:
+        if state.in_service_on is None:
+            found.append(error("system", "has not been placed in service"))
+        elif on < state.in_service_on:
+            found.append(
+                error("--on", f"{on.isoformat()} is before the system was placed in service "
+                      f"({state.in_service_on.isoformat()})")
+            )
+        if state.retired_on is not None and on >= state.retired_on:
+            found.append(
+                error("--on", f"{on.isoformat()} is on or after the system was retired "
+                      f"({state.retired_on.isoformat()})")
+            )
+    kind = draft.kind
+    if kind in (EventKind.ADD, EventKind.RECOVER) and draft.mass_mg is None:
+        found.append(error("--mass", "is required (or --cylinder with --before and --after)"))
+    if kind is EventKind.RETIRE and draft.mass_mg is None:
+        found.append(error("--recovered", "is required (0 kg if nothing could be recovered)"))
+    if same_refrigerant is False:
+        found.append(
+            error("--refrigerant", f"{draft.refrigerant!r} is not what the system holds "
+                  f"({state.refrigerant})")
+        )
+    if cylinder is not None and cylinder_matches is False:
+        found.append(
+            error("--cylinder", f"{cylinder.id!r} holds {cylinder.refrigerant}, but the system "
+                  f"holds {state.refrigerant}")
+        )
+    if cylinder is not None and kind not in MASS_KINDS:
+        found.append(error("--cylinder", f"does not apply to a {kind.value} event"))
+    if kind is EventKind.CHECK:
+        if draft.result not in {r.value for r in CheckResult}:
+            found.append(error("--result", f"{draft.result!r} is not one of no-leak, leak-found"))
+    if kind is EventKind.FOLLOW_UP:
+        if draft.result not in {r.value for r in FollowUpResult}:
+            found.append(error("--result", f"{draft.result!r} is not one of pass, fail"))
+    if draft.destination is not None and draft.destination not in {d.value for d in Destination}:
+        allowed = ", ".join(d.value for d in Destination)
+        found.append(error("--destination", f"{draft.destination!r} is not one of {allowed}"))
+    if kind is EventKind.VOID and not (draft.reason or "").strip():
+        found.append(error("--reason", "is required when voiding an event"))
+    if technician is not None:
+        found.extend(certificate_findings(technician, on))
+    return found
+
+
+def certificate_findings(technician: Technician, on: date) -> list[Finding]:
+    """A warning when the technician holds no certificate valid on the day of the work."""
+    if any(c.valid_on(on) for c in technician.certificates):
+        return []
+    if technician.certificates:
+        latest = max(technician.certificates, key=lambda c: c.valid_to or date.max)
+        until = latest.valid_to.isoformat() if latest.valid_to else "?"
+        detail = f"certificate {latest.number} was not valid on {on.isoformat()} (valid to {until})"
+    else:
+        detail = "holds no certificate in the ledger"
+    return [
+        Finding(
+            source=f"tech {technician.name}",
+            message=f"warning: {technician.name} {detail}; the event is recorded as done",
+            severity=Severity.WARNING,
+            field="--tech",
+        )
+    ]

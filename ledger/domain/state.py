@@ -1,0 +1,79 @@
+"""The state fold: a system's events up to a day, folded into its state."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from datetime import date
+
+from ledger.domain.records import CheckResult, Event, EventKind, SystemState
+
+
+def effective_events(events: Iterable[Event]) -> tuple[Event, ...]:
+    """Drop VOID events and the events they void; return the rest in date order.
+
+    Args:
+        events: a system's events in any order.
+    Returns:
+        The events that count, sorted by (performed_on, id) so the result does not depend
+        on the order they were recorded in.
+    """
+    events = tuple(events)
+    voided = {e.voids_id for e in events if e.kind is EventKind.VOID}
+    kept = [e for e in events if e.kind is not EventKind.VOID and e.id not in voided]
+    return tuple(sorted(kept, key=lambda e: (e.performed_on, e.id)))
+
+
+def state_of(events: Iterable[Event], as_of: date) -> SystemState:
+    """Fold a system's events on or before ``as_of`` into its state.
+
+    Args:
+        events: all events of one system (voids included; they are applied here).
+        as_of: the day to look at; events after it are ignored.
+    Returns:
+        The SystemState on that day.
+    """
+    in_service = False
+    refrigerant: str | None = None
+    charge_mg = 0
+    detection = False
+    in_service_on = retired_on = last_check = last_repair = since = None
+    open_leaks: list[int] = []
+    kept = tuple(e for e in effective_events(events) if e.performed_on <= as_of)
+    for e in kept:
+        match e.kind:
+            case EventKind.IN_SERVICE:
+                in_service, in_service_on, since = True, e.performed_on, e.performed_on
+                refrigerant, charge_mg = e.refrigerant, e.charge_mg or 0
+            case EventKind.RETROFIT:
+                refrigerant, since = e.refrigerant, e.performed_on
+                charge_mg = e.charge_mg or charge_mg
+            case EventKind.CHARGE_REVISED:
+                charge_mg = e.charge_mg or charge_mg
+            case EventKind.CHECK:
+                last_check = e.performed_on
+                if e.result == CheckResult.LEAK_FOUND:
+                    open_leaks.append(e.id)
+            case EventKind.REPAIR:
+                last_repair = e.performed_on
+                open_leaks.clear()
+            case EventKind.DETECTION_ON:
+                detection = True
+            case EventKind.DETECTION_OFF:
+                detection = False
+            case EventKind.RETIRE:
+                in_service, retired_on = False, e.performed_on
+            case _:
+                pass
+    return SystemState(
+        in_service=in_service,
+        refrigerant=refrigerant,
+        full_charge_mg=charge_mg,
+        detection_system=detection,
+        in_service_on=in_service_on,
+        retired_on=retired_on,
+        last_check_on=last_check,
+        last_repair_on=last_repair,
+        open_leaks=tuple(open_leaks),
+        refrigerant_since=since,
+        events=kept,
+    )

@@ -1,0 +1,44 @@
+"""Parsing of typed values other than masses: days, SITE/TAG references, level lists.
+
+Pure functions; each raises ``InputError`` naming the field and the value.
+"""
+
+from __future__ import annotations
+
+import re
+from datetime import date
+
+from ledger.errors import InputError
+
+_ISO_DAY = re.compile(r"\d{4}-\d{2}-\d{2}")
+
+
+def parse_day(text: str, *, field: str = "--on") -> date:
+    """Parse an ISO day (``2025-03-14``).
+
+    Day-first or month-first forms are refused here: ``03/04/2025`` means different days
+    on either side of the Atlantic, and a compliance record must not guess.
+    """
+    value = str(text).strip()
+    if not _ISO_DAY.fullmatch(value):
+        raise InputError(field, text, "is not a date in the form YYYY-MM-DD")
+    try:
+        return date.fromisoformat(value)
+    except ValueError as exc:
+        raise InputError(field, text, "is not a real calendar date") from exc
+
+
+def parse_system_ref(text: str, *, field: str = "SITE/TAG") -> tuple[str, str]:
+    """Split ``SITE/TAG`` into its parts."""
+    site, sep, tag = str(text).partition("/")
+    if not sep or not site.strip() or not tag.strip():
+        raise InputError(field, text, "must be written SITE/TAG, e.g. DE-HAM/RACK-1")
+    return site.strip(), tag.strip()
+
+
+def parse_code(text: str, *, field: str) -> str:
+    """A code (site code, cylinder id, tag): non-empty, no slash, no surrounding spaces."""
+    value = str(text).strip()
+    if not value or "/" in value or len(value) > 100:
+        raise InputError(field, text, "must be 1-100 characters without '/'")
+    return value

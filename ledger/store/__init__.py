@@ -1,0 +1,1 @@
+"""Storage: tables, engine and connections, migrations, the hash chain, row <-> record mapping."""

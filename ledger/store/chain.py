@@ -1,0 +1,77 @@
+"""The tamper-evident hash chain over each system's events.
+
+Every event row stores ``prev_hash`` (the ``chain_hash`` of the system's previous event, or
+64 zeros for the first) and ``chain_hash = SHA-256(prev_hash + "\\n" + canonical)``, where
+``canonical`` is the event's content as compact JSON with sorted keys (UTF-8, no ASCII
+escaping). The chain is per system, so writers to different systems never wait on each
+other. ``CANONICAL_FIELDS`` is the documented list (docs/integrity.md); changing it is a
+new chain version and needs a migration.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from collections.abc import Mapping
+from datetime import UTC, date, datetime
+from typing import Any
+
+GENESIS = "0" * 64
+CHAIN_VERSION = 1
+
+# The event columns that the hash covers: everything except the surrogate row id, the
+# chain columns themselves and the import content key (a lookup aid).
+CANONICAL_FIELDS: tuple[str, ...] = (
+    "system_id",
+    "kind",
+    "performed_on",
+    "recorded_at",
+    "mass_mg",
+    "refrigerant",
+    "charge_mg",
+    "result",
+    "location",
+    "method",
+    "destination",
+    "cylinder_id",
+    "cylinder_before_mg",
+    "cylinder_after_mg",
+    "technician_id",
+    "certificate_id",
+    "recorded_by",
+    "note",
+    "voids_id",
+    "reason",
+    "attachments",
+    "reclaimed",
+)
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, datetime):
+        # SQLite hands back naive UTC, PostgreSQL aware times: hash both the same way.
+        aware = value.replace(tzinfo=UTC) if value.tzinfo is None else value.astimezone(UTC)
+        return aware.isoformat(timespec="microseconds")
+    if isinstance(value, date):
+        return value.isoformat()
+    if isinstance(value, bool):
+        return int(value)
+    return value
+
+
+def canonical(row: Mapping[str, Any]) -> bytes:
+    """The canonical bytes of an event row's content.
+
+    Args:
+        row: a mapping holding at least ``CANONICAL_FIELDS`` (missing ones count as null).
+    Returns:
+        Compact, key-sorted JSON as UTF-8 bytes.
+    """
+    body = {name: _plain(row.get(name)) for name in CANONICAL_FIELDS}
+    body["v"] = CHAIN_VERSION
+    return json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
+
+
+def link(prev_hash: str, row: Mapping[str, Any]) -> str:
+    """The chain hash of ``row`` following ``prev_hash``."""
+    return hashlib.sha256(prev_hash.encode() + b"\n" + canonical(row)).hexdigest()

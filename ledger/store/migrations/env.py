@@ -1,0 +1,50 @@
+"""Alembic environment: the ledger's metadata, batch mode for SQLite."""
+
+from alembic import context
+from sqlalchemy import engine_from_config, pool
+
+from ledger.store.tables import metadata
+
+config = context.config
+
+
+def run_migrations_offline() -> None:
+    context.configure(
+        url=config.get_main_option("sqlalchemy.url"),
+        target_metadata=metadata,
+        literal_binds=True,
+        render_as_batch=True,
+    )
+    with context.begin_transaction():
+        context.run_migrations()
+
+
+def run_migrations_online() -> None:
+    connectable = config.attributes.get("connection")
+    if connectable is None:
+        connectable = engine_from_config(
+            config.get_section(config.config_ini_section) or {},
+            prefix="sqlalchemy.",
+            poolclass=pool.NullPool,
+        )
+        with connectable.connect() as connection:
+            _run(connection)
+    else:
+        _run(connectable)
+
+
+def _run(connection) -> None:  # type: ignore[no-untyped-def]
+    context.configure(
+        connection=connection,
+        target_metadata=metadata,
+        render_as_batch=connection.dialect.name == "sqlite",
+        compare_type=True,
+    )
+    with context.begin_transaction():
+        context.run_migrations()
+
+
+if context.is_offline_mode():
+    run_migrations_offline()
+else:
+    run_migrations_online()

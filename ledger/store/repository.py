@@ -1,0 +1,390 @@
+"""Row <-> record mapping and the queries services use.
+
+Every function takes the connection keyword-only (``*, conn``); the service that calls it
+owns the transaction. Estate-wide loads are a fixed number of set-based queries, never one
+query per system.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from collections.abc import Iterable, Mapping, Sequence
+from datetime import UTC, datetime
+from typing import Any
+
+from sqlalchemy import Connection, and_, func, insert, select
+
+from ledger.domain.records import (
+    Application,
+    Certificate,
+    Cylinder,
+    CylinderKind,
+    EquipmentForm,
+    Event,
+    EventKind,
+    Site,
+    System,
+    SystemHistory,
+    Technician,
+)
+from ledger.errors import Conflict, NotFound
+from ledger.store import chain
+from ledger.store.tables import (
+    certificate,
+    company,
+    cylinder,
+    event,
+    site,
+    system,
+    technician,
+)
+
+
+def now_utc() -> datetime:
+    """The time the ledger records things at (services and store only; never rules)."""
+    return datetime.now(UTC)
+
+
+# ---- sites --------------------------------------------------------------------------------
+
+def _site_record(row: Any) -> Site:
+    return Site(
+        id=row.id,
+        code=row.code,
+        name=row.name,
+        country=row.country,
+        subdivision=row.subdivision,
+        timezone=row.timezone,
+        regimes=tuple(r for r in row.regimes.split(",") if r),
+        leak_rate_method=row.leak_rate_method,
+        mass_unit=row.mass_unit,
+    )
+
+
+def insert_site(*, conn: Connection, values: Mapping[str, Any]) -> int:
+    """Add a site; a duplicate code is a Conflict."""
+    if conn.execute(select(site.c.id).where(site.c.code == values["code"])).first():
+        raise Conflict(f"site: {values['code']!r} already exists")
+    return conn.execute(insert(site).values(**values, created_at=now_utc())).inserted_primary_key[0]
+
+
+def get_site(code: str, *, conn: Connection) -> Site:
+    """The site with this code, or NotFound."""
+    row = conn.execute(select(site).where(site.c.code == code)).first()
+    if row is None:
+        raise NotFound(f"site: {code!r} is not in the ledger (see `refledger site list`)")
+    return _site_record(row)
+
+
+def list_sites(*, conn: Connection) -> list[Site]:
+    """Every site, by code."""
+    return [_site_record(r) for r in conn.execute(select(site).order_by(site.c.code))]
+
+
+# ---- systems ------------------------------------------------------------------------------
+
+def _system_record(row: Any, site_code: str) -> System:
+    return System(
+        id=row.id,
+        site_code=site_code,
+        tag=row.tag,
+        description=row.description,
+        application=Application(row.application),
+        equipment_form=EquipmentForm(row.equipment_form),
+        hermetic=bool(row.hermetic),
+        residential=bool(row.residential),
+        location=row.location,
+        maker=row.maker,
+        model=row.model,
+        serial=row.serial,
+        defrost_every_hours=row.defrost_every_hours,
+    )
+
+
+def insert_system(*, conn: Connection, site_id: int, values: Mapping[str, Any]) -> int:
+    """Add a system to a site; a duplicate tag within the site is a Conflict."""
+    exists = conn.execute(
+        select(system.c.id).where(and_(system.c.site_id == site_id, system.c.tag == values["tag"]))
+    ).first()
+    if exists:
+        raise Conflict(f"system: {values['tag']!r} already exists at this site")
+    stmt = insert(system).values(**values, site_id=site_id, created_at=now_utc())
+    return conn.execute(stmt).inserted_primary_key[0]
+
+
+def get_system(site_code: str, tag: str, *, conn: Connection) -> tuple[Site, System]:
+    """The site and system for ``SITE/TAG``, or NotFound naming which part is unknown."""
+    the_site = get_site(site_code, conn=conn)
+    row = conn.execute(
+        select(system).where(and_(system.c.site_id == the_site.id, system.c.tag == tag))
+    ).first()
+    if row is None:
+        raise NotFound(f"system: {site_code}/{tag!r} is not in the ledger")
+    return the_site, _system_record(row, site_code)
+
+
+def list_systems(site_code: str | None = None, *, conn: Connection) -> list[System]:
+    """Systems of one site or of the estate, by site and tag."""
+    stmt = select(system, site.c.code.label("site_code")).join(site, site.c.id == system.c.site_id)
+    if site_code:
+        stmt = stmt.where(site.c.code == site_code)
+    rows = conn.execute(stmt.order_by(site.c.code, system.c.tag))
+    return [_system_record(r, r.site_code) for r in rows]
+
+
+# ---- people -------------------------------------------------------------------------------
+
+def company_id(name: str, *, conn: Connection) -> int:
+    """The id of a company, adding it on first mention."""
+    found = conn.execute(select(company.c.id).where(company.c.name == name)).scalar()
+    if found is not None:
+        return found
+    return conn.execute(insert(company).values(name=name)).inserted_primary_key[0]
+
+
+def insert_technician(
+    *, conn: Connection, name: str, company_name: str | None, certificates: Sequence[Certificate]
+) -> int:
+    """Add a technician with certificates; a duplicate name or certificate is a Conflict."""
+    if conn.execute(select(technician.c.id).where(technician.c.name == name)).first():
+        raise Conflict(f"tech: {name!r} already exists")
+    cid = company_id(company_name, conn=conn) if company_name else None
+    tid = conn.execute(
+        insert(technician).values(name=name, company_id=cid, created_at=now_utc())
+    ).inserted_primary_key[0]
+    for cert in certificates:
+        add_certificate(conn=conn, technician_id=tid, cert=cert)
+    return tid
+
+
+def add_certificate(*, conn: Connection, technician_id: int, cert: Certificate) -> int:
+    """Register a certificate for a technician; the same scheme and number twice is a Conflict."""
+    clash = conn.execute(
+        select(certificate.c.id).where(
+            and_(certificate.c.scheme == cert.scheme, certificate.c.number == cert.number)
+        )
+    ).first()
+    if clash:
+        raise Conflict(f"certificate: {cert.scheme} {cert.number!r} is already registered")
+    stmt = insert(certificate).values(
+        technician_id=technician_id,
+        scheme=cert.scheme,
+        number=cert.number,
+        category=cert.category,
+        valid_from=cert.valid_from,
+        valid_to=cert.valid_to,
+    )
+    return conn.execute(stmt).inserted_primary_key[0]
+
+
+def get_technician(name: str, *, conn: Connection) -> tuple[Technician, dict[str, int]]:
+    """A technician and a map from certificate number to certificate row id."""
+    row = conn.execute(
+        select(technician, company.c.name.label("company_name"))
+        .outerjoin(company, company.c.id == technician.c.company_id)
+        .where(technician.c.name == name)
+    ).first()
+    if row is None:
+        raise NotFound(f"tech: {name!r} is not in the ledger (see `refledger tech list`)")
+    certs = conn.execute(
+        select(certificate).where(certificate.c.technician_id == row.id).order_by(certificate.c.id)
+    ).all()
+    record = Technician(
+        id=row.id,
+        name=row.name,
+        company=row.company_name or "",
+        certificates=tuple(
+            Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to) for c in certs
+        ),
+    )
+    return record, {c.number: c.id for c in certs}
+
+
+def list_technicians(*, conn: Connection) -> list[Technician]:
+    """Every technician with certificates, by name (two queries)."""
+    rows = conn.execute(
+        select(technician, company.c.name.label("company_name"))
+        .outerjoin(company, company.c.id == technician.c.company_id)
+        .order_by(technician.c.name)
+    ).all()
+    certs: dict[int, list[Certificate]] = defaultdict(list)
+    for c in conn.execute(select(certificate).order_by(certificate.c.id)):
+        certs[c.technician_id].append(
+            Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to)
+        )
+    return [
+        Technician(r.id, r.name, r.company_name or "", tuple(certs[r.id])) for r in rows
+    ]
+
+
+# ---- cylinders ----------------------------------------------------------------------------
+
+def insert_cylinder(*, conn: Connection, values: Mapping[str, Any]) -> int:
+    """Add a cylinder; a duplicate id is a Conflict."""
+    if conn.execute(select(cylinder.c.id).where(cylinder.c.code == values["code"])).first():
+        raise Conflict(f"cylinder: {values['code']!r} already exists")
+    stmt = insert(cylinder).values(**values, created_at=now_utc())
+    return conn.execute(stmt).inserted_primary_key[0]
+
+
+def get_cylinder(code: str, *, conn: Connection) -> tuple[int, Cylinder]:
+    """The row id and record of a cylinder, or NotFound."""
+    row = conn.execute(select(cylinder).where(cylinder.c.code == code)).first()
+    if row is None:
+        raise NotFound(f"cylinder: {code!r} is not in the ledger (see `refledger cylinder list`)")
+    return row.id, Cylinder(row.code, row.refrigerant, CylinderKind(row.kind), row.tare_mg)
+
+
+def list_cylinders(*, conn: Connection) -> list[Cylinder]:
+    """Every cylinder, by id."""
+    rows = conn.execute(select(cylinder).order_by(cylinder.c.code))
+    return [Cylinder(r.code, r.refrigerant, CylinderKind(r.kind), r.tare_mg) for r in rows]
+
+
+# ---- events -------------------------------------------------------------------------------
+
+def chain_head(system_id: int, *, conn: Connection) -> str:
+    """Lock the system's chain and return its head hash (GENESIS for a new system).
+
+    On PostgreSQL the system row is locked FOR UPDATE so concurrent writers to the same
+    system queue; on SQLite the write transaction already holds the database lock.
+    """
+    if conn.dialect.name != "sqlite":
+        conn.execute(select(system.c.id).where(system.c.id == system_id).with_for_update())
+    head = conn.execute(
+        select(event.c.chain_hash)
+        .where(event.c.system_id == system_id)
+        .order_by(event.c.id.desc())
+        .limit(1)
+    ).scalar()
+    return head or chain.GENESIS
+
+
+def append_event(*, conn: Connection, values: Mapping[str, Any]) -> tuple[int, str]:
+    """Append one event to its system's chain.
+
+    Args:
+        conn: a write transaction.
+        values: event columns (without id, recorded_at and the chain columns).
+    Returns:
+        The new event id and its chain hash.
+    """
+    row = {**values, "recorded_at": now_utc()}
+    row.setdefault("note", "")
+    row.setdefault("attachments", "")
+    row.setdefault("reclaimed", False)
+    prev = chain_head(row["system_id"], conn=conn)
+    row["prev_hash"] = prev
+    row["chain_hash"] = chain.link(prev, row)
+    event_id = conn.execute(insert(event).values(**row)).inserted_primary_key[0]
+    return event_id, row["chain_hash"]
+
+
+def event_system(event_id: int, *, conn: Connection) -> tuple[int, str, str]:
+    """(system id, kind, site/tag) of an event, or NotFound."""
+    row = conn.execute(
+        select(event.c.system_id, event.c.kind, site.c.code, system.c.tag)
+        .join(system, system.c.id == event.c.system_id)
+        .join(site, site.c.id == system.c.site_id)
+        .where(event.c.id == event_id)
+    ).first()
+    if row is None:
+        raise NotFound(f"event: {event_id} is not in the ledger")
+    return row.system_id, row.kind, f"{row.code}/{row.tag}"
+
+
+def _events_query():  # type: ignore[no-untyped-def]
+    return (
+        select(
+            event,
+            technician.c.name.label("tech_name"),
+            company.c.name.label("company_name"),
+            certificate.c.scheme.label("cert_scheme"),
+            certificate.c.number.label("cert_number"),
+            certificate.c.category.label("cert_category"),
+            cylinder.c.code.label("cylinder_code"),
+        )
+        .outerjoin(technician, technician.c.id == event.c.technician_id)
+        .outerjoin(company, company.c.id == technician.c.company_id)
+        .outerjoin(certificate, certificate.c.id == event.c.certificate_id)
+        .outerjoin(cylinder, cylinder.c.id == event.c.cylinder_id)
+    )
+
+
+def _event_record(r: Any) -> Event:
+    cert = None
+    if r.cert_number:
+        cert = f"{r.cert_scheme} {r.cert_number}" + (f" ({r.cert_category})" if r.cert_category else "")
+    recorded = r.recorded_at
+    if recorded is not None and recorded.tzinfo is None:
+        recorded = recorded.replace(tzinfo=UTC)
+    return Event(
+        id=r.id,
+        system_id=r.system_id,
+        kind=EventKind(r.kind),
+        performed_on=r.performed_on,
+        recorded_at=recorded,
+        mass_mg=r.mass_mg,
+        refrigerant=r.refrigerant,
+        charge_mg=r.charge_mg,
+        result=r.result,
+        location=r.location,
+        method=r.method,
+        destination=r.destination,
+        cylinder_id=r.cylinder_code,
+        cylinder_before_mg=r.cylinder_before_mg,
+        cylinder_after_mg=r.cylinder_after_mg,
+        technician=r.tech_name,
+        company=r.company_name,
+        certificate=cert,
+        recorded_by=r.recorded_by,
+        note=r.note or "",
+        voids_id=r.voids_id,
+        reason=r.reason,
+        attachments=tuple(a for a in (r.attachments or "").split() if a),
+        reclaimed=bool(r.reclaimed),
+        chain_hash=r.chain_hash,
+    )
+
+
+def load_events(system_ids: Iterable[int] | None = None, *, conn: Connection) -> dict[int, tuple[Event, ...]]:
+    """Events grouped by system, in recording order (one query).
+
+    Args:
+        system_ids: restrict to these systems; None loads the estate.
+    """
+    stmt = _events_query()
+    if system_ids is not None:
+        stmt = stmt.where(event.c.system_id.in_(list(system_ids)))
+    grouped: dict[int, list[Event]] = defaultdict(list)
+    for r in conn.execute(stmt.order_by(event.c.system_id, event.c.id)):
+        grouped[r.system_id].append(_event_record(r))
+    return {k: tuple(v) for k, v in grouped.items()}
+
+
+def load_histories(
+    site_code: str | None = None, *, conn: Connection, system_id: int | None = None
+) -> list[SystemHistory]:
+    """Site, system and events of every system (or one site / one system): three queries."""
+    sites = {s.id: s for s in list_sites(conn=conn)}
+    stmt = select(system)
+    if system_id is not None:
+        stmt = stmt.where(system.c.id == system_id)
+    elif site_code is not None:
+        stmt = stmt.where(system.c.site_id == get_site(site_code, conn=conn).id)
+    rows = conn.execute(stmt.order_by(system.c.site_id, system.c.tag)).all()
+    ids = [r.id for r in rows]
+    events = load_events(ids if (system_id is not None or site_code) else None, conn=conn)
+    return [
+        SystemHistory(
+            site=sites[r.site_id],
+            system=_system_record(r, sites[r.site_id].code),
+            events=events.get(r.id, ()),
+        )
+        for r in rows
+    ]
+
+
+def count_events(*, conn: Connection) -> int:
+    """How many event rows the ledger holds."""
+    return conn.execute(select(func.count()).select_from(event)).scalar_one()

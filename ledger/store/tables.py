@@ -1,0 +1,195 @@
+"""The ledger's tables, as SQLAlchemy Core metadata (the migrations must agree: `alembic check`).
+
+Core tables rather than ORM or SQLModel classes: a ``log`` command must start in a few tenths
+of a second (SQLModel pulls in the ORM and pydantic, about twice the import time), and the
+estate-wide work is set-based SQL anyway. Rows are mapped to the frozen domain records in
+``repository.py``.
+
+Masses are BIGINT milligrams; dates that something happened are DATE; times the ledger
+recorded are timezone-aware UTC.
+"""
+
+from __future__ import annotations
+
+from sqlalchemy import (
+    BigInteger,
+    Boolean,
+    Column,
+    Date,
+    DateTime,
+    Float,
+    ForeignKey,
+    Index,
+    Integer,
+    MetaData,
+    String,
+    Table,
+    Text,
+    UniqueConstraint,
+)
+
+# Named constraints so later migrations (and SQLite batch mode) can refer to them.
+NAMING_CONVENTION = {
+    "ix": "ix_%(column_0_label)s",
+    "uq": "uq_%(table_name)s_%(column_0_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+metadata = MetaData(naming_convention=NAMING_CONVENTION)
+
+site = Table(
+    "site",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("code", String(40), nullable=False, unique=True),
+    Column("name", String(200), nullable=False),
+    Column("country", String(2), nullable=False),
+    Column("subdivision", String(10)),
+    Column("timezone", String(64), nullable=False),
+    Column("regimes", String(200), nullable=False, server_default=""),  # comma-separated codes
+    Column("leak_rate_method", String(20), nullable=False, server_default="annualizing"),
+    Column("mass_unit", String(4), nullable=False, server_default="kg"),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+)
+
+company = Table(
+    "company",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("name", String(200), nullable=False, unique=True),
+    Column("certificate", String(100)),  # company certificate number, where a scheme issues one
+)
+
+technician = Table(
+    "technician",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("name", String(200), nullable=False, unique=True),
+    Column("company_id", Integer, ForeignKey("company.id")),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+)
+
+certificate = Table(
+    "certificate",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("technician_id", Integer, ForeignKey("technician.id"), nullable=False, index=True),
+    Column("scheme", String(200), nullable=False),
+    Column("number", String(100), nullable=False),
+    Column("category", String(100), nullable=False, server_default=""),
+    Column("valid_from", Date),
+    Column("valid_to", Date),
+    UniqueConstraint("scheme", "number", name="uq_certificate_scheme_number"),
+)
+
+cylinder = Table(
+    "cylinder",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("code", String(100), nullable=False, unique=True),
+    Column("refrigerant", String(40), nullable=False),
+    Column("kind", String(20), nullable=False),
+    Column("tare_mg", BigInteger),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+)
+
+system = Table(
+    "system",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("site_id", Integer, ForeignKey("site.id"), nullable=False),
+    Column("tag", String(100), nullable=False),
+    Column("description", Text, nullable=False, server_default=""),
+    Column("application", String(40), nullable=False),
+    Column("equipment_form", String(40), nullable=False, server_default="other"),
+    Column("hermetic", Boolean, nullable=False, server_default="0"),
+    Column("residential", Boolean, nullable=False, server_default="0"),
+    Column("location", Text, nullable=False, server_default=""),
+    Column("maker", String(200), nullable=False, server_default=""),
+    Column("model", String(200), nullable=False, server_default=""),
+    Column("serial", String(200), nullable=False, server_default=""),
+    Column("defrost_every_hours", Float),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+    UniqueConstraint("site_id", "tag", name="uq_system_site_id_tag"),
+)
+
+event = Table(
+    "event",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("system_id", Integer, ForeignKey("system.id"), nullable=False),
+    Column("kind", String(20), nullable=False),
+    Column("performed_on", Date, nullable=False),
+    Column("recorded_at", DateTime(timezone=True), nullable=False),
+    Column("mass_mg", BigInteger),
+    Column("refrigerant", String(40)),
+    Column("charge_mg", BigInteger),
+    Column("result", String(20)),
+    Column("location", Text),
+    Column("method", String(100)),
+    Column("destination", String(20)),
+    Column("cylinder_id", Integer, ForeignKey("cylinder.id")),
+    Column("cylinder_before_mg", BigInteger),
+    Column("cylinder_after_mg", BigInteger),
+    Column("technician_id", Integer, ForeignKey("technician.id")),
+    Column("certificate_id", Integer, ForeignKey("certificate.id")),
+    Column("recorded_by", String(200)),
+    Column("note", Text, nullable=False, server_default=""),
+    Column("voids_id", Integer, ForeignKey("event.id")),
+    Column("reason", Text),
+    Column("attachments", Text, nullable=False, server_default=""),  # space-separated SHA-256
+    Column("reclaimed", Boolean, nullable=False, server_default="0"),
+    Column("content_key", String(64)),  # import idempotency: digest of the imported row
+    Column("prev_hash", String(64), nullable=False),
+    Column("chain_hash", String(64), nullable=False, unique=True),
+    Index("ix_event_system_id_id", "system_id", "id"),
+    Index("ix_event_system_id_performed_on", "system_id", "performed_on"),
+    Index("ix_event_content_key", "content_key"),
+    Index("ix_event_kind_performed_on", "kind", "performed_on"),
+)
+
+detector_channel = Table(
+    "detector_channel",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("site_id", Integer, ForeignKey("site.id"), nullable=False),
+    Column("code", String(100), nullable=False),
+    Column("system_id", Integer, ForeignKey("system.id"), nullable=False, index=True),
+    Column("levels_ppm", String(100), nullable=False),  # ascending, comma-separated
+    Column("night_start", String(5), nullable=False, server_default="22:00"),
+    Column("night_end", String(5), nullable=False, server_default="06:00"),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+    UniqueConstraint("site_id", "code", name="uq_detector_channel_site_id_code"),
+)
+
+# Episodes are derived from readings by `detector review` and cached here so that `due`,
+# `system show` and the logbook can use them without rescanning the readings store.
+detector_episode = Table(
+    "detector_episode",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("channel_id", Integer, ForeignKey("detector_channel.id"), nullable=False),
+    Column("level", Integer, nullable=False),
+    Column("start_at", DateTime(timezone=True), nullable=False),
+    Column("end_at", DateTime(timezone=True), nullable=False),
+    Column("peak_ppm", Float, nullable=False),
+    Column("ppm_hours", Float, nullable=False),
+    Column("reviewed_at", DateTime(timezone=True), nullable=False),
+    Index("ix_detector_episode_channel_id_start_at", "channel_id", "start_at"),
+)
+
+# One row per report written: what it was built from, so it can be reproduced and tied to
+# the chain heads printed on it.
+report_run = Table(
+    "report_run",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("made_at", DateTime(timezone=True), nullable=False),
+    Column("kind", String(40), nullable=False),
+    Column("subject", String(200), nullable=False),
+    Column("as_of", Date, nullable=False),
+    Column("regime_versions", String(400), nullable=False, server_default=""),
+    Column("chain_digest", String(64), nullable=False),
+)

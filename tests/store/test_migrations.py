@@ -1,0 +1,42 @@
+"""Migrations: an empty database upgrades to head, and the models agree with the migrations."""
+
+from __future__ import annotations
+
+from alembic import command
+from alembic.script import ScriptDirectory
+from sqlalchemy import text
+
+from ledger.store.db import HEAD_REVISION, Database, Location, alembic_config, status
+
+
+def test_head_constant_matches_alembic_head(location: Location) -> None:
+    script = ScriptDirectory.from_config(alembic_config(location))
+    assert script.get_current_head() == HEAD_REVISION
+
+
+def test_upgraded_database_has_no_pending_revisions_and_matches_models(location: Location) -> None:
+    current, pending = status(location)
+    assert current == HEAD_REVISION
+    assert pending == []
+    # `alembic check` fails if tables.py and the migrations disagree (Alembic >= 1.9).
+    command.check(alembic_config(location))
+
+
+def test_events_are_append_only_in_the_database(location: Location) -> None:
+    from ledger.services.recording import add_site, add_system
+
+    db = Database(location)
+    add_site(db, code="S1", name="Site", country="DE")
+    from datetime import date
+
+    add_system(db, site_code="S1", tag="T1", refrigerant="R-134a", charge_mg=5_000_000,
+               application="comfort-cooling", in_service_on=date(2024, 1, 1))
+    for statement in ("UPDATE event SET note = 'x'", "DELETE FROM event"):
+        try:
+            with db.engine.begin() as conn:
+                conn.execute(text(statement))
+        except Exception as exc:  # the driver's IntegrityError / RaiseException
+            assert "append-only" in str(exc)
+        else:
+            raise AssertionError(f"{statement} was allowed")
+    db.close()
