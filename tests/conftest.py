@@ -102,7 +102,7 @@ def location(request: pytest.FixtureRequest, tmp_path: Path, sqlite_template: Pa
 @pytest.fixture
 def sqlite_location(tmp_path: Path, sqlite_template: Path) -> Location:
     """A migrated, empty SQLite ledger (for tests that are about the CLI, not the backend)."""
-    path = tmp_path / "ledger.db"
+    path = tmp_path / "cli-ledger.db"
     shutil.copy(sqlite_template, path)
     return locate(str(path))
 

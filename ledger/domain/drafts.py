@@ -85,6 +85,7 @@ def validate_event(
     cylinder: Cylinder | None,
     cylinder_matches: bool | None,
     technician: Technician | None,
+    placed_on: date | None,
 ) -> list[Finding]:
     """Check a draft against the system's state on the event's date.
 
@@ -97,6 +98,7 @@ def validate_event(
         cylinder: the named cylinder, if any.
         cylinder_matches: whether the cylinder holds the system's refrigerant.
         technician: the technician who did the work, if named.
+        placed_on: the day the system was placed in service (from its whole history).
     Returns:
         Findings; any with severity ERROR means the event must not be written.
     """
@@ -105,12 +107,12 @@ def validate_event(
     if on > today:
         found.append(error("--on", f"{on.isoformat()} is in the future (today is {today.isoformat()})"))
     if draft.kind is not EventKind.VOID:
-        if state.in_service_on is None:
+        if placed_on is None:
             found.append(error("system", "has not been placed in service"))
-        elif on < state.in_service_on:
+        elif on < placed_on:
             found.append(
                 error("--on", f"{on.isoformat()} is before the system was placed in service "
-                      f"({state.in_service_on.isoformat()})")
+                      f"({placed_on.isoformat()})")
             )
         if state.retired_on is not None and on >= state.retired_on:
             found.append(

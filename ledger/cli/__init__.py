@@ -1,0 +1,1 @@
+"""The `refledger` command line: thin Typer commands over the services."""

@@ -1,0 +1,63 @@
+"""`refledger db`: where the database is, create it, migrate it."""
+
+from __future__ import annotations
+
+import typer
+
+from ledger.cli import context
+
+app = typer.Typer(no_args_is_help=True, help="Create, locate and migrate the ledger database.")
+
+
+@app.command("where")
+def where() -> None:
+    """Print which database this run uses and why.
+
+    Example: refledger --db plant.db db where
+    """
+    loc = context.location()
+    typer.echo(f"{loc.url}  (from {loc.source})")
+
+
+@app.command("init")
+def init() -> None:
+    """Create an empty ledger (or bring an existing one to the newest schema).
+
+    Example: refledger --db plant.db db init
+    """
+    from ledger.store.db import upgrade
+
+    loc = context.location()
+    before, after, _ = upgrade(loc, backup=False)
+    state = "already at" if before == after else "created at"
+    typer.echo(f"ledger {state} schema {after}: {loc.url}")
+
+
+@app.command("status")
+def status() -> None:
+    """List the applied and pending schema revisions without writing anything.
+
+    Example: refledger db status
+    """
+    from ledger.store.db import status as db_status
+
+    current, pending = db_status(context.location())
+    typer.echo(f"applied: {current or 'none (empty database)'}")
+    typer.echo(f"pending: {', '.join(pending) if pending else 'none'}")
+
+
+@app.command("upgrade")
+def upgrade() -> None:
+    """Apply pending schema revisions (an SQLite file is first copied to NAME.bak-REV).
+
+    Example: refledger db upgrade
+    """
+    from ledger.store.db import upgrade as db_upgrade
+
+    before, after, saved = db_upgrade(context.location())
+    if before == after:
+        typer.echo(f"nothing to do: schema is at {after}")
+        return
+    if saved:
+        typer.echo(f"backup: {saved}")
+    typer.echo(f"upgraded {before or 'empty database'} -> {after}")

@@ -1,0 +1,219 @@
+"""`refledger log KIND SITE/TAG --on DATE ...`: record what was done to a system.
+
+Every subcommand appends one event (events are never edited; `log void` corrects). After
+writing, the command prints the event id and any warning, e.g. a lapsed certificate.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from ledger.cli import context
+
+app = typer.Typer(no_args_is_help=True, help="Record an event on a system (append-only).")
+
+Ref = Annotated[str, typer.Argument(metavar="SITE/TAG", help="The system, as SITE/TAG.")]
+On = Annotated[str, typer.Option("--on", help="Day the work was done (site-local), YYYY-MM-DD.")]
+Tech = Annotated[str | None, typer.Option("--tech", help="Technician who did the work.")]
+Note = Annotated[str, typer.Option("--note", help="Free text.")]
+By = Annotated[str | None, typer.Option("--by", help="Who is recording this (default: --tech).")]
+Attach = Annotated[
+    list[Path] | None,
+    typer.Option("--attach", help="Service report file; its SHA-256 is stored (repeatable)."),
+]
+Mass = Annotated[str | None, typer.Option("--mass", help="Mass, e.g. 2.5kg, 5 lb 8 oz, 850 g.")]
+Cylinder = Annotated[str | None, typer.Option("--cylinder", help="Cylinder id.")]
+Before = Annotated[str | None, typer.Option("--before", help="Cylinder weight before.")]
+After = Annotated[str | None, typer.Option("--after", help="Cylinder weight after.")]
+
+
+def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | None:
+    from ledger.units import parse_mass_mg
+
+    return parse_mass_mg(text, field=field, allow_zero=allow_zero) if text is not None else None
+
+
+def _log(kind: str, ref: str, on: str, tech: str | None, note: str, by: str | None,
+         attach: list[Path] | None, **fields: Any) -> None:
+    from ledger.cli.render import warn
+    from ledger.domain.drafts import EventDraft
+    from ledger.domain.records import EventKind
+    from ledger.inputs import parse_day, parse_system_ref
+    from ledger.services.recording import attachment_digest, log_event
+
+    site_code, tag = parse_system_ref(ref)
+    draft = EventDraft(
+        kind=EventKind(kind),
+        performed_on=parse_day(on),
+        technician=tech,
+        recorded_by=by or tech,
+        note=note,
+        attachments=tuple(attachment_digest(p) for p in attach or ()),
+        **fields,
+    )
+    logged = log_event(context.open_db(), site_code=site_code, tag=tag, draft=draft)
+    for w in logged.warnings:
+        warn(w.message)
+    typer.echo(f"event {logged.event_id} recorded: {kind} on {site_code}/{tag} {draft.performed_on}")
+    _print_next(site_code, tag)
+
+
+def _print_next(site_code: str, tag: str) -> None:
+    """Show what the ledger now expects next of the system (the technician's question)."""
+    from ledger.services.queries import next_due
+
+    for line in next_due(context.open_db(), site_code=site_code, tag=tag):
+        typer.echo(f"  next: {line}")
+
+
+@app.command("add")
+def add(ref: Ref, on: On, mass: Mass = None, cylinder: Cylinder = None, before: Before = None,
+        after: After = None,
+        refrigerant: Annotated[str | None, typer.Option("--refrigerant", help="Assert the gas added.")] = None,
+        reclaimed: Annotated[bool, typer.Option("--reclaimed", help="Recycled or reclaimed gas.")] = False,
+        tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Refrigerant added: by --mass, or by cylinder weights --before/--after.
+
+    Example: refledger log add DE-HAM/RACK-1 --on 2025-03-14 --mass 2.5kg --tech "Ada Novak"
+    """
+    _log("add", ref, on, tech, note, by, attach, mass_mg=_mass(mass, "--mass"),
+         cylinder_code=cylinder, cylinder_before_mg=_mass(before, "--before"),
+         cylinder_after_mg=_mass(after, "--after"), refrigerant=refrigerant, reclaimed=reclaimed)
+
+
+@app.command("recover")
+def recover(ref: Ref, on: On, mass: Mass = None, cylinder: Cylinder = None, before: Before = None,
+            after: After = None,
+            destination: Annotated[str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")] = None,
+            tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Refrigerant recovered from a system that stays in service.
+
+    Example: refledger log recover DE-HAM/RACK-1 --on 2025-03-14 --mass 4kg --destination reclaim
+    """
+    _log("recover", ref, on, tech, note, by, attach, mass_mg=_mass(mass, "--mass"),
+         cylinder_code=cylinder, cylinder_before_mg=_mass(before, "--before"),
+         cylinder_after_mg=_mass(after, "--after"), destination=destination)
+
+
+@app.command("check")
+def check(ref: Ref, on: On,
+          result: Annotated[str, typer.Option("--result", help="no-leak or leak-found.")],
+          where: Annotated[str | None, typer.Option("--where", help="Where the leak is.")] = None,
+          method: Annotated[str | None, typer.Option("--method", help="How it was checked.")] = None,
+          tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Leak check and its result.
+
+    Example: refledger log check DE-HAM/RACK-1 --on 2025-03-14 --result leak-found --where "LT suction header"
+    """
+    _log("check", ref, on, tech, note, by, attach, result=result, location=where, method=method)
+
+
+@app.command("repair")
+def repair(ref: Ref, on: On,
+           where: Annotated[str | None, typer.Option("--where", help="What was repaired.")] = None,
+           tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Leak repaired.
+
+    Example: refledger log repair DE-HAM/RACK-1 --on 2025-03-15 --where "flare nut re-made"
+    """
+    _log("repair", ref, on, tech, note, by, attach, location=where)
+
+
+@app.command("follow-up")
+def follow_up(ref: Ref, on: On,
+              result: Annotated[str, typer.Option("--result", help="pass or fail.")],
+              method: Annotated[str | None, typer.Option("--method", help="How it was checked.")] = None,
+              tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Follow-up check (or verification test) after a repair.
+
+    Example: refledger log follow-up DE-HAM/RACK-1 --on 2025-03-20 --result pass
+    """
+    _log("follow-up", ref, on, tech, note, by, attach, result=result, method=method)
+
+
+@app.command("detection-on")
+def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None,
+                 attach: Attach = None) -> None:
+    """Leak detection system installed.
+
+    Example: refledger log detection-on DE-HAM/RACK-1 --on 2025-01-10
+    """
+    _log("detection-on", ref, on, tech, note, by, attach)
+
+
+@app.command("detection-off")
+def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None,
+                  attach: Attach = None) -> None:
+    """Leak detection system removed or out of use.
+
+    Example: refledger log detection-off DE-HAM/RACK-1 --on 2025-01-10
+    """
+    _log("detection-off", ref, on, tech, note, by, attach)
+
+
+@app.command("detection-check")
+def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None,
+                    attach: Attach = None) -> None:
+    """Leak detection system checked.
+
+    Example: refledger log detection-check DE-HAM/RACK-1 --on 2025-06-01
+    """
+    _log("detection-check", ref, on, tech, note, by, attach)
+
+
+@app.command("charge")
+def charge(ref: Ref, on: On,
+           charge_: Annotated[str, typer.Option("--charge", help="The revised full charge.")],
+           tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Full charge revised (re-determined by measurement, calculation or maker's data).
+
+    Example: refledger log charge DE-HAM/RACK-1 --on 2025-02-01 --charge 310kg --note "by calculation"
+    """
+    _log("charge-revised", ref, on, tech, note, by, attach, charge_mg=_mass(charge_, "--charge"))
+
+
+@app.command("retrofit")
+def retrofit(ref: Ref, on: On,
+             refrigerant: Annotated[str, typer.Option("--refrigerant", help="The new refrigerant.")],
+             charge_: Annotated[str, typer.Option("--charge", help="The new full charge.")],
+             tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Retrofit to another refrigerant and charge.
+
+    Example: refledger log retrofit DE-HAM/RACK-1 --on 2025-05-01 --refrigerant R-448A --charge 280kg
+    """
+    _log("retrofit", ref, on, tech, note, by, attach, refrigerant=refrigerant,
+         charge_mg=_mass(charge_, "--charge"))
+
+
+@app.command("retire")
+def retire(ref: Ref, on: On,
+           recovered: Annotated[str, typer.Option("--recovered", help="Mass recovered (0 kg allowed).")],
+           destination: Annotated[str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")] = None,
+           cylinder: Cylinder = None,
+           tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+    """Taken out of service, with the refrigerant recovered and where it went.
+
+    Example: refledger log retire DE-HAM/CAB-7 --on 2025-09-30 --recovered 1.2kg --destination reclaim
+    """
+    _log("retire", ref, on, tech, note, by, attach,
+         mass_mg=_mass(recovered, "--recovered", allow_zero=True), destination=destination,
+         cylinder_code=cylinder)
+
+
+@app.command("void")
+def void(event_id: Annotated[int, typer.Argument(help="Id of the event to void.")],
+         reason: Annotated[str, typer.Option("--reason", help="Why it is wrong.")],
+         by: By = None) -> None:
+    """Void an earlier event; it stays in the ledger, marked, with the reason.
+
+    Record the corrected event afterwards with the matching `log` command.
+
+    Example: refledger log void 1042 --reason "mass typed in lb, was kg"
+    """
+    from ledger.services.recording import void_event
+
+    logged = void_event(context.open_db(), event_id=event_id, reason=reason, recorded_by=by)
+    typer.echo(f"event {logged.event_id} recorded: void of event {event_id} on {logged.site_code}/{logged.tag}")

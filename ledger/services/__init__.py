@@ -1,0 +1,1 @@
+"""Use cases. Each public function owns one transaction and takes the open Database."""

@@ -1,0 +1,163 @@
+"""Export the whole ledger as plain files, and restore it into an empty database of either kind.
+
+Layout of an export folder:
+* ``<table>.jsonl``: one JSON object per row, every column, in primary-key order; dates as
+  ``YYYY-MM-DD``, times as ISO 8601 UTC, masses as integers (mg);
+* ``manifest.json``: format version, schema revision, export time, and per table the row
+  count and the SHA-256 of its file, plus the digest of all chain heads.
+
+This is also the way from the embedded SQLite file to a PostgreSQL server.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+from datetime import UTC, date, datetime
+from pathlib import Path
+from typing import Any
+
+from ledger.errors import Conflict, LedgerError
+from ledger.store.db import HEAD_REVISION, Database, Location, upgrade
+
+FORMAT_VERSION = 1
+# Parents before children, so foreign keys hold while loading.
+TABLE_ORDER = (
+    "site", "company", "technician", "certificate", "cylinder", "system", "event",
+    "detector_channel", "detector_episode", "report_run",
+)
+
+
+@dataclass(frozen=True, slots=True)
+class BackupResult:
+    """What an export or restore moved."""
+
+    folder: Path
+    counts: dict[str, int]
+    heads_digest: str
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, datetime):
+        aware = value.replace(tzinfo=UTC) if value.tzinfo is None else value.astimezone(UTC)
+        return aware.isoformat()
+    if isinstance(value, date):
+        return value.isoformat()
+    return value
+
+
+def _tables():  # type: ignore[no-untyped-def]
+    from ledger.store.tables import metadata
+
+    return [metadata.tables[name] for name in TABLE_ORDER]
+
+
+def export_ledger(db: Database, folder: Path) -> BackupResult:
+    """Write every table and a manifest into ``folder`` (created; must be empty)."""
+    from sqlalchemy import select
+
+    from ledger.services.integrity import verify
+
+    folder.mkdir(parents=True, exist_ok=True)
+    if any(folder.iterdir()):
+        raise Conflict(f"DIR: {folder} is not empty")
+    counts: dict[str, int] = {}
+    digests: dict[str, str] = {}
+    with db.read() as conn:
+        for table in _tables():
+            path = folder / f"{table.name}.jsonl"
+            sha = hashlib.sha256()
+            n = 0
+            with path.open("w", encoding="utf-8", newline="\n") as fh:
+                for row in conn.execute(select(table).order_by(*table.primary_key.columns)).mappings():
+                    line = json.dumps({k: _plain(v) for k, v in row.items()}, ensure_ascii=False,
+                                      sort_keys=True, separators=(",", ":")) + "\n"
+                    fh.write(line)
+                    sha.update(line.encode())
+                    n += 1
+            counts[table.name] = n
+            digests[table.name] = sha.hexdigest()
+    heads = verify(db).digest
+    manifest = {
+        "format": FORMAT_VERSION,
+        "schema_revision": HEAD_REVISION,
+        "exported_at": datetime.now(UTC).isoformat(),
+        "tables": {name: {"rows": counts[name], "sha256": digests[name]} for name in counts},
+        "chain_heads_digest": heads,
+    }
+    (folder / "manifest.json").write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
+    return BackupResult(folder, counts, heads)
+
+
+def _typed(table, row: dict[str, Any]) -> dict[str, Any]:  # type: ignore[no-untyped-def]
+    from sqlalchemy import Date, DateTime
+
+    out = {}
+    for key, value in row.items():
+        column = table.c[key]
+        if value is not None and isinstance(column.type, DateTime):
+            value = datetime.fromisoformat(value)
+        elif value is not None and isinstance(column.type, Date):
+            value = date.fromisoformat(value)
+        out[key] = value
+    return out
+
+
+def restore_ledger(folder: Path, location: Location) -> BackupResult:
+    """Load an export into an empty database (created or migrated to head), then verify it.
+
+    Raises:
+        Conflict: the target already holds records.
+        LedgerError: a file is missing or does not match the manifest; the chains do not verify.
+    """
+    from sqlalchemy import func, insert, select, text
+
+    from ledger.services.integrity import verify
+
+    manifest_path = folder / "manifest.json"
+    if not manifest_path.exists():
+        raise LedgerError(f"DIR: {folder} has no manifest.json (not a refledger export)")
+    manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+    if manifest.get("format") != FORMAT_VERSION or manifest.get("schema_revision") != HEAD_REVISION:
+        raise LedgerError(
+            f"DIR: export format {manifest.get('format')} / schema {manifest.get('schema_revision')} "
+            f"cannot be restored by this version (needs {FORMAT_VERSION} / {HEAD_REVISION})"
+        )
+    upgrade(location, backup=False)
+    db = Database(location)
+    try:
+        with db.write() as conn:
+            for table in _tables():
+                if conn.execute(select(func.count()).select_from(table)).scalar_one():
+                    raise Conflict(f"--db: {location.url} is not empty ({table.name} has rows)")
+            counts: dict[str, int] = {}
+            for table in _tables():
+                entry = manifest["tables"].get(table.name)
+                path = folder / f"{table.name}.jsonl"
+                if entry is None or not path.exists():
+                    raise LedgerError(f"DIR: {path.name} is missing")
+                data = path.read_bytes()
+                if hashlib.sha256(data).hexdigest() != entry["sha256"]:
+                    raise LedgerError(f"DIR: {path.name} does not match the manifest's digest")
+                rows = [_typed(table, json.loads(line)) for line in data.decode("utf-8").splitlines() if line]
+                if len(rows) != entry["rows"]:
+                    raise LedgerError(f"DIR: {path.name} has {len(rows)} rows, the manifest says {entry['rows']}")
+                for start in range(0, len(rows), 5000):
+                    if rows[start:start + 5000]:
+                        conn.execute(insert(table), rows[start:start + 5000])
+                counts[table.name] = len(rows)
+                if conn.dialect.name == "postgresql" and rows:
+                    conn.execute(text(
+                        f"SELECT setval(pg_get_serial_sequence('{table.name}', 'id'), "
+                        f"(SELECT MAX(id) FROM {table.name}))"
+                    ))
+        checked = verify(db)
+        if not checked.ok:
+            first = checked.breaks[0]
+            raise LedgerError(f"restore: chain of {first.site}/{first.system} does not verify at event {first.event_id}")
+        if checked.digest != manifest["chain_heads_digest"]:
+            raise LedgerError("restore: chain heads differ from the manifest's digest")
+        return BackupResult(folder, counts, checked.digest)
+    finally:
+        db.close()

@@ -1,0 +1,260 @@
+"""Read-only views: lists, one system's full picture, what is due next.
+
+Each returns plain data (dicts, lists) ready for JSON or a table; the CLI renders it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from datetime import date
+from decimal import Decimal
+from typing import Any
+
+from ledger.domain.records import Event, Obligation, ObligationStatus, SystemHistory
+from ledger.domain.state import state_of
+from ledger.reference import load_reference
+from ledger.store import repository as repo
+from ledger.store.db import Database
+from ledger.units import mg_to_kg
+
+
+def kg(mg: int | None) -> Decimal | None:
+    """Exact kg for JSON output (None stays None)."""
+    return None if mg is None else mg_to_kg(mg)
+
+
+def sites(db: Database) -> list[dict[str, Any]]:
+    """Every site with its regimes and system count."""
+    with db.read() as conn:
+        counts: dict[str, int] = {}
+        for s in repo.list_systems(conn=conn):
+            counts[s.site_code] = counts.get(s.site_code, 0) + 1
+        return [
+            {
+                "code": s.code,
+                "name": s.name,
+                "country": s.country,
+                "subdivision": s.subdivision,
+                "timezone": s.timezone,
+                "regimes": list(s.regimes),
+                "leak_rate_method": s.leak_rate_method,
+                "unit": s.mass_unit,
+                "systems": counts.get(s.code, 0),
+            }
+            for s in repo.list_sites(conn=conn)
+        ]
+
+
+def technicians(db: Database) -> list[dict[str, Any]]:
+    """Every technician with certificates."""
+    with db.read() as conn:
+        return [
+            {
+                "name": t.name,
+                "company": t.company,
+                "certificates": [
+                    {"scheme": c.scheme, "number": c.number, "category": c.category,
+                     "valid_from": c.valid_from, "valid_to": c.valid_to}
+                    for c in t.certificates
+                ],
+            }
+            for t in repo.list_technicians(conn=conn)
+        ]
+
+
+def cylinders(db: Database) -> list[dict[str, Any]]:
+    """Every cylinder."""
+    with db.read() as conn:
+        return [
+            {"id": c.id, "refrigerant": c.refrigerant, "kind": c.kind.value, "tare_kg": kg(c.tare_mg)}
+            for c in repo.list_cylinders(conn=conn)
+        ]
+
+
+def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
+    """One event as the `system show --json` contract has it."""
+    void = voided_by.get(e.id)
+    return {
+        "id": e.id,
+        "kind": e.kind.value,
+        "performed_on": e.performed_on,
+        "recorded_at": e.recorded_at,
+        "mass_kg": kg(e.mass_mg),
+        "refrigerant": e.refrigerant,
+        "charge_kg": kg(e.charge_mg),
+        "result": e.result,
+        "location": e.location,
+        "method": e.method,
+        "destination": e.destination,
+        "cylinder": e.cylinder_id,
+        "cylinder_before_kg": kg(e.cylinder_before_mg),
+        "cylinder_after_kg": kg(e.cylinder_after_mg),
+        "technician": e.technician,
+        "company": e.company,
+        "certificate": e.certificate,
+        "recorded_by": e.recorded_by,
+        "note": e.note,
+        "voids": e.voids_id,
+        "reason": e.reason,
+        "voided_by": void.id if void else None,
+        "void_reason": void.reason if void else None,
+        "attachments": list(e.attachments),
+        "reclaimed": e.reclaimed,
+        "chain_hash": e.chain_hash,
+    }
+
+
+def obligation_json(ob: Obligation, labels: dict[int, tuple[str, str]]) -> dict[str, Any]:
+    """One obligation as the `due --json` contract has it."""
+    site_code, tag = labels.get(ob.system_id, (ob.site_code, None)) if ob.system_id else (ob.site_code, None)
+    return {
+        "site": site_code,
+        "system": tag,
+        "kind": ob.kind.value,
+        "due_on": ob.due_on,
+        "earliest_on": ob.earliest_on,
+        "status": ob.status.value,
+        "regime": ob.regime,
+        "basis": str(ob.basis),
+        "detail": ob.detail,
+        "caused_by": ob.caused_by,
+        "met_by": ob.met_by,
+    }
+
+
+def labels_of(histories: Sequence[SystemHistory]) -> dict[int, tuple[str, str]]:
+    """System id -> (site code, tag)."""
+    return {h.system.id: (h.site.code, h.system.tag) for h in histories}
+
+
+def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[str, Any]:
+    """Everything about one system on a day: facts, state, tiers, obligations, leak rates."""
+    from ledger.domain.leak_rate import leak_rates_json
+    from ledger.rules import REGIMES, compute_all
+
+    reference = load_reference()
+    with db.read() as conn:
+        _, sys_ = repo.get_system(site_code, tag, conn=conn)
+        history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
+    site = history.site
+    state = state_of(history.events, as_of)
+    basis = REGIMES[site.regimes[0]].GWP_BASIS if site.regimes else "ar4"
+    co2e = None
+    gwp = None
+    if state.refrigerant:
+        gwp = reference.gwp(state.refrigerant, basis).value
+        co2e = mg_to_kg(state.full_charge_mg) * gwp / 1000
+    voided_by = {e.voids_id: e for e in history.events if e.voids_id is not None}
+    obligations, findings = compute_all([history], reference, as_of)
+    labels = labels_of([history])
+    ref = reference.lookup(state.refrigerant) if state.refrigerant else None
+    return {
+        "site": site.code,
+        "tag": sys_.tag,
+        "description": sys_.description,
+        "application": sys_.application.value,
+        "equipment_form": sys_.equipment_form.value,
+        "hermetic": sys_.hermetic,
+        "refrigerant": state.refrigerant,
+        "safety_class": ref.safety_class if ref else None,
+        "full_charge_kg": mg_to_kg(state.full_charge_mg),
+        "gwp_basis": basis,
+        "gwp": gwp,
+        "co2e_t": co2e,
+        "in_service": state.in_service,
+        "in_service_on": state.in_service_on,
+        "retired_on": state.retired_on,
+        "detection_system": state.detection_system,
+        "last_check_on": state.last_check_on,
+        "last_repair_on": state.last_repair_on,
+        "open_leaks": list(state.open_leaks),
+        "as_of": as_of,
+        "regimes": list(site.regimes),
+        "tier": {
+            code: {
+                "band": t.band,
+                "interval_months": t.interval_months,
+                "basis": str(t.basis),
+                "reason": t.reason,
+            }
+            for code in site.regimes
+            for t in [REGIMES[code].tier_of(history, reference, as_of)]
+        },
+        "obligations": [obligation_json(o, labels) for o in obligations],
+        "findings": [{"source": f.source, "message": f.message, "severity": f.severity.value} for f in findings],
+        "leak_rates": leak_rates_json(history, as_of) if site.country == "US" else [],
+        "events": [event_json(e, voided_by) for e in sorted(history.events, key=lambda e: e.id)],
+    }
+
+
+def next_due(db: Database, *, site_code: str, tag: str, limit: int = 3) -> list[str]:
+    """One line per open or overdue obligation of a system, earliest first."""
+    from ledger.rules import compute_all
+    from ledger.services.recording import site_today
+
+    with db.read() as conn:
+        _, sys_ = repo.get_system(site_code, tag, conn=conn)
+        history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
+    today = site_today(history.site.timezone)
+    obligations, _ = compute_all([history], load_reference(), today)
+    pending = [o for o in obligations if o.status is not ObligationStatus.MET]
+    return [
+        f"{o.kind.value} {o.status.value} by {o.due_on.isoformat()} ({o.regime}: {o.basis.citation})"
+        for o in pending[:limit]
+    ]
+
+
+def leak_rate_view(
+    db: Database, *, site_code: str, tag: str, method: str | None, as_of: date | None
+) -> dict[str, Any]:
+    """US leak rate at every addition of one system (the site's method unless one is named)."""
+    from dataclasses import replace
+
+    from ledger.domain.leak_rate import leak_rates_json, threshold_percent
+    from ledger.services.recording import site_today
+
+    with db.read() as conn:
+        _, sys_ = repo.get_system(site_code, tag, conn=conn)
+        history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
+    if method:
+        history = replace(history, site=replace(history.site, leak_rate_method=method))
+    day = as_of or site_today(history.site.timezone)
+    return {
+        "site": site_code,
+        "system": tag,
+        "application": sys_.application.value,
+        "method": history.site.leak_rate_method,
+        "threshold_percent": threshold_percent(sys_.application),
+        "as_of": day,
+        "rows": leak_rates_json(history, day),
+    }
+
+
+def rules_view(code: str | None = None) -> list[dict[str, Any]]:
+    """Each regime's constants with their basis and confidence mark."""
+    from ledger.errors import NotFound
+    from ledger.rules import REGIMES
+
+    if code is not None and code not in REGIMES:
+        raise NotFound(f"regime: {code!r} is not one of {', '.join(REGIMES)}")
+    return [
+        {
+            "code": c,
+            "title": module.TITLE,
+            "version": module.REGIME_VERSION,
+            "gwp_basis": module.GWP_BASIS,
+            "constants": [
+                {
+                    "name": k.name,
+                    "value": k.value,
+                    "unit": k.unit,
+                    "citation": k.basis.citation,
+                    "confidence": k.basis.confidence.value,
+                    "note": k.basis.note,
+                }
+                for k in module.CONSTANTS
+            ],
+        }
+        for c, module in REGIMES.items()
+        if code is None or c == code
+    ]

@@ -1,0 +1,378 @@
+"""Recording use cases: sites, systems, people, cylinders and events.
+
+Each function validates everything first and then writes in one transaction, so a
+rejected command leaves no trace.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
+from datetime import date, datetime
+from pathlib import Path
+from typing import Any
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+from ledger.domain.drafts import EventDraft, cylinder_mass_mg, validate_event
+from ledger.domain.records import (
+    Application,
+    Certificate,
+    CylinderKind,
+    EquipmentForm,
+    Event,
+    EventKind,
+    Finding,
+    Severity,
+    Site,
+    System,
+)
+from ledger.domain.state import state_of
+from ledger.errors import Conflict, InputError, Rejected
+from ledger.reference import load_reference
+from ledger.store import repository as repo
+from ledger.store.db import Database
+from ledger.services import places
+
+
+@dataclass(frozen=True, slots=True)
+class Logged:
+    """What a write produced: the new event, its chain hash and any warnings."""
+
+    event_id: int
+    chain_hash: str
+    warnings: tuple[Finding, ...] = field(default=())
+    site_code: str = ""
+    tag: str = ""
+
+
+def site_today(timezone: str) -> date:
+    """Today's date at the site (events cannot be dated after it)."""
+    return datetime.now(ZoneInfo(timezone)).date()
+
+
+def _raise_first_error(findings: Sequence[Finding]) -> None:
+    for f in findings:
+        if f.severity is Severity.ERROR:
+            raise Rejected(f.message)
+
+
+def _enum(enum_type, value: str, fld: str):  # type: ignore[no-untyped-def]
+    try:
+        return enum_type(value)
+    except ValueError:
+        allowed = ", ".join(m.value for m in enum_type)
+        raise InputError(fld, value, f"is not one of {allowed}") from None
+
+
+# ---- sites and systems --------------------------------------------------------------------
+
+def site_values(
+    *,
+    code: str,
+    name: str,
+    country: str,
+    subdivision: str | None = None,
+    timezone: str | None = None,
+    regimes: Sequence[str] = (),
+    leak_rate_method: str | None = None,
+    mass_unit: str | None = None,
+) -> dict[str, object]:
+    """Check a site's fields and return its column values; regimes default from the country.
+
+    Raises:
+        InputError: naming the field and value that is wrong.
+    """
+    from ledger.inputs import parse_code
+    from ledger.rules import REGIMES, default_regimes
+
+    code = parse_code(code, field="CODE")
+    if not name.strip():
+        raise InputError("--name", name, "must not be empty")
+    country = country.strip().upper()
+    if country == "UK":
+        country = "GB"
+    if country not in places.countries():
+        raise InputError("--country", country, "is not an ISO 3166-1 alpha-2 country code")
+    if subdivision is not None:
+        subdivision = subdivision.strip().upper()
+        if not subdivision.startswith(country + "-") or len(subdivision) < len(country) + 2:
+            raise InputError("--subdivision", subdivision, f"must look like {country}-XX")
+    zone = timezone or places.default_timezone(country, subdivision)
+    try:
+        ZoneInfo(zone)
+    except (ZoneInfoNotFoundError, ValueError):
+        raise InputError("--timezone", zone, "is not an IANA time zone (e.g. Europe/Berlin)") from None
+    chosen = tuple(regimes) or default_regimes(country, subdivision)
+    for code_ in chosen:
+        if code_ not in REGIMES:
+            raise InputError("--regime", code_, f"is not one of {', '.join(REGIMES)}")
+    method = leak_rate_method or "annualizing"
+    if method not in ("annualizing", "rolling"):
+        raise InputError("--leak-rate-method", method, "is not one of annualizing, rolling")
+    unit = mass_unit or ("lb" if country == "US" else "kg")
+    if unit not in ("kg", "lb"):
+        raise InputError("--unit", unit, "is not one of kg, lb")
+    return {
+        "code": code,
+        "name": name.strip(),
+        "country": country,
+        "subdivision": subdivision,
+        "timezone": zone,
+        "regimes": ",".join(chosen),
+        "leak_rate_method": method,
+        "mass_unit": unit,
+    }
+
+
+def add_site(db: Database, **fields: Any) -> Site:
+    """Add a site (fields as ``site_values``); a duplicate code is a Conflict."""
+    values = site_values(**fields)
+    with db.write() as conn:
+        repo.insert_site(conn=conn, values=values)
+        return repo.get_site(str(values["code"]), conn=conn)
+
+
+def add_system(
+    db: Database,
+    *,
+    site_code: str,
+    tag: str,
+    refrigerant: str,
+    charge_mg: int,
+    application: str,
+    in_service_on: date,
+    hermetic: bool = False,
+    residential: bool = False,
+    detection_system: bool = False,
+    equipment_form: str = "other",
+    description: str = "",
+    location: str = "",
+    maker: str = "",
+    model: str = "",
+    serial: str = "",
+    technician: str | None = None,
+    recorded_by: str | None = None,
+    note: str = "",
+) -> Logged:
+    """Add a system and its placed-in-service event (plus detection-on when it has one)."""
+    ref = load_reference().lookup(refrigerant)
+    app = _enum(Application, application, "--application")
+    form = _enum(EquipmentForm, equipment_form, "--form")
+    with db.write() as conn:
+        the_site = repo.get_site(site_code, conn=conn)
+        today = site_today(the_site.timezone)
+        if in_service_on > today:
+            raise InputError("--in-service", in_service_on.isoformat(), f"is in the future (today is {today})")
+        tech_id, cert_id, warnings = _technician_for(technician, in_service_on, conn=conn)
+        system_id = repo.insert_system(
+            conn=conn,
+            site_id=the_site.id,
+            values={
+                "tag": tag,
+                "description": description,
+                "application": app.value,
+                "equipment_form": form.value,
+                "hermetic": hermetic,
+                "residential": residential,
+                "location": location,
+                "maker": maker,
+                "model": model,
+                "serial": serial,
+            },
+        )
+        common = {
+            "system_id": system_id,
+            "performed_on": in_service_on,
+            "technician_id": tech_id,
+            "certificate_id": cert_id,
+            "recorded_by": recorded_by,
+        }
+        event_id, head = repo.append_event(
+            conn=conn,
+            values={
+                **common,
+                "kind": EventKind.IN_SERVICE.value,
+                "refrigerant": ref.designation,
+                "charge_mg": charge_mg,
+                "note": note,
+            },
+        )
+        if detection_system:
+            event_id, head = repo.append_event(
+                conn=conn, values={**common, "kind": EventKind.DETECTION_ON.value}
+            )
+    return Logged(event_id, head, tuple(warnings), site_code, tag)
+
+
+def set_system(db: Database, *, site_code: str, tag: str, defrost_every_hours: float | None) -> System:
+    """Record static facts about a system that are not events (e.g. its defrost interval)."""
+    from sqlalchemy import update
+
+    from ledger.store.tables import system as system_table
+
+    if defrost_every_hours is not None and not (0 < defrost_every_hours <= 24 * 7):
+        raise InputError("--defrost-every", defrost_every_hours, "must be between 0 and 168 hours")
+    with db.write() as conn:
+        _, sys_ = repo.get_system(site_code, tag, conn=conn)
+        conn.execute(
+            update(system_table)
+            .where(system_table.c.id == sys_.id)
+            .values(defrost_every_hours=defrost_every_hours)
+        )
+        return replace(sys_, defrost_every_hours=defrost_every_hours)
+
+
+# ---- people and cylinders -----------------------------------------------------------------
+
+def add_technician(
+    db: Database,
+    *,
+    name: str,
+    certificate: str,
+    scheme: str,
+    category: str = "",
+    valid_from: date | None = None,
+    valid_to: date | None = None,
+    company: str | None = None,
+) -> None:
+    """Add a technician with one certificate."""
+    if not name.strip():
+        raise InputError("NAME", name, "must not be empty")
+    if valid_from and valid_to and valid_to < valid_from:
+        raise InputError("--valid-to", valid_to.isoformat(), "is before --valid-from")
+    cert = Certificate(scheme.strip(), certificate.strip(), category.strip(), valid_from, valid_to)
+    with db.write() as conn:
+        repo.insert_technician(conn=conn, name=name.strip(), company_name=company, certificates=[cert])
+
+
+def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_mg: int | None) -> None:
+    """Add a refrigerant cylinder."""
+    ref = load_reference().lookup(refrigerant)
+    the_kind = _enum(CylinderKind, kind, "--kind")
+    with db.write() as conn:
+        repo.insert_cylinder(
+            conn=conn,
+            values={"code": code, "refrigerant": ref.designation, "kind": the_kind.value, "tare_mg": tare_mg},
+        )
+
+
+# ---- events -------------------------------------------------------------------------------
+
+def attachment_digest(path: Path) -> str:
+    """SHA-256 of a service report file, so the logbook can prove which document it was."""
+    try:
+        return hashlib.sha256(path.read_bytes()).hexdigest()
+    except OSError as exc:
+        raise InputError("--attach", str(path), f"cannot be read ({exc.strerror})") from None
+
+
+def _technician_for(name: str | None, on: date, *, conn) -> tuple[int | None, int | None, list[Finding]]:  # type: ignore[no-untyped-def]
+    from ledger.domain.drafts import certificate_findings
+
+    if not name:
+        return None, None, []
+    tech, cert_ids = repo.get_technician(name, conn=conn)
+    valid = [c for c in tech.certificates if c.valid_on(on)]
+    cert_id = cert_ids[valid[0].number] if valid else None
+    return tech.id, cert_id, certificate_findings(tech, on)
+
+
+def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> Logged:
+    """Validate an event against the system's state and append it.
+
+    Raises:
+        InputError: the first error finding; nothing is written.
+        NotFound: unknown site, system, technician or cylinder.
+    """
+    reference = load_reference()
+    mass_mg, weight_findings = cylinder_mass_mg(draft)
+    _raise_first_error(weight_findings)
+    draft = replace(draft, mass_mg=mass_mg)
+    if draft.kind in (EventKind.RETROFIT,) and draft.refrigerant:
+        draft = replace(draft, refrigerant=reference.lookup(draft.refrigerant).designation)
+    with db.write() as conn:
+        the_site, sys_ = repo.get_system(site_code, tag, conn=conn)
+        events = repo.load_events([sys_.id], conn=conn).get(sys_.id, ())
+        state = state_of(events, draft.performed_on)
+        cylinder = cyl_id = None
+        cylinder_matches = None
+        if draft.cylinder_code:
+            cyl_id, cylinder = repo.get_cylinder(draft.cylinder_code, conn=conn)
+            cylinder_matches = cylinder.refrigerant == state.refrigerant
+        same = None
+        if draft.refrigerant and draft.kind in (EventKind.ADD, EventKind.RECOVER):
+            same = reference.lookup(draft.refrigerant).designation == state.refrigerant
+        tech = None
+        if draft.technician:
+            tech, _ = repo.get_technician(draft.technician, conn=conn)
+        findings = validate_event(
+            draft,
+            state,
+            today=site_today(the_site.timezone),
+            same_refrigerant=same,
+            cylinder=cylinder,
+            cylinder_matches=cylinder_matches,
+            technician=tech,
+            placed_on=placed_on(events),
+        )
+        _raise_first_error(findings)
+        tech_id, cert_id, _ = _technician_for(draft.technician, draft.performed_on, conn=conn)
+        values = {
+            "system_id": sys_.id,
+            "kind": draft.kind.value,
+            "performed_on": draft.performed_on,
+            "mass_mg": draft.mass_mg,
+            "refrigerant": draft.refrigerant if draft.kind is EventKind.RETROFIT else None,
+            "charge_mg": draft.charge_mg,
+            "result": draft.result,
+            "location": draft.location,
+            "method": draft.method,
+            "destination": draft.destination,
+            "cylinder_id": cyl_id,
+            "cylinder_before_mg": draft.cylinder_before_mg,
+            "cylinder_after_mg": draft.cylinder_after_mg,
+            "technician_id": tech_id,
+            "certificate_id": cert_id,
+            "recorded_by": draft.recorded_by,
+            "note": draft.note,
+            "attachments": " ".join(draft.attachments),
+            "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
+        }
+        event_id, head = repo.append_event(conn=conn, values=values)
+    warnings = tuple(f for f in findings if f.severity is Severity.WARNING)
+    return Logged(event_id, head, warnings, site_code, tag)
+
+
+def placed_on(events: Sequence[Event]) -> date | None:
+    """The day a system was placed in service, from its whole history."""
+    return min((e.performed_on for e in events if e.kind is EventKind.IN_SERVICE), default=None)
+
+
+def void_event(db: Database, *, event_id: int, reason: str, recorded_by: str | None = None) -> Logged:
+    """Void an earlier event (it stays in the ledger, marked, with the reason)."""
+    if not reason.strip():
+        raise InputError("--reason", reason, "must say why the event is voided")
+    with db.write() as conn:
+        system_id, kind, ref = repo.event_system(event_id, conn=conn)
+        events = repo.load_events([system_id], conn=conn)[system_id]
+        if kind == EventKind.VOID.value:
+            raise Conflict(f"event: {event_id} is itself a void; void cannot be voided")
+        if kind == EventKind.IN_SERVICE.value:
+            raise Conflict(f"event: {event_id} places the system in service and cannot be voided")
+        if any(e.voids_id == event_id for e in events):
+            raise Conflict(f"event: {event_id} is already voided")
+        target = next(e for e in events if e.id == event_id)
+        new_id, head = repo.append_event(
+            conn=conn,
+            values={
+                "system_id": system_id,
+                "kind": EventKind.VOID.value,
+                "performed_on": target.performed_on,
+                "voids_id": event_id,
+                "reason": reason.strip(),
+                "recorded_by": recorded_by,
+            },
+        )
+    site_code, _, tag = ref.partition("/")
+    return Logged(new_id, head, (), site_code, tag)
