@@ -94,7 +94,9 @@ def _fresh_location(backend: str, tmp_path: Path, sqlite_template: Path, pg_temp
 
 
 @pytest.fixture(params=BACKENDS)
-def location(request: pytest.FixtureRequest, tmp_path: Path, sqlite_template: Path, pg_template: str | None) -> Iterator[Location]:
+def location(
+    request: pytest.FixtureRequest, tmp_path: Path, sqlite_template: Path, pg_template: str | None
+) -> Iterator[Location]:
     """A migrated, empty ledger on each backend."""
     yield from _fresh_location(request.param, tmp_path, sqlite_template, pg_template)
 

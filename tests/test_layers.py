@@ -9,8 +9,13 @@ import pytest
 
 PACKAGE = Path(__file__).resolve().parents[1] / "ledger"
 PURE = sorted(
-    [*(PACKAGE / "domain").glob("*.py"), *(PACKAGE / "rules").glob("*.py"),
-     *(PACKAGE / "reference").glob("*.py"), PACKAGE / "units.py", PACKAGE / "inputs.py"]
+    [
+        *(PACKAGE / "domain").glob("*.py"),
+        *(PACKAGE / "rules").glob("*.py"),
+        *(PACKAGE / "reference").glob("*.py"),
+        PACKAGE / "units.py",
+        PACKAGE / "inputs.py",
+    ]
 )
 FORBIDDEN_IMPORTS = ("sqlalchemy", "sqlmodel", "ledger.store", "ledger.services", "ledger.cli", "alembic")
 CLOCK_CALLS = ("today", "now", "utcnow", "time")

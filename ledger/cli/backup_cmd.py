@@ -25,8 +25,10 @@ def export(folder: Annotated[Path, typer.Argument(metavar="DIR", help="Empty or 
 
     result = export_ledger(context.open_db(), folder)
     total = sum(result.counts.values())
-    typer.echo(f"exported {total} rows ({result.counts.get('event', 0)} events) to {folder}; "
-               f"chain heads digest {result.heads_digest}")
+    typer.echo(
+        f"exported {total} rows ({result.counts.get('event', 0)} events) to {folder}; "
+        f"chain heads digest {result.heads_digest}"
+    )
 
 
 def restore(

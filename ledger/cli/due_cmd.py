@@ -19,12 +19,17 @@ def register(app: typer.Typer) -> None:
 
 def due(
     as_of: Annotated[str | None, typer.Option("--as-of", help="Day to evaluate (default: today, UTC).")] = None,
-    within: Annotated[int | None, typer.Option("--within", help="Only what falls due within DAYS (overdue always shown).", metavar="DAYS")] = None,
+    within: Annotated[
+        int | None,
+        typer.Option("--within", help="Only what falls due within DAYS (overdue always shown).", metavar="DAYS"),
+    ] = None,
     site: Annotated[str | None, typer.Option("--site", help="Only this site.")] = None,
     overdue: Annotated[bool, typer.Option("--overdue", help="Only overdue obligations.")] = False,
     json_out: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
     csv_file: Annotated[Path | None, typer.Option("--csv", help="Write CSV to FILE.", metavar="FILE")] = None,
-    xlsx_file: Annotated[Path | None, typer.Option("--xlsx", help="Write a spreadsheet to FILE.", metavar="FILE")] = None,
+    xlsx_file: Annotated[
+        Path | None, typer.Option("--xlsx", help="Write a spreadsheet to FILE.", metavar="FILE")
+    ] = None,
     pdf_file: Annotated[Path | None, typer.Option("--pdf", help="Write a PDF to FILE.", metavar="FILE")] = None,
 ) -> None:
     """List open and overdue obligations across the estate, earliest first.
@@ -44,8 +49,11 @@ def due(
     if csv_file or xlsx_file or pdf_file:
         from ledger.exports import due as due_export
 
-        for path, writer in ((csv_file, due_export.write_due_csv), (xlsx_file, due_export.write_due_xlsx),
-                             (pdf_file, due_export.write_due_pdf)):
+        for path, writer in (
+            (csv_file, due_export.write_due_csv),
+            (xlsx_file, due_export.write_due_xlsx),
+            (pdf_file, due_export.write_due_pdf),
+        ):
             if path is not None:
                 if writer is due_export.write_due_csv:
                     writer(path, listing.rows)
@@ -62,11 +70,24 @@ def due(
     else:
         table(
             ["due", "earliest", "status", "kind", "system", "regime", "basis", "what"],
-            [[r["due_on"], r["earliest_on"] or "", r["status"], r["kind"],
-              f"{r['site']}/{r['system'] or '(facility)'}", r["regime"], r["basis"],
-              r["detail"] + (f" (earlier periods without a record: {r['earlier_periods_missed']})"
-                             if r.get("earlier_periods_missed") else "")]
-             for r in listing.rows],
+            [
+                [
+                    r["due_on"],
+                    r["earliest_on"] or "",
+                    r["status"],
+                    r["kind"],
+                    f"{r['site']}/{r['system'] or '(facility)'}",
+                    r["regime"],
+                    r["basis"],
+                    r["detail"]
+                    + (
+                        f" (earlier periods without a record: {r['earlier_periods_missed']})"
+                        if r.get("earlier_periods_missed")
+                        else ""
+                    ),
+                ]
+                for r in listing.rows
+            ],
             title=f"Due as of {day}",
         )
     typer.echo(LOCAL_RULES_NOTE)
@@ -74,7 +95,9 @@ def due(
 
 def leak_rate(
     ref: Annotated[str, typer.Argument(metavar="SITE/TAG", help="The system, as SITE/TAG.")],
-    method: Annotated[str | None, typer.Option("--method", help="annualizing or rolling (default: the site's).")] = None,
+    method: Annotated[
+        str | None, typer.Option("--method", help="annualizing or rolling (default: the site's).")
+    ] = None,
     as_of: Annotated[str | None, typer.Option("--as-of", help="Day to evaluate (default: today).")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
 ) -> None:
@@ -94,15 +117,25 @@ def leak_rate(
     if json_out:
         print_json(view)
         return
-    typer.echo(f"{site_code}/{tag}: method {view['method']}, threshold {view['threshold_percent']} % "
-               f"({view['application']})")
+    typer.echo(
+        f"{site_code}/{tag}: method {view['method']}, threshold {view['threshold_percent']} % ({view['application']})"
+    )
     if not view["rows"]:
         typer.echo("no additions recorded")
         return
     table(
         ["added on", "kg", "annualizing %", "rolling %", "rate used %", "exceeded"],
-        [[r["on"], r["added_kg"], r["annualizing_percent"], r["rolling_percent"], r["percent"],
-          "yes" if r["exceeded"] else ""] for r in view["rows"]],
+        [
+            [
+                r["on"],
+                r["added_kg"],
+                r["annualizing_percent"],
+                r["rolling_percent"],
+                r["percent"],
+                "yes" if r["exceeded"] else "",
+            ]
+            for r in view["rows"]
+        ],
     )
 
 
@@ -123,5 +156,7 @@ def rules(
         return
     for r in view:
         typer.echo(f"\n{r['code']}: {r['title']} (version {r['version']}, GWP basis {r['gwp_basis']})")
-        table(["constant", "value", "unit", "basis", "confidence"],
-              [[c["name"], c["value"], c["unit"], c["citation"], c["confidence"]] for c in r["constants"]])
+        table(
+            ["constant", "value", "unit", "basis", "confidence"],
+            [[c["name"], c["value"], c["unit"], c["citation"], c["confidence"]] for c in r["constants"]],
+        )

@@ -17,10 +17,16 @@ def register(app: typer.Typer) -> None:
 
 
 def import_(
-    files: Annotated[list[Path] | None, typer.Argument(help="CSV files named sites/technicians/cylinders/systems/events.csv, or .xlsx workbooks.")] = None,
+    files: Annotated[
+        list[Path] | None,
+        typer.Argument(help="CSV files named sites/technicians/cylinders/systems/events.csv, or .xlsx workbooks."),
+    ] = None,
     dry_run: Annotated[bool, typer.Option("--dry-run", help="Check everything, write nothing.")] = False,
     dayfirst: Annotated[bool, typer.Option("--dayfirst", help="Accept DD/MM/YYYY dates.")] = False,
-    template: Annotated[Path | None, typer.Option("--template", help="Write a blank XLSX template with an example row per sheet, then stop.")] = None,
+    template: Annotated[
+        Path | None,
+        typer.Option("--template", help="Write a blank XLSX template with an example row per sheet, then stop."),
+    ] = None,
 ) -> None:
     """Import records; all or nothing, and rows already in the ledger are skipped.
 
@@ -45,7 +51,9 @@ def import_(
     verb = "would add" if dry_run else "added"
     parts = [f"{n} {k}" for k, n in summary.added.items() if n]
     skipped = [f"{n} {k}" for k, n in summary.skipped.items() if n]
-    typer.echo(f"{verb}: {', '.join(parts) or 'nothing'}" + (f"; already present: {', '.join(skipped)}" if skipped else ""))
+    typer.echo(
+        f"{verb}: {', '.join(parts) or 'nothing'}" + (f"; already present: {', '.join(skipped)}" if skipped else "")
+    )
 
 
 def _run(files: list[Path], *, dry_run: bool, dayfirst: bool):  # type: ignore[no-untyped-def]

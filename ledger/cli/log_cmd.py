@@ -36,8 +36,9 @@ def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | No
     return parse_mass_mg(text, field=field, allow_zero=allow_zero) if text is not None else None
 
 
-def _log(kind: str, ref: str, on: str, tech: str | None, note: str, by: str | None,
-         attach: list[Path] | None, **fields: Any) -> None:
+def _log(
+    kind: str, ref: str, on: str, tech: str | None, note: str, by: str | None, attach: list[Path] | None, **fields: Any
+) -> None:
     from ledger.cli.render import warn
     from ledger.domain.drafts import EventDraft
     from ledger.domain.records import EventKind
@@ -70,40 +71,89 @@ def _print_next(site_code: str, tag: str) -> None:
 
 
 @app.command("add")
-def add(ref: Ref, on: On, mass: Mass = None, cylinder: Cylinder = None, before: Before = None,
-        after: After = None,
-        refrigerant: Annotated[str | None, typer.Option("--refrigerant", help="Assert the gas added.")] = None,
-        reclaimed: Annotated[bool, typer.Option("--reclaimed", help="Recycled or reclaimed gas.")] = False,
-        tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def add(
+    ref: Ref,
+    on: On,
+    mass: Mass = None,
+    cylinder: Cylinder = None,
+    before: Before = None,
+    after: After = None,
+    refrigerant: Annotated[str | None, typer.Option("--refrigerant", help="Assert the gas added.")] = None,
+    reclaimed: Annotated[bool, typer.Option("--reclaimed", help="Recycled or reclaimed gas.")] = False,
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Refrigerant added: by --mass, or by cylinder weights --before/--after.
 
     Example: refledger log add DE-HAM/RACK-1 --on 2025-03-14 --mass 2.5kg --tech "Ada Novak"
     """
-    _log("add", ref, on, tech, note, by, attach, mass_mg=_mass(mass, "--mass"),
-         cylinder_code=cylinder, cylinder_before_mg=_mass(before, "--before"),
-         cylinder_after_mg=_mass(after, "--after"), refrigerant=refrigerant, reclaimed=reclaimed)
+    _log(
+        "add",
+        ref,
+        on,
+        tech,
+        note,
+        by,
+        attach,
+        mass_mg=_mass(mass, "--mass"),
+        cylinder_code=cylinder,
+        cylinder_before_mg=_mass(before, "--before"),
+        cylinder_after_mg=_mass(after, "--after"),
+        refrigerant=refrigerant,
+        reclaimed=reclaimed,
+    )
 
 
 @app.command("recover")
-def recover(ref: Ref, on: On, mass: Mass = None, cylinder: Cylinder = None, before: Before = None,
-            after: After = None,
-            destination: Annotated[str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")] = None,
-            tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def recover(
+    ref: Ref,
+    on: On,
+    mass: Mass = None,
+    cylinder: Cylinder = None,
+    before: Before = None,
+    after: After = None,
+    destination: Annotated[
+        str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")
+    ] = None,
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Refrigerant recovered from a system that stays in service.
 
     Example: refledger log recover DE-HAM/RACK-1 --on 2025-03-14 --mass 4kg --destination reclaim
     """
-    _log("recover", ref, on, tech, note, by, attach, mass_mg=_mass(mass, "--mass"),
-         cylinder_code=cylinder, cylinder_before_mg=_mass(before, "--before"),
-         cylinder_after_mg=_mass(after, "--after"), destination=destination)
+    _log(
+        "recover",
+        ref,
+        on,
+        tech,
+        note,
+        by,
+        attach,
+        mass_mg=_mass(mass, "--mass"),
+        cylinder_code=cylinder,
+        cylinder_before_mg=_mass(before, "--before"),
+        cylinder_after_mg=_mass(after, "--after"),
+        destination=destination,
+    )
 
 
 @app.command("check")
-def check(ref: Ref, on: On,
-          result: Annotated[str, typer.Option("--result", help="no-leak or leak-found.")],
-          where: Annotated[str | None, typer.Option("--where", help="Where the leak is.")] = None,
-          method: Annotated[str | None, typer.Option("--method", help="How it was checked.")] = None,
-          tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def check(
+    ref: Ref,
+    on: On,
+    result: Annotated[str, typer.Option("--result", help="no-leak or leak-found.")],
+    where: Annotated[str | None, typer.Option("--where", help="Where the leak is.")] = None,
+    method: Annotated[str | None, typer.Option("--method", help="How it was checked.")] = None,
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Leak check and its result.
 
     Example: refledger log check DE-HAM/RACK-1 --on 2025-03-14 --result leak-found --where "LT suction header"
@@ -112,9 +162,15 @@ def check(ref: Ref, on: On,
 
 
 @app.command("repair")
-def repair(ref: Ref, on: On,
-           where: Annotated[str | None, typer.Option("--where", help="What was repaired.")] = None,
-           tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def repair(
+    ref: Ref,
+    on: On,
+    where: Annotated[str | None, typer.Option("--where", help="What was repaired.")] = None,
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Leak repaired.
 
     Example: refledger log repair DE-HAM/RACK-1 --on 2025-03-15 --where "flare nut re-made"
@@ -123,10 +179,16 @@ def repair(ref: Ref, on: On,
 
 
 @app.command("follow-up")
-def follow_up(ref: Ref, on: On,
-              result: Annotated[str, typer.Option("--result", help="pass or fail.")],
-              method: Annotated[str | None, typer.Option("--method", help="How it was checked.")] = None,
-              tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def follow_up(
+    ref: Ref,
+    on: On,
+    result: Annotated[str, typer.Option("--result", help="pass or fail.")],
+    method: Annotated[str | None, typer.Option("--method", help="How it was checked.")] = None,
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Follow-up check (or verification test) after a repair.
 
     Example: refledger log follow-up DE-HAM/RACK-1 --on 2025-03-20 --result pass
@@ -135,8 +197,7 @@ def follow_up(ref: Ref, on: On,
 
 
 @app.command("detection-on")
-def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None,
-                 attach: Attach = None) -> None:
+def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
     """Leak detection system installed.
 
     Example: refledger log detection-on DE-HAM/RACK-1 --on 2025-01-10
@@ -145,8 +206,7 @@ def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = 
 
 
 @app.command("detection-off")
-def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None,
-                  attach: Attach = None) -> None:
+def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
     """Leak detection system removed or out of use.
 
     Example: refledger log detection-off DE-HAM/RACK-1 --on 2025-01-10
@@ -155,8 +215,7 @@ def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By =
 
 
 @app.command("detection-check")
-def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None,
-                    attach: Attach = None) -> None:
+def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
     """Leak detection system checked.
 
     Example: refledger log detection-check DE-HAM/RACK-1 --on 2025-06-01
@@ -165,9 +224,15 @@ def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By
 
 
 @app.command("charge")
-def charge(ref: Ref, on: On,
-           charge_: Annotated[str, typer.Option("--charge", help="The revised full charge.")],
-           tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def charge(
+    ref: Ref,
+    on: On,
+    charge_: Annotated[str, typer.Option("--charge", help="The revised full charge.")],
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Full charge revised (re-determined by measurement, calculation or maker's data).
 
     Example: refledger log charge DE-HAM/RACK-1 --on 2025-02-01 --charge 310kg --note "by calculation"
@@ -176,37 +241,61 @@ def charge(ref: Ref, on: On,
 
 
 @app.command("retrofit")
-def retrofit(ref: Ref, on: On,
-             refrigerant: Annotated[str, typer.Option("--refrigerant", help="The new refrigerant.")],
-             charge_: Annotated[str, typer.Option("--charge", help="The new full charge.")],
-             tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def retrofit(
+    ref: Ref,
+    on: On,
+    refrigerant: Annotated[str, typer.Option("--refrigerant", help="The new refrigerant.")],
+    charge_: Annotated[str, typer.Option("--charge", help="The new full charge.")],
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Retrofit to another refrigerant and charge.
 
     Example: refledger log retrofit DE-HAM/RACK-1 --on 2025-05-01 --refrigerant R-448A --charge 280kg
     """
-    _log("retrofit", ref, on, tech, note, by, attach, refrigerant=refrigerant,
-         charge_mg=_mass(charge_, "--charge"))
+    _log("retrofit", ref, on, tech, note, by, attach, refrigerant=refrigerant, charge_mg=_mass(charge_, "--charge"))
 
 
 @app.command("retire")
-def retire(ref: Ref, on: On,
-           recovered: Annotated[str, typer.Option("--recovered", help="Mass recovered (0 kg allowed).")],
-           destination: Annotated[str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")] = None,
-           cylinder: Cylinder = None,
-           tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def retire(
+    ref: Ref,
+    on: On,
+    recovered: Annotated[str, typer.Option("--recovered", help="Mass recovered (0 kg allowed).")],
+    destination: Annotated[
+        str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")
+    ] = None,
+    cylinder: Cylinder = None,
+    tech: Tech = None,
+    note: Note = "",
+    by: By = None,
+    attach: Attach = None,
+) -> None:
     """Taken out of service, with the refrigerant recovered and where it went.
 
     Example: refledger log retire DE-HAM/CAB-7 --on 2025-09-30 --recovered 1.2kg --destination reclaim
     """
-    _log("retire", ref, on, tech, note, by, attach,
-         mass_mg=_mass(recovered, "--recovered", allow_zero=True), destination=destination,
-         cylinder_code=cylinder)
+    _log(
+        "retire",
+        ref,
+        on,
+        tech,
+        note,
+        by,
+        attach,
+        mass_mg=_mass(recovered, "--recovered", allow_zero=True),
+        destination=destination,
+        cylinder_code=cylinder,
+    )
 
 
 @app.command("void")
-def void(event_id: Annotated[int, typer.Argument(help="Id of the event to void.")],
-         reason: Annotated[str, typer.Option("--reason", help="Why it is wrong.")],
-         by: By = None) -> None:
+def void(
+    event_id: Annotated[int, typer.Argument(help="Id of the event to void.")],
+    reason: Annotated[str, typer.Option("--reason", help="Why it is wrong.")],
+    by: By = None,
+) -> None:
     """Void an earlier event; it stays in the ledger, marked, with the reason.
 
     Record the corrected event afterwards with the matching `log` command.

@@ -53,6 +53,7 @@ def _register() -> None:
         backup_cmd,
         db_cmd,
         demo_cmd,
+        detector_cmd,
         due_cmd,
         import_cmd,
         log_cmd,
@@ -70,6 +71,7 @@ def _register() -> None:
     app.add_typer(log_cmd.app, name="log")
     due_cmd.register(app)
     app.add_typer(refrigerant_cmd.app, name="refrigerant")
+    app.add_typer(detector_cmd.app, name="detector")
     verify_cmd.register(app)
     import_cmd.register(app)
     backup_cmd.register(app)

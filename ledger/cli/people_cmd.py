@@ -58,9 +58,11 @@ def tech_list(json_out: Annotated[bool, typer.Option("--json", help="Print JSON.
     table(
         ["name", "company", "certificates"],
         [
-            [r["name"], r["company"], "; ".join(
-                f"{c['scheme']} {c['number']} (to {c['valid_to'] or 'open'})" for c in r["certificates"]
-            )]
+            [
+                r["name"],
+                r["company"],
+                "; ".join(f"{c['scheme']} {c['number']} (to {c['valid_to'] or 'open'})" for c in r["certificates"]),
+            ]
             for r in rows
         ],
     )
@@ -104,4 +106,6 @@ def cylinder_list(json_out: Annotated[bool, typer.Option("--json", help="Print J
     if json_out:
         print_json(rows)
         return
-    table(["id", "refrigerant", "kind", "tare_kg"], [[r["id"], r["refrigerant"], r["kind"], r["tare_kg"]] for r in rows])
+    table(
+        ["id", "refrigerant", "kind", "tare_kg"], [[r["id"], r["refrigerant"], r["kind"], r["tare_kg"]] for r in rows]
+    )

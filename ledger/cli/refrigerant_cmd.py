@@ -32,7 +32,7 @@ def show(
     for c in view["components"]:
         typer.echo(f"  {c['designation']:<14} {c['mass_percent']} %")
     rows = []
-    for basis, value in view["gwp"].items():
+    for basis in view["gwp"]:
         row = [basis, str(view["gwp_rounded"][basis])]
         if charge_mg is not None:
             row.append(view["co2e_display"][basis])

@@ -16,16 +16,12 @@ def add(
     code: Annotated[str, typer.Argument(help="Short site code, unique in the ledger.")],
     name: Annotated[str, typer.Option("--name", help="Site name.")],
     country: Annotated[str, typer.Option("--country", help="ISO 3166-1 alpha-2 code, e.g. DE, GB, US.")],
-    subdivision: Annotated[
-        str | None, typer.Option("--subdivision", help="ISO 3166-2 code, e.g. US-CA.")
-    ] = None,
+    subdivision: Annotated[str | None, typer.Option("--subdivision", help="ISO 3166-2 code, e.g. US-CA.")] = None,
     regime: Annotated[
         list[str] | None,
         typer.Option("--regime", help="Regime code (repeatable); default from country/subdivision."),
     ] = None,
-    timezone: Annotated[
-        str | None, typer.Option("--timezone", help="IANA zone; default from country.")
-    ] = None,
+    timezone: Annotated[str | None, typer.Option("--timezone", help="IANA zone; default from country.")] = None,
     leak_rate_method: Annotated[
         str | None,
         typer.Option("--leak-rate-method", help="US sites: annualizing (default) or rolling."),
@@ -72,8 +68,7 @@ def list_(
     table(
         ["code", "name", "country", "subdivision", "timezone", "regimes", "systems"],
         [
-            [r["code"], r["name"], r["country"], r["subdivision"], r["timezone"],
-             ", ".join(r["regimes"]), r["systems"]]
+            [r["code"], r["name"], r["country"], r["subdivision"], r["timezone"], ", ".join(r["regimes"]), r["systems"]]
             for r in rows
         ],
     )

@@ -22,8 +22,7 @@ def add(
         str,
         typer.Option(
             "--application",
-            help="commercial-refrigeration, industrial-process, comfort-cooling, "
-            "transport-refrigeration or other.",
+            help="commercial-refrigeration, industrial-process, comfort-cooling, transport-refrigeration or other.",
         ),
     ],
     in_service: Annotated[str, typer.Option("--in-service", help="Day placed in service, YYYY-MM-DD.")],
@@ -45,7 +44,8 @@ def add(
 ) -> None:
     """Add a system and record it as placed in service.
 
-    Example: refledger system add DE-HAM/RACK-1 --refrigerant R-448A --charge 120kg --application commercial-refrigeration --in-service 2022-04-01
+    Example: refledger system add DE-HAM/RACK-1 --refrigerant R-448A --charge 120kg
+    --application commercial-refrigeration --in-service 2022-04-01
     """
     from ledger.inputs import parse_code, parse_day, parse_system_ref
     from ledger.services.recording import add_system
@@ -94,8 +94,14 @@ def list_(
     table(
         ["system", "application", "refrigerant", "charge", "t CO2e", "in service"],
         [
-            [f"{r['site']}/{r['tag']}", r["application"], r["refrigerant"], r["charge"],
-             r["co2e_t_display"], "yes" if r["in_service"] else "retired"]
+            [
+                f"{r['site']}/{r['tag']}",
+                r["application"],
+                r["refrigerant"],
+                r["charge"],
+                r["co2e_t_display"],
+                "yes" if r["in_service"] else "retired",
+            ]
             for r in rows
         ],
     )

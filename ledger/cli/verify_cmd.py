@@ -28,12 +28,19 @@ def verify(
 
     result = run_verify(context.open_db(), site_code=site)
     if json_out:
-        print_json({
-            "ok": result.ok, "systems": result.systems, "events": result.events,
-            "heads_digest": result.digest, "heads": result.heads,
-            "breaks": [{"site": b.site, "system": b.system, "event": b.event_id, "what": b.what,
-                        "detail": b.detail} for b in result.breaks],
-        })
+        print_json(
+            {
+                "ok": result.ok,
+                "systems": result.systems,
+                "events": result.events,
+                "heads_digest": result.digest,
+                "heads": result.heads,
+                "breaks": [
+                    {"site": b.site, "system": b.system, "event": b.event_id, "what": b.what, "detail": b.detail}
+                    for b in result.breaks
+                ],
+            }
+        )
     else:
         for b in result.breaks:
             typer.echo(f"BROKEN {b.site}/{b.system}: event {b.event_id} {b.what}: {b.detail}", err=True)

@@ -37,26 +37,40 @@ def print_system(view: dict[str, Any]) -> None:
     if pending:
         table(
             ["due", "earliest", "kind", "status", "regime", "basis", "detail"],
-            [[o["due_on"], o["earliest_on"], o["kind"], o["status"], o["regime"], o["basis"], o["detail"]]
-             for o in pending],
+            [
+                [o["due_on"], o["earliest_on"], o["kind"], o["status"], o["regime"], o["basis"], o["detail"]]
+                for o in pending
+            ],
             title="Open and overdue obligations",
         )
     if view["leak_rates"]:
         table(
             ["added on", "kg", "annualizing %", "rolling %", "threshold %", "exceeded"],
-            [[r["on"], _num(r["added_kg"]), _num(r["annualizing_percent"]), _num(r["rolling_percent"]),
-              _num(r["threshold_percent"], 0), "yes" if r["exceeded"] else ""] for r in view["leak_rates"]],
+            [
+                [
+                    r["on"],
+                    _num(r["added_kg"]),
+                    _num(r["annualizing_percent"]),
+                    _num(r["rolling_percent"]),
+                    _num(r["threshold_percent"], 0),
+                    "yes" if r["exceeded"] else "",
+                ]
+                for r in view["leak_rates"]
+            ],
             title="Leak rate at each addition",
         )
     table(
         ["id", "on", "kind", "kg", "result", "by", "certificate", "note"],
         [
             [
-                e["id"], e["performed_on"],
+                e["id"],
+                e["performed_on"],
                 e["kind"] + (f" (voided by {e['voided_by']}: {e['void_reason']})" if e["voided_by"] else ""),
                 _num(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"]),
                 e["result"] or e["location"] or (f"voids {e['voids']}: {e['reason']}" if e["voids"] else ""),
-                e["technician"], e["certificate"], e["note"],
+                e["technician"],
+                e["certificate"],
+                e["note"],
             ]
             for e in view["events"]
         ],

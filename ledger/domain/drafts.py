@@ -111,13 +111,13 @@ def validate_event(
             found.append(error("system", "has not been placed in service"))
         elif on < placed_on:
             found.append(
-                error("--on", f"{on.isoformat()} is before the system was placed in service "
-                      f"({placed_on.isoformat()})")
+                error("--on", f"{on.isoformat()} is before the system was placed in service ({placed_on.isoformat()})")
             )
         if state.retired_on is not None and on >= state.retired_on:
             found.append(
-                error("--on", f"{on.isoformat()} is on or after the system was retired "
-                      f"({state.retired_on.isoformat()})")
+                error(
+                    "--on", f"{on.isoformat()} is on or after the system was retired ({state.retired_on.isoformat()})"
+                )
             )
     kind = draft.kind
     if kind in (EventKind.ADD, EventKind.RECOVER) and draft.mass_mg is None:
@@ -126,13 +126,13 @@ def validate_event(
         found.append(error("--recovered", "is required (0 kg if nothing could be recovered)"))
     if same_refrigerant is False:
         found.append(
-            error("--refrigerant", f"{draft.refrigerant!r} is not what the system holds "
-                  f"({state.refrigerant})")
+            error("--refrigerant", f"{draft.refrigerant!r} is not what the system holds ({state.refrigerant})")
         )
     if cylinder is not None and cylinder_matches is False:
         found.append(
-            error("--cylinder", f"{cylinder.id!r} holds {cylinder.refrigerant}, but the system "
-                  f"holds {state.refrigerant}")
+            error(
+                "--cylinder", f"{cylinder.id!r} holds {cylinder.refrigerant}, but the system holds {state.refrigerant}"
+            )
         )
     if cylinder is not None and kind not in MASS_KINDS:
         found.append(error("--cylinder", f"does not apply to a {kind.value} event"))

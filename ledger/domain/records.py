@@ -254,6 +254,7 @@ class Confidence(enum.StrEnum):
     CHECKED = "checked"  # read against the legal text or an official guidance page
     SECONDARY = "secondary"  # from trade press or an agency fact sheet, not the legal text
     MEMORY = "memory"  # from memory; to be checked against the text
+    POLICY = "policy"  # a site policy of ours, not a legal duty
 
 
 @dataclass(frozen=True, slots=True)

@@ -24,8 +24,16 @@ from ledger.store.db import HEAD_REVISION, Database, Location, upgrade
 FORMAT_VERSION = 1
 # Parents before children, so foreign keys hold while loading.
 TABLE_ORDER = (
-    "site", "company", "technician", "certificate", "cylinder", "system", "event",
-    "detector_channel", "detector_episode", "report_run",
+    "site",
+    "company",
+    "technician",
+    "certificate",
+    "cylinder",
+    "system",
+    "event",
+    "detector_channel",
+    "detector_episode",
+    "report_run",
 )
 
 
@@ -71,8 +79,15 @@ def export_ledger(db: Database, folder: Path) -> BackupResult:
             n = 0
             with path.open("w", encoding="utf-8", newline="\n") as fh:
                 for row in conn.execute(select(table).order_by(*table.primary_key.columns)).mappings():
-                    line = json.dumps({k: _plain(v) for k, v in row.items()}, ensure_ascii=False,
-                                      sort_keys=True, separators=(",", ":")) + "\n"
+                    line = (
+                        json.dumps(
+                            {k: _plain(v) for k, v in row.items()},
+                            ensure_ascii=False,
+                            sort_keys=True,
+                            separators=(",", ":"),
+                        )
+                        + "\n"
+                    )
                     fh.write(line)
                     sha.update(line.encode())
                     n += 1
@@ -144,18 +159,22 @@ def restore_ledger(folder: Path, location: Location) -> BackupResult:
                 if len(rows) != entry["rows"]:
                     raise LedgerError(f"DIR: {path.name} has {len(rows)} rows, the manifest says {entry['rows']}")
                 for start in range(0, len(rows), 5000):
-                    if rows[start:start + 5000]:
-                        conn.execute(insert(table), rows[start:start + 5000])
+                    if rows[start : start + 5000]:
+                        conn.execute(insert(table), rows[start : start + 5000])
                 counts[table.name] = len(rows)
                 if conn.dialect.name == "postgresql" and rows:
-                    conn.execute(text(
-                        f"SELECT setval(pg_get_serial_sequence('{table.name}', 'id'), "
-                        f"(SELECT MAX(id) FROM {table.name}))"
-                    ))
+                    conn.execute(
+                        text(
+                            f"SELECT setval(pg_get_serial_sequence('{table.name}', 'id'), "
+                            f"(SELECT MAX(id) FROM {table.name}))"
+                        )
+                    )
         checked = verify(db)
         if not checked.ok:
             first = checked.breaks[0]
-            raise LedgerError(f"restore: chain of {first.site}/{first.system} does not verify at event {first.event_id}")
+            raise LedgerError(
+                f"restore: chain of {first.site}/{first.system} does not verify at event {first.event_id}"
+            )
         if checked.digest != manifest["chain_heads_digest"]:
             raise LedgerError("restore: chain heads differ from the manifest's digest")
         return BackupResult(folder, counts, checked.digest)

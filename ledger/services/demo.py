@@ -60,6 +60,8 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         if summary.added["sites"] == 0 and summary.skipped["sites"]:
             raise Conflict("db: already holds these sites; use an empty database or --replace")
         as_of = DEMO_AS_OF
+        detectors = records / "detectors"
+        reviews = load_detectors(db, location, detectors) if detectors.is_dir() else []
         listing = due(db, as_of=as_of)
         result = DemoResult(location.url, as_of)
         result.sites = summary.added["sites"]
@@ -75,6 +77,54 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
             from ledger.services.samples import write_samples
 
             result.files = write_samples(db, out, as_of=as_of)
+            if reviews:
+                result.files.append(write_review_pdf(reviews[0], out))
         return result
     finally:
         db.close()
+
+
+def load_detectors(db: Database, location: Location, folder: Path) -> list:  # type: ignore[type-arg]
+    """Map the demo's detector channels, import their readings and review each channel."""
+    import csv
+
+    from ledger.services.detectors import add_channel, import_readings, review
+
+    with (folder / "channels.csv").open(encoding="utf-8") as fh:
+        channels = list(csv.DictReader(fh))
+    for row in channels:
+        site_code, _, tag = row["system"].partition("/")
+        add_channel(
+            db,
+            site_code=row["site"],
+            code=row["channel"],
+            system_site=site_code,
+            system_tag=tag,
+            levels=row["levels"],
+            night=row["night"],
+        )
+    for path in sorted(folder.glob("*-readings.csv")):
+        import_readings(db, location.readings_root, path, site_code=path.name.split("-readings")[0], tz=None)
+    return [
+        review(db, location.readings_root, site_code=row["site"], code=row["channel"], start=None, end=None)
+        for row in channels
+    ]
+
+
+def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
+    """The demo's detector review PDF for the first channel."""
+    from ledger.exports.detector_pdf import render_review_pdf
+
+    channel = result.channel
+    path = out / f"detector-review-{channel.site_code}-{channel.code}.pdf"
+    render_review_pdf(
+        path,
+        result.review,
+        result.readings,
+        title=f"Detector review {channel.site_code}/{channel.code}",
+        system_label=f"{channel.site_code}/{channel.system_tag}",
+        refrigerant=result.refrigerant,
+        molar_mass_g_mol=result.molar_mass_g_mol,
+        repairs=result.repairs,
+    )
+    return path

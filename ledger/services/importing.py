@@ -55,17 +55,42 @@ COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
     "cylinders": (frozenset({"id", "refrigerant", "kind"}), frozenset({"tare"})),
     "systems": (
         frozenset({"site", "tag", "refrigerant", "charge", "application", "in_service"}),
-        frozenset({
-            "form", "description", "hermetic", "residential", "detection_system", "location",
-            "maker", "model", "serial", "defrost_every_hours", "tech",
-        }),
+        frozenset(
+            {
+                "form",
+                "description",
+                "hermetic",
+                "residential",
+                "detection_system",
+                "location",
+                "maker",
+                "model",
+                "serial",
+                "defrost_every_hours",
+                "tech",
+            }
+        ),
     ),
     "events": (
         frozenset({"site", "tag", "kind", "on"}),
-        frozenset({
-            "mass", "cylinder", "before", "after", "refrigerant", "charge", "result", "where",
-            "method", "destination", "reclaimed", "tech", "by", "note",
-        }),
+        frozenset(
+            {
+                "mass",
+                "cylinder",
+                "before",
+                "after",
+                "refrigerant",
+                "charge",
+                "result",
+                "where",
+                "method",
+                "destination",
+                "reclaimed",
+                "tech",
+                "by",
+                "note",
+            }
+        ),
     ),
 }
 
@@ -115,6 +140,7 @@ class _Problems:
 
 # ---- reading ------------------------------------------------------------------------------
 
+
 def _kind_of(name: str) -> str | None:
     stem = name.lower().rsplit(".", 1)[0].strip()
     return stem if stem in COLUMNS else None
@@ -144,7 +170,7 @@ def _rows_from_records(label: str, records: Iterable[Sequence[Any]], problems: l
         texts = [_text(v) for v in values]
         if not any(texts):
             continue
-        if len(texts) > len(names) and any(texts[len(names):]):
+        if len(texts) > len(names) and any(texts[len(names) :]):
             problems.append(f"{label} row {number}: has more cells than the header has columns")
             continue
         cells = {n: (texts[i] if i < len(texts) else "") for i, n in enumerate(names) if n}
@@ -228,6 +254,7 @@ def _read_xlsx(path: Path, grouped: dict[str, list[Row]], problems: list[str]) -
 
 # ---- cell parsing -------------------------------------------------------------------------
 
+
 class _Cells:
     """Typed access to one row's cells; problems are recorded, not raised."""
 
@@ -277,7 +304,9 @@ class _Cells:
             self.fail(column, "is not yes or no")
         return False
 
-    def choice(self, column: str, allowed: Iterable[str], *, required: bool = False, default: str | None = None) -> str | None:
+    def choice(
+        self, column: str, allowed: Iterable[str], *, required: bool = False, default: str | None = None
+    ) -> str | None:
         value = self.text(column, required=required) or default
         options = list(allowed)
         if value is not None and value not in options:
@@ -319,8 +348,9 @@ def parse_import_day(value: str, *, dayfirst: bool) -> date | None:
 
 def content_key(kind: str, cells: dict[str, str]) -> str:
     """SHA-256 over a row's normalised cells: the same row imported twice has one key."""
-    body = json.dumps([kind, sorted((k, v.strip()) for k, v in cells.items() if v.strip())],
-                      ensure_ascii=False, separators=(",", ":"))
+    body = json.dumps(
+        [kind, sorted((k, v.strip()) for k, v in cells.items() if v.strip())], ensure_ascii=False, separators=(",", ":")
+    )
     return hashlib.sha256(body.encode()).hexdigest()
 
 
@@ -403,7 +433,9 @@ class _Job:
             seen.add(code)
             try:
                 values = site_values(
-                    code=code, name=name, country=country,
+                    code=code,
+                    name=name,
+                    country=country,
                     subdivision=c.text("subdivision") or None,
                     timezone=c.text("timezone") or None,
                     regimes=tuple(c.text("regimes").replace(",", " ").split()),
@@ -468,7 +500,9 @@ class _Job:
                 else:
                     self.summary.skipped["cylinders"] += 1
                 continue
-            repo.insert_cylinder(conn=self.conn, values={"code": code, "refrigerant": refrigerant, "kind": kind, "tare_mg": tare})
+            repo.insert_cylinder(
+                conn=self.conn, values={"code": code, "refrigerant": refrigerant, "kind": kind, "tare_mg": tare}
+            )
             known[code] = Cylinder(code, refrigerant or "", CylinderKind(kind or "virgin"), tare)
             self.summary.added["cylinders"] += 1
 
@@ -512,18 +546,33 @@ class _Job:
                 continue
             existing.add((site_code, tag))
             system_id = repo.insert_system(
-                conn=self.conn, site_id=sites[site_code].id,
+                conn=self.conn,
+                site_id=sites[site_code].id,
                 values={
-                    "tag": tag, "description": c.text("description"), "application": application,
-                    "equipment_form": form, "hermetic": flags["hermetic"], "residential": flags["residential"],
-                    "location": c.text("location"), "maker": c.text("maker"), "model": c.text("model"),
-                    "serial": c.text("serial"), "defrost_every_hours": defrost_h,
+                    "tag": tag,
+                    "description": c.text("description"),
+                    "application": application,
+                    "equipment_form": form,
+                    "hermetic": flags["hermetic"],
+                    "residential": flags["residential"],
+                    "location": c.text("location"),
+                    "maker": c.text("maker"),
+                    "model": c.text("model"),
+                    "serial": c.text("serial"),
+                    "defrost_every_hours": defrost_h,
                 },
             )
             tech_id, cert_id = self._tech_ids(techs, tech_name, in_service)
-            common = {"system_id": system_id, "performed_on": in_service, "technician_id": tech_id,
-                      "certificate_id": cert_id, "recorded_by": tech_name or None}
-            repo.append_event(conn=self.conn, values={**common, "kind": "in-service", "refrigerant": refrigerant, "charge_mg": charge})
+            common = {
+                "system_id": system_id,
+                "performed_on": in_service,
+                "technician_id": tech_id,
+                "certificate_id": cert_id,
+                "recorded_by": tech_name or None,
+            }
+            repo.append_event(
+                conn=self.conn, values={**common, "kind": "in-service", "refrigerant": refrigerant, "charge_mg": charge}
+            )
             if flags["detection_system"]:
                 repo.append_event(conn=self.conn, values={**common, "kind": "detection-on"})
             self.summary.added["systems"] += 1
@@ -532,7 +581,9 @@ class _Job:
         return {t.name: repo.get_technician(t.name, conn=self.conn) for t in repo.list_technicians(conn=self.conn)}
 
     @staticmethod
-    def _tech_ids(techs: dict[str, tuple[Technician, dict[str, int]]], name: str, on: date | None) -> tuple[int | None, int | None]:
+    def _tech_ids(
+        techs: dict[str, tuple[Technician, dict[str, int]]], name: str, on: date | None
+    ) -> tuple[int | None, int | None]:
         if not name or name not in techs or on is None:
             return None, None
         tech, cert_ids = techs[name]
@@ -553,13 +604,20 @@ class _Job:
         cylinders = {cy.id: cy for cy in repo.list_cylinders(conn=self.conn)}
         cylinder_ids = self._cylinder_ids()
         techs = self._technicians()
-        touched = {systems[k].id for k in {(r.cells.get("site", ""), r.cells.get("tag", "")) for r in rows} if k in systems}
+        touched = {
+            systems[k].id for k in {(r.cells.get("site", ""), r.cells.get("tag", "")) for r in rows} if k in systems
+        }
         history: dict[int, list[Event]] = defaultdict(list)
         for sid, evs in repo.load_events(touched, conn=self.conn).items():
             history[sid].extend(evs)
-        keys = {k for (k,) in self.conn.execute(
-            select(event_table.c.content_key).where(event_table.c.system_id.in_(touched), event_table.c.content_key.is_not(None))
-        )}
+        keys = {
+            k
+            for (k,) in self.conn.execute(
+                select(event_table.c.content_key).where(
+                    event_table.c.system_id.in_(touched), event_table.c.content_key.is_not(None)
+                )
+            )
+        }
         heads: dict[int, str] = {}
         pending: list[dict[str, Any]] = []
         total = len(rows)
@@ -583,16 +641,22 @@ class _Job:
                 continue
             kind = EventKind(kind_text)
             draft = EventDraft(
-                kind=kind, performed_on=on,
+                kind=kind,
+                performed_on=on,
                 mass_mg=c.mass("mass", allow_zero=kind is EventKind.RETIRE),
                 refrigerant=c.refrigerant("refrigerant", required=kind is EventKind.RETROFIT),
                 charge_mg=c.mass("charge", required=kind in (EventKind.RETROFIT, EventKind.CHARGE_REVISED)),
-                result=c.text("result") or None, location=c.text("where") or None,
-                method=c.text("method") or None, destination=c.text("destination") or None,
+                result=c.text("result") or None,
+                location=c.text("where") or None,
+                method=c.text("method") or None,
+                destination=c.text("destination") or None,
                 cylinder_code=c.text("cylinder") or None,
-                cylinder_before_mg=c.mass("before"), cylinder_after_mg=c.mass("after"),
-                technician=c.text("tech") or None, recorded_by=c.text("by") or c.text("tech") or None,
-                note=c.text("note"), reclaimed=c.flag("reclaimed"),
+                cylinder_before_mg=c.mass("before"),
+                cylinder_after_mg=c.mass("after"),
+                technician=c.text("tech") or None,
+                recorded_by=c.text("by") or c.text("tech") or None,
+                note=c.text("note"),
+                reclaimed=c.flag("reclaimed"),
             )
             if draft.technician and draft.technician not in techs:
                 c.fail("tech", "is not a technician in the ledger or the input")
@@ -606,8 +670,11 @@ class _Job:
             state = state_of(history[sys_.id], on)
             tech = techs[draft.technician][0] if draft.technician else None
             findings = weight_findings + validate_event(
-                draft, state, today=today_by_site[site_code],
-                same_refrigerant=None if not draft.refrigerant or kind is EventKind.RETROFIT
+                draft,
+                state,
+                today=today_by_site[site_code],
+                same_refrigerant=None
+                if not draft.refrigerant or kind is EventKind.RETROFIT
                 else draft.refrigerant == state.refrigerant,
                 cylinder=cylinder,
                 cylinder_matches=None if cylinder is None else cylinder.refrigerant == state.refrigerant,
@@ -620,26 +687,48 @@ class _Job:
                 c.fail(column, f.message.split(": ", 1)[-1])
             if errors:
                 continue
-            self.summary.warnings.extend(f"{row.source}: {f.message}" for f in findings if f.severity is Severity.WARNING)
+            self.summary.warnings.extend(
+                f"{row.source}: {f.message}" for f in findings if f.severity is Severity.WARNING
+            )
             tech_id, cert_id = self._tech_ids(techs, draft.technician or "", on)
             values = {
-                "system_id": sys_.id, "kind": kind.value, "performed_on": on, "mass_mg": draft.mass_mg,
+                "system_id": sys_.id,
+                "kind": kind.value,
+                "performed_on": on,
+                "mass_mg": draft.mass_mg,
                 "refrigerant": draft.refrigerant if kind is EventKind.RETROFIT else None,
-                "charge_mg": draft.charge_mg, "result": draft.result, "location": draft.location,
-                "method": draft.method, "destination": draft.destination,
+                "charge_mg": draft.charge_mg,
+                "result": draft.result,
+                "location": draft.location,
+                "method": draft.method,
+                "destination": draft.destination,
                 "cylinder_id": cylinder_ids.get(draft.cylinder_code or ""),
-                "cylinder_before_mg": draft.cylinder_before_mg, "cylinder_after_mg": draft.cylinder_after_mg,
-                "technician_id": tech_id, "certificate_id": cert_id, "recorded_by": draft.recorded_by,
-                "note": draft.note, "attachments": "",
+                "cylinder_before_mg": draft.cylinder_before_mg,
+                "cylinder_after_mg": draft.cylinder_after_mg,
+                "technician_id": tech_id,
+                "certificate_id": cert_id,
+                "recorded_by": draft.recorded_by,
+                "note": draft.note,
+                "attachments": "",
                 "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
-                "content_key": key, "voids_id": None, "reason": None,
+                "content_key": key,
+                "voids_id": None,
+                "reason": None,
             }
             pending.append(values)
             keys.add(key)
-            history[sys_.id].append(Event(
-                id=next_temp_id, system_id=sys_.id, kind=kind, performed_on=on, mass_mg=draft.mass_mg,
-                refrigerant=values["refrigerant"], charge_mg=draft.charge_mg, result=draft.result,
-            ))
+            history[sys_.id].append(
+                Event(
+                    id=next_temp_id,
+                    system_id=sys_.id,
+                    kind=kind,
+                    performed_on=on,
+                    mass_mg=draft.mass_mg,
+                    refrigerant=values["refrigerant"],
+                    charge_mg=draft.charge_mg,
+                    result=draft.result,
+                )
+            )
             next_temp_id -= 1
         if self.problems.items or not pending:
             return
@@ -673,7 +762,18 @@ class _Job:
 
 def _column_for(f: Finding) -> str:
     name = (f.field or "").lstrip("-")
-    mapping = {"on": "on", "system": "tag", "mass": "mass", "recovered": "mass", "before": "before",
-               "after": "after", "before/after": "before", "cylinder": "cylinder", "result": "result",
-               "refrigerant": "refrigerant", "destination": "destination", "tech": "tech"}
+    mapping = {
+        "on": "on",
+        "system": "tag",
+        "mass": "mass",
+        "recovered": "mass",
+        "before": "before",
+        "after": "after",
+        "before/after": "before",
+        "cylinder": "cylinder",
+        "result": "result",
+        "refrigerant": "refrigerant",
+        "destination": "destination",
+        "tech": "tech",
+    }
     return mapping.get(name, name or "kind")

@@ -74,8 +74,11 @@ def check_chain(rows: list[dict[str, Any]]) -> tuple[str, str, int] | None:
         if not link_ok:
             if row["prev_hash"] in known:
                 j = position[row["prev_hash"]]
-                return "reordered", f"it follows event {rows[j]['id']} in the chain, not event " \
-                    f"{rows[i - 1]['id'] if i else '(start)'}", row["id"]
+                return (
+                    "reordered",
+                    f"it follows event {rows[j]['id']} in the chain, not event {rows[i - 1]['id'] if i else '(start)'}",
+                    row["id"],
+                )
             return "missing", "the event it follows in the chain is no longer in the ledger", row["id"]
         expected = row["chain_hash"]
     return None

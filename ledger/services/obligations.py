@@ -6,6 +6,7 @@ from dataclasses import dataclass
 from datetime import date
 from typing import Any
 
+from ledger.domain.detector_policy import StoredEpisode, episode_obligations, repair_findings
 from ledger.domain.records import (
     Finding,
     Obligation,
@@ -18,15 +19,16 @@ from ledger.services.queries import labels_of, obligation_json
 from ledger.store import repository as repo
 from ledger.store.db import Database
 
-
 # Kinds that recur each period. Only the latest period of each series is actionable: an
 # earlier period that passed without its check cannot be made good any more; it stays in the
 # record as missed (reports count it) but is not "due".
-PERIODIC = frozenset({
-    ObligationKind.LEAK_CHECK,
-    ObligationKind.LEAK_INSPECTION,
-    ObligationKind.DETECTION_SYSTEM_CHECK,
-})
+PERIODIC = frozenset(
+    {
+        ObligationKind.LEAK_CHECK,
+        ObligationKind.LEAK_INSPECTION,
+        ObligationKind.DETECTION_SYSTEM_CHECK,
+    }
+)
 
 
 def current_only(obligations: list[Obligation]) -> tuple[list[Obligation], dict[int, int]]:
@@ -51,7 +53,7 @@ def current_only(obligations: list[Obligation]) -> tuple[list[Obligation], dict[
         members.sort(key=lambda o: o.due_on)
         last_met = max((i for i, o in enumerate(members) if o.status is ObligationStatus.MET), default=-1)
         earlier = sum(1 for o in members[: max(last_met, 0)] if o.status is ObligationStatus.OVERDUE)
-        pending = members[last_met + 1:]
+        pending = members[last_met + 1 :]
         if pending:
             shown.add(id(pending[0]))
             missed_of[id(pending[0])] = earlier
@@ -69,11 +71,45 @@ class DueList:
     findings: list[Finding]
 
 
-def compute(histories: list[SystemHistory], as_of: date) -> tuple[list[Obligation], list[Finding]]:
-    """Every obligation of these systems on ``as_of`` (met ones included)."""
+def compute(
+    histories: list[SystemHistory],
+    as_of: date,
+    episodes: dict[int, list[StoredEpisode]] | None = None,
+) -> tuple[list[Obligation], list[Finding]]:
+    """Every obligation of these systems on ``as_of`` (met ones included), with findings.
+
+    Args:
+        histories: the systems to evaluate.
+        as_of: the day.
+        episodes: stored detector episodes by system id; they add site-policy leak checks
+            and findings about repairs that readings put in doubt.
+    """
     from ledger.rules import compute_all
 
-    return compute_all(histories, load_reference(), as_of)
+    obligations, findings = compute_all(histories, load_reference(), as_of)
+    if episodes:
+        for h in histories:
+            eps = episodes.get(h.system.id)
+            if not eps:
+                continue
+            obligations.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
+            findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
+        obligations.sort(key=lambda o: (o.due_on, o.site_code or "", o.system_id or 0, o.kind.value))
+    return obligations, findings
+
+
+def load_with_episodes(
+    db: Database, *, site_code: str | None = None, system_id: int | None = None
+) -> tuple[list[SystemHistory], dict[int, list[StoredEpisode]]]:
+    """Histories and their stored detector episodes, in one read transaction."""
+    from ledger.services.detectors import stored_episodes
+
+    with db.read() as conn:
+        histories = repo.load_histories(site_code, conn=conn, system_id=system_id)
+        zones = {h.system.id: h.site.timezone for h in histories}
+        ids = None if site_code is None and system_id is None else list(zones)
+        episodes = stored_episodes(conn, ids, zones)
+    return histories, episodes
 
 
 def due(
@@ -93,9 +129,8 @@ def due(
         site_code: only this site.
         overdue_only: only overdue obligations.
     """
-    with db.read() as conn:
-        histories = repo.load_histories(site_code, conn=conn)
-    obligations, findings = compute(histories, as_of)
+    histories, episodes = load_with_episodes(db, site_code=site_code)
+    obligations, findings = compute(histories, as_of, episodes)
     current, missed = current_only(obligations)
     labels = labels_of(histories)
     rows = []
@@ -104,11 +139,7 @@ def due(
             continue
         if overdue_only and ob.status is not ObligationStatus.OVERDUE:
             continue
-        if (
-            within_days is not None
-            and ob.status is ObligationStatus.OPEN
-            and (ob.due_on - as_of).days > within_days
-        ):
+        if within_days is not None and ob.status is ObligationStatus.OPEN and (ob.due_on - as_of).days > within_days:
             continue
         row = obligation_json(ob, labels)
         row["earlier_periods_missed"] = missed.get(i, 0) if ob.kind in PERIODIC else None

@@ -53,8 +53,13 @@ def technicians(db: Database) -> list[dict[str, Any]]:
                 "name": t.name,
                 "company": t.company,
                 "certificates": [
-                    {"scheme": c.scheme, "number": c.number, "category": c.category,
-                     "valid_from": c.valid_from, "valid_to": c.valid_to}
+                    {
+                        "scheme": c.scheme,
+                        "number": c.number,
+                        "category": c.category,
+                        "valid_from": c.valid_from,
+                        "valid_to": c.valid_to,
+                    }
                     for c in t.certificates
                 ],
             }
@@ -130,12 +135,14 @@ def labels_of(histories: Sequence[SystemHistory]) -> dict[int, tuple[str, str]]:
 def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[str, Any]:
     """Everything about one system on a day: facts, state, tiers, obligations, leak rates."""
     from ledger.domain.leak_rate import leak_rates_json
-    from ledger.rules import REGIMES, compute_all
+    from ledger.rules import REGIMES
+    from ledger.services.obligations import compute, current_only, load_with_episodes
 
     reference = load_reference()
     with db.read() as conn:
         _, sys_ = repo.get_system(site_code, tag, conn=conn)
-        history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
+    histories, episodes = load_with_episodes(db, system_id=sys_.id)
+    history = histories[0]
     site = history.site
     state = state_of(history.events, as_of)
     basis = REGIMES[site.regimes[0]].GWP_BASIS if site.regimes else "ar4"
@@ -145,7 +152,8 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
         gwp = reference.gwp(state.refrigerant, basis).value
         co2e = mg_to_kg(state.full_charge_mg) * gwp / 1000
     voided_by = {e.voids_id: e for e in history.events if e.voids_id is not None}
-    obligations, findings = compute_all([history], reference, as_of)
+    obligations, findings = compute([history], as_of, episodes)
+    current, _ = current_only(obligations)
     labels = labels_of([history])
     ref = reference.lookup(state.refrigerant) if state.refrigerant else None
     return {
@@ -180,7 +188,8 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
             for code in site.regimes
             for t in [REGIMES[code].tier_of(history, reference, as_of)]
         },
-        "obligations": [obligation_json(o, labels) for o in obligations],
+        "obligations": [obligation_json(o, labels) for o in current],
+        "obligations_history": [obligation_json(o, labels) for o in obligations],
         "findings": [{"source": f.source, "message": f.message, "severity": f.severity.value} for f in findings],
         "leak_rates": leak_rates_json(history, as_of) if site.country == "US" else [],
         "events": [event_json(e, voided_by) for e in sorted(history.events, key=lambda e: e.id)],
@@ -189,24 +198,23 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
 
 def next_due(db: Database, *, site_code: str, tag: str, limit: int = 3) -> list[str]:
     """One line per open or overdue obligation of a system, earliest first."""
-    from ledger.rules import compute_all
+    from ledger.services.obligations import compute, current_only, load_with_episodes
     from ledger.services.recording import site_today
 
     with db.read() as conn:
         _, sys_ = repo.get_system(site_code, tag, conn=conn)
-        history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
-    today = site_today(history.site.timezone)
-    obligations, _ = compute_all([history], load_reference(), today)
-    pending = [o for o in obligations if o.status is not ObligationStatus.MET]
+    histories, episodes = load_with_episodes(db, system_id=sys_.id)
+    today = site_today(histories[0].site.timezone)
+    obligations, _ = compute(histories, today, episodes)
+    current, _ = current_only(obligations)
+    pending = [o for o in current if o.status is not ObligationStatus.MET]
     return [
         f"{o.kind.value} {o.status.value} by {o.due_on.isoformat()} ({o.regime}: {o.basis.citation})"
         for o in pending[:limit]
     ]
 
 
-def leak_rate_view(
-    db: Database, *, site_code: str, tag: str, method: str | None, as_of: date | None
-) -> dict[str, Any]:
+def leak_rate_view(db: Database, *, site_code: str, tag: str, method: str | None, as_of: date | None) -> dict[str, Any]:
     """US leak rate at every addition of one system (the site's method unless one is named)."""
     from dataclasses import replace
 

@@ -30,9 +30,9 @@ from ledger.domain.records import (
 from ledger.domain.state import state_of
 from ledger.errors import Conflict, InputError, Rejected
 from ledger.reference import load_reference
+from ledger.services import places
 from ledger.store import repository as repo
 from ledger.store.db import Database
-from ledger.services import places
 
 
 @dataclass(frozen=True, slots=True)
@@ -66,6 +66,7 @@ def _enum(enum_type, value: str, fld: str):  # type: ignore[no-untyped-def]
 
 
 # ---- sites and systems --------------------------------------------------------------------
+
 
 def site_values(
     *,
@@ -199,9 +200,7 @@ def add_system(
             },
         )
         if detection_system:
-            event_id, head = repo.append_event(
-                conn=conn, values={**common, "kind": EventKind.DETECTION_ON.value}
-            )
+            event_id, head = repo.append_event(conn=conn, values={**common, "kind": EventKind.DETECTION_ON.value})
     return Logged(event_id, head, tuple(warnings), site_code, tag)
 
 
@@ -216,14 +215,13 @@ def set_system(db: Database, *, site_code: str, tag: str, defrost_every_hours: f
     with db.write() as conn:
         _, sys_ = repo.get_system(site_code, tag, conn=conn)
         conn.execute(
-            update(system_table)
-            .where(system_table.c.id == sys_.id)
-            .values(defrost_every_hours=defrost_every_hours)
+            update(system_table).where(system_table.c.id == sys_.id).values(defrost_every_hours=defrost_every_hours)
         )
         return replace(sys_, defrost_every_hours=defrost_every_hours)
 
 
 # ---- people and cylinders -----------------------------------------------------------------
+
 
 def add_technician(
     db: Database,
@@ -258,6 +256,7 @@ def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_m
 
 
 # ---- events -------------------------------------------------------------------------------
+
 
 def attachment_digest(path: Path) -> str:
     """SHA-256 of a service report file, so the logbook can prove which document it was."""

@@ -36,9 +36,7 @@ def refrigerant_view(name: str, *, charge_mg: int | None = None) -> dict[str, An
     view: dict[str, Any] = {
         "designation": ref.designation,
         "safety_class": ref.safety_class,
-        "components": [
-            {"designation": d, "mass_percent": pct} for d, pct in ref.components
-        ],
+        "components": [{"designation": d, "mass_percent": pct} for d, pct in ref.components],
         "gwp": {b: f.value for b, f in figures.items()},
         "gwp_rounded": {b: int(round_half_up(f.value)) for b, f in figures.items()},
         "unlisted": {b: list(f.unlisted) for b, f in figures.items() if f.unlisted},

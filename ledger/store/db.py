@@ -23,6 +23,7 @@ if TYPE_CHECKING:
     from sqlalchemy import Connection, Engine
 
 ENV_VAR = "REFLEDGER_DB"
+READINGS_ENV_VAR = "REFLEDGER_READINGS"
 # Newest migration revision; tests assert it equals Alembic's script head, so every
 # command can check the schema with one SELECT instead of importing Alembic.
 HEAD_REVISION = "0001"
@@ -46,6 +47,18 @@ class Location:
             return None
         raw = self.url.split("///", 1)[1] if "///" in self.url else ""
         return Path(raw) if raw and raw != ":memory:" else None
+
+    @property
+    def readings_root(self) -> Path:
+        """Where detector readings are kept: $REFLEDGER_READINGS, else beside an SQLite file
+        (``<name>-readings/``), else in the per-user data folder."""
+        env = os.environ.get(READINGS_ENV_VAR)
+        if env:
+            return Path(env).expanduser()
+        path = self.sqlite_path
+        if path is not None:
+            return path.with_name(path.stem + "-readings")
+        return default_path().parent / "readings"
 
 
 def default_path() -> Path:
@@ -87,9 +100,7 @@ def make_engine(location: Location) -> Engine:
         path = location.sqlite_path
         if path is not None:
             path.parent.mkdir(parents=True, exist_ok=True)
-        engine = create_engine(
-            location.url, connect_args={"timeout": SQLITE_BUSY_TIMEOUT_MS / 1000}
-        )
+        engine = create_engine(location.url, connect_args={"timeout": SQLITE_BUSY_TIMEOUT_MS / 1000})
 
         @event.listens_for(engine, "connect")
         def _on_connect(dbapi_conn, _record):  # type: ignore[no-untyped-def]
@@ -145,9 +156,7 @@ class Database:
                 raise LedgerError(f"db: cannot open {self.location.url}: {_first_line(exc)}") from exc
             raise
         if revision is None:
-            raise SchemaOutOfDate(
-                f"db: {self.location.url} holds no ledger yet; run `refledger db init`"
-            )
+            raise SchemaOutOfDate(f"db: {self.location.url} holds no ledger yet; run `refledger db init`")
         if revision != HEAD_REVISION:
             raise SchemaOutOfDate(
                 f"db: schema is at revision {revision}, this refledger needs {HEAD_REVISION}; "
@@ -184,6 +193,7 @@ def _first_line(exc: Exception) -> str:
 
 
 # ---- migrations -------------------------------------------------------------------------
+
 
 def alembic_config(location: Location):  # type: ignore[no-untyped-def]
     """An Alembic Config pointing at the packaged migrations and this database."""

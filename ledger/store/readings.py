@@ -77,16 +77,13 @@ class ReadingsInputError(InputError):
     def __init__(self, source: str, bad_rows: Sequence[BadRow]) -> None:
         self.bad_rows = tuple(bad_rows)
         first = self.bad_rows[0]
-        listed = ", ".join(
-            f"{b.row} ({b.column}: {b.problem})" for b in self.bad_rows[:MAX_LISTED_ROWS]
-        )
+        listed = ", ".join(f"{b.row} ({b.column}: {b.problem})" for b in self.bad_rows[:MAX_LISTED_ROWS])
         more = len(self.bad_rows) - MAX_LISTED_ROWS
         tail = f" and {more} more" if more > 0 else ""
         super().__init__(
             f"{source} row {first.row}, column {first.column}",
             first.value,
-            f"{first.problem}; {len(self.bad_rows)} bad row(s) in all: {listed}{tail}. "
-            "Nothing was imported.",
+            f"{first.problem}; {len(self.bad_rows)} bad row(s) in all: {listed}{tail}. Nothing was imported.",
         )
 
 
@@ -158,9 +155,7 @@ def _as_strings(col: pa.ChunkedArray) -> pd.Series:
     return pd.Series(col.to_pandas(), dtype="object")
 
 
-def _parse_times(
-    col: pa.ChunkedArray, name: str, bad: list[BadRow]
-) -> tuple[np.ndarray, np.ndarray, bool]:
+def _parse_times(col: pa.ChunkedArray, name: str, bad: list[BadRow]) -> tuple[np.ndarray, np.ndarray, bool]:
     """Epoch microseconds, a validity mask, and whether the times were naive (wall clock)."""
     n = len(col)
     typ = col.type
@@ -200,16 +195,12 @@ def _parse_times(
             minority = naive_ok if naive_minority else aware_ok
             what = "has no UTC offset" if naive_minority else "has a UTC offset"
             for i in np.flatnonzero(minority):
-                bad.append(
-                    BadRow(int(i) + 1, name, str(text.iat[i]), f"{what}, unlike the other rows")
-                )
+                bad.append(BadRow(int(i) + 1, name, str(text.iat[i]), f"{what}, unlike the other rows"))
             return np.zeros(n, dtype=np.int64), np.zeros(n, dtype=bool), False
         naive = not aware_ok.any()
         us = np.where(aware_ok, aware_us, np.where(naive_ok, naive_us, 0))
         return us, valid, naive
-    raise InputError(
-        name, str(typ), "must hold ISO 8601 date-times (text) or timestamps, not numbers"
-    )
+    raise InputError(name, str(typ), "must hold ISO 8601 date-times (text) or timestamps, not numbers")
 
 
 def _iso_us(text: pd.Series, *, utc: bool) -> np.ndarray:
@@ -255,9 +246,7 @@ def _parse_ppm(col: pa.ChunkedArray, name: str, bad: list[BadRow]) -> tuple[np.n
     return values, present & ~infinite & ~negative
 
 
-def _localize(
-    us: np.ndarray, groups: Iterable[np.ndarray], tz: str, name: str, bad: list[BadRow]
-) -> np.ndarray:
+def _localize(us: np.ndarray, groups: Iterable[np.ndarray], tz: str, name: str, bad: list[BadRow]) -> np.ndarray:
     """Wall-clock microseconds in ``tz`` -> UTC microseconds.
 
     Each group (row indices of one series in file order) is localised on its own, so the
@@ -283,8 +272,7 @@ def _localize(
                             int(i) + 1,
                             name,
                             str(pd.Timestamp(us[i], unit="us")),
-                            f"is ambiguous or does not exist in {tz} (clock change); "
-                            "export with UTC offsets or in UTC",
+                            f"is ambiguous or does not exist in {tz} (clock change); export with UTC offsets or in UTC",
                         )
                     )
                 continue
@@ -337,9 +325,7 @@ def _find_time_column(names: list[str]) -> str:
     return hits[0]
 
 
-def _parse(
-    table: pa.Table, source: str, tz: str | None, channel_map: Mapping[str, str] | None
-) -> _Parsed:
+def _parse(table: pa.Table, source: str, tz: str | None, channel_map: Mapping[str, str] | None) -> _Parsed:
     names = list(table.column_names)
     time_col = _find_time_column(names)
     lower = {c.strip().lower(): c for c in names}
@@ -367,15 +353,11 @@ def _parse(
         target: list[str | None] = []
         for nm in names_in_file:
             target.append(channel_map.get(nm) if channel_map is not None else nm)
-        ignored += [
-            f"channel {nm!r}" for nm, tg in zip(names_in_file, target, strict=True) if tg is None
-        ]
+        ignored += [f"channel {nm!r}" for nm, tg in zip(names_in_file, target, strict=True) if tg is None]
         channels = sorted({t for t in target if t is not None})
         for c in channels:
             _check_code("channel", c)
-        lookup = np.array(
-            [channels.index(t) if t is not None else -1 for t in target] + [-1], dtype=np.int32
-        )
+        lookup = np.array([channels.index(t) if t is not None else -1 for t in target] + [-1], dtype=np.int32)
         identity = bool((lookup[:-1] == np.arange(len(lookup) - 1)).all())
         # codes == -1 (missing name) picks the trailing -1 of the lookup.
         mapped = codes if identity and not (codes < 0).any() else lookup[codes]
@@ -475,9 +457,7 @@ class ReadingStore:
                 out.append((d.name[len("month=") :], d))
         return sorted(out)
 
-    def _files(
-        self, site: str, channel: str, start: datetime | None, end: datetime | None
-    ) -> list[Path]:
+    def _files(self, site: str, channel: str, start: datetime | None, end: datetime | None) -> list[Path]:
         """The month files of one channel that overlap [start, end) (pruning by path)."""
         _check_code("site", site)
         _check_code("channel", channel)
@@ -487,9 +467,7 @@ class ReadingStore:
         hi_month = None if hi is None else _month_label(np.datetime64(hi - 1, "us"))
         files: list[Path] = []
         for month, d in self._month_dirs(site, channel):
-            if (lo_month is not None and month < lo_month) or (
-                hi_month is not None and month > hi_month
-            ):
+            if (lo_month is not None and month < lo_month) or (hi_month is not None and month > hi_month):
                 continue
             files.extend(sorted(d.glob("part-*.parquet")))
         return files
@@ -544,9 +522,7 @@ class ReadingStore:
         if hi is not None:
             below = pc.field("time") < pa.scalar(hi, SCHEMA.field("time").type)
             flt = below if flt is None else flt & below
-        table = ds.dataset([str(f) for f in files], format="parquet", schema=SCHEMA).to_table(
-            filter=flt
-        )
+        table = ds.dataset([str(f) for f in files], format="parquet", schema=SCHEMA).to_table(filter=flt)
         frame = table.to_pandas()
         t = frame["time"].array.asi8
         if len(t) > 1 and (np.diff(t) < 0).any():
@@ -610,9 +586,7 @@ class ReadingStore:
                 continue
             out[str(names[a])] = pd.DataFrame(
                 {
-                    "time": pd.DatetimeIndex(
-                        (hours[a:b] * 3600 * _US_PER_S).view("datetime64[us]")
-                    ).tz_localize("UTC"),
+                    "time": pd.DatetimeIndex((hours[a:b] * 3600 * _US_PER_S).view("datetime64[us]")).tz_localize("UTC"),
                     "ppm": means[a:b],
                     "count": counts[a:b],
                 }

@@ -47,6 +47,7 @@ def now_utc() -> datetime:
 
 # ---- sites --------------------------------------------------------------------------------
 
+
 def _site_record(row: Any) -> Site:
     return Site(
         id=row.id,
@@ -83,6 +84,7 @@ def list_sites(*, conn: Connection) -> list[Site]:
 
 # ---- systems ------------------------------------------------------------------------------
 
+
 def _system_record(row: Any, site_code: str) -> System:
     return System(
         id=row.id,
@@ -115,9 +117,7 @@ def insert_system(*, conn: Connection, site_id: int, values: Mapping[str, Any]) 
 def get_system(site_code: str, tag: str, *, conn: Connection) -> tuple[Site, System]:
     """The site and system for ``SITE/TAG``, or NotFound naming which part is unknown."""
     the_site = get_site(site_code, conn=conn)
-    row = conn.execute(
-        select(system).where(and_(system.c.site_id == the_site.id, system.c.tag == tag))
-    ).first()
+    row = conn.execute(select(system).where(and_(system.c.site_id == the_site.id, system.c.tag == tag))).first()
     if row is None:
         raise NotFound(f"system: {site_code}/{tag!r} is not in the ledger")
     return the_site, _system_record(row, site_code)
@@ -134,6 +134,7 @@ def list_systems(site_code: str | None = None, *, conn: Connection) -> list[Syst
 
 # ---- people -------------------------------------------------------------------------------
 
+
 def company_id(name: str, *, conn: Connection) -> int:
     """The id of a company, adding it on first mention."""
     found = conn.execute(select(company.c.id).where(company.c.name == name)).scalar()
@@ -149,9 +150,9 @@ def insert_technician(
     if conn.execute(select(technician.c.id).where(technician.c.name == name)).first():
         raise Conflict(f"tech: {name!r} already exists")
     cid = company_id(company_name, conn=conn) if company_name else None
-    tid = conn.execute(
-        insert(technician).values(name=name, company_id=cid, created_at=now_utc())
-    ).inserted_primary_key[0]
+    tid = conn.execute(insert(technician).values(name=name, company_id=cid, created_at=now_utc())).inserted_primary_key[
+        0
+    ]
     for cert in certificates:
         add_certificate(conn=conn, technician_id=tid, cert=cert)
     return tid
@@ -160,9 +161,7 @@ def insert_technician(
 def add_certificate(*, conn: Connection, technician_id: int, cert: Certificate) -> int:
     """Register a certificate for a technician; the same scheme and number twice is a Conflict."""
     clash = conn.execute(
-        select(certificate.c.id).where(
-            and_(certificate.c.scheme == cert.scheme, certificate.c.number == cert.number)
-        )
+        select(certificate.c.id).where(and_(certificate.c.scheme == cert.scheme, certificate.c.number == cert.number))
     ).first()
     if clash:
         raise Conflict(f"certificate: {cert.scheme} {cert.number!r} is already registered")
@@ -193,9 +192,7 @@ def get_technician(name: str, *, conn: Connection) -> tuple[Technician, dict[str
         id=row.id,
         name=row.name,
         company=row.company_name or "",
-        certificates=tuple(
-            Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to) for c in certs
-        ),
+        certificates=tuple(Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to) for c in certs),
     )
     return record, {c.number: c.id for c in certs}
 
@@ -209,15 +206,12 @@ def list_technicians(*, conn: Connection) -> list[Technician]:
     ).all()
     certs: dict[int, list[Certificate]] = defaultdict(list)
     for c in conn.execute(select(certificate).order_by(certificate.c.id)):
-        certs[c.technician_id].append(
-            Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to)
-        )
-    return [
-        Technician(r.id, r.name, r.company_name or "", tuple(certs[r.id])) for r in rows
-    ]
+        certs[c.technician_id].append(Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to))
+    return [Technician(r.id, r.name, r.company_name or "", tuple(certs[r.id])) for r in rows]
 
 
 # ---- cylinders ----------------------------------------------------------------------------
+
 
 def insert_cylinder(*, conn: Connection, values: Mapping[str, Any]) -> int:
     """Add a cylinder; a duplicate id is a Conflict."""
@@ -243,6 +237,7 @@ def list_cylinders(*, conn: Connection) -> list[Cylinder]:
 
 # ---- events -------------------------------------------------------------------------------
 
+
 def chain_head(system_id: int, *, conn: Connection) -> str:
     """Lock the system's chain and return its head hash (GENESIS for a new system).
 
@@ -252,10 +247,7 @@ def chain_head(system_id: int, *, conn: Connection) -> str:
     if conn.dialect.name != "sqlite":
         conn.execute(select(system.c.id).where(system.c.id == system_id).with_for_update())
     head = conn.execute(
-        select(event.c.chain_hash)
-        .where(event.c.system_id == system_id)
-        .order_by(event.c.id.desc())
-        .limit(1)
+        select(event.c.chain_hash).where(event.c.system_id == system_id).order_by(event.c.id.desc()).limit(1)
     ).scalar()
     return head or chain.GENESIS
 

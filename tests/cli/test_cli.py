@@ -55,22 +55,45 @@ def test_unknown_refrigerant_is_one_line_exit_2() -> None:
 def _estate(loc: Location) -> None:
     assert run(loc, "site", "add", "DE-1", "--name", "Store", "--country", "DE").exit_code == 0
     assert run(loc, "tech", "add", "Ada Novak", "--certificate", "C-1", "--scheme", "EU cat I").exit_code == 0
-    out = run(loc, "system", "add", "DE-1/RACK", "--refrigerant", "R-404A", "--charge", "20 kg",
-              "--application", "commercial-refrigeration", "--in-service", "2022-04-01")
+    out = run(
+        loc,
+        "system",
+        "add",
+        "DE-1/RACK",
+        "--refrigerant",
+        "R-404A",
+        "--charge",
+        "20 kg",
+        "--application",
+        "commercial-refrigeration",
+        "--in-service",
+        "2022-04-01",
+    )
     assert out.exit_code == 0, out.output
 
 
 def test_system_show_json_contract(sqlite_location: Location) -> None:
     _estate(sqlite_location)
-    out = run(sqlite_location, "log", "add", "DE-1/RACK", "--on", "2024-03-01", "--mass", "5 lb 8 oz",
-              "--tech", "Ada Novak")
+    out = run(
+        sqlite_location, "log", "add", "DE-1/RACK", "--on", "2024-03-01", "--mass", "5 lb 8 oz", "--tech", "Ada Novak"
+    )
     assert out.exit_code == 0, out.output
     assert "event" in out.stdout
     out = run(sqlite_location, "system", "show", "DE-1/RACK", "--as-of", "2024-12-31", "--json")
     assert out.exit_code == 0, out.output
     data = json.loads(out.stdout)
-    assert {"site", "tag", "refrigerant", "full_charge_kg", "co2e_t", "in_service", "events",
-            "tier", "obligations", "leak_rates"} <= data.keys()
+    assert {
+        "site",
+        "tag",
+        "refrigerant",
+        "full_charge_kg",
+        "co2e_t",
+        "in_service",
+        "events",
+        "tier",
+        "obligations",
+        "leak_rates",
+    } <= data.keys()
     assert data["full_charge_kg"] == 20
     # 20 kg x 3921.6 (EU Annex IV method) / 1000 = 78.432 t
     assert data["co2e_t"] == pytest.approx(78.432)
@@ -87,14 +110,50 @@ def test_system_show_json_contract(sqlite_location: Location) -> None:
         (["log", "add", "DE-1/RACK", "--on", "2024-03-01", "--mass", "lots"], "is not a mass"),
         (["log", "add", "DE-1/RACK", "--on", "14/03/2024", "--mass", "1 kg"], "--on: '14/03/2024' is not a date"),
         (["log", "add", "DE-1/RACK", "--on", "2099-03-01", "--mass", "1 kg"], "is in the future"),
-        (["log", "add", "DE-1/RACK", "--on", "2020-03-01", "--mass", "1 kg"], "before the system was placed in service"),
-        (["log", "add", "DE-1/RACK", "--on", "2024-03-01", "--mass", "1 kg", "--refrigerant", "R-134a"], "is not what the system holds"),
+        (
+            ["log", "add", "DE-1/RACK", "--on", "2020-03-01", "--mass", "1 kg"],
+            "before the system was placed in service",
+        ),
+        (
+            ["log", "add", "DE-1/RACK", "--on", "2024-03-01", "--mass", "1 kg", "--refrigerant", "R-134a"],
+            "is not what the system holds",
+        ),
         (["log", "add", "DE-9/RACK", "--on", "2024-03-01", "--mass", "1 kg"], "site: 'DE-9'"),
         (["log", "add", "DE-1/NOPE", "--on", "2024-03-01", "--mass", "1 kg"], "system: DE-1/'NOPE'"),
         (["log", "add", "DE-1/RACK", "--on", "2024-03-01", "--mass", "1 kg", "--tech", "Nobody"], "tech: 'Nobody'"),
         (["site", "add", "DE-1", "--name", "X", "--country", "DE"], "site: 'DE-1' already exists"),
-        (["system", "add", "DE-1/RACK", "--refrigerant", "R-404A", "--charge", "1 kg", "--application", "other", "--in-service", "2023-01-01"], "already exists"),
-        (["system", "add", "DE-1/X", "--refrigerant", "R-4O4A", "--charge", "1 kg", "--application", "other", "--in-service", "2023-01-01"], "refrigerant: 'R-4O4A'"),
+        (
+            [
+                "system",
+                "add",
+                "DE-1/RACK",
+                "--refrigerant",
+                "R-404A",
+                "--charge",
+                "1 kg",
+                "--application",
+                "other",
+                "--in-service",
+                "2023-01-01",
+            ],
+            "already exists",
+        ),
+        (
+            [
+                "system",
+                "add",
+                "DE-1/X",
+                "--refrigerant",
+                "R-4O4A",
+                "--charge",
+                "1 kg",
+                "--application",
+                "other",
+                "--in-service",
+                "2023-01-01",
+            ],
+            "refrigerant: 'R-4O4A'",
+        ),
     ],
 )
 def test_bad_input_one_line_nonzero_no_write(sqlite_location: Location, args: list[str], fragment: str) -> None:
@@ -121,7 +180,8 @@ def test_help_does_not_import_heavy_libraries() -> None:
         "import sys; sys.argv=['refledger','--help']\n"
         "from ledger.cli.main import app\n"
         "try:\n    app()\nexcept SystemExit:\n    pass\n"
-        "heavy=[m for m in ('pandas','matplotlib','reportlab','CoolProp','openpyxl','pint','sqlalchemy.orm','numpy') if m in sys.modules]\n"
+        "heavy=[m for m in ('pandas','matplotlib','reportlab','CoolProp','openpyxl','pint',"
+        "'sqlalchemy.orm','numpy') if m in sys.modules]\n"
         "print('HEAVY', heavy, file=sys.stderr)"
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)

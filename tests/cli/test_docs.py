@@ -23,8 +23,12 @@ def test_every_command_has_help(path: list[str]) -> None:
 
 
 def test_cli_reference_is_current() -> None:
-    done = subprocess.run([sys.executable, "-m", "cogapp", "--check", str(ROOT / "docs" / "cli.md")],
-                          capture_output=True, text=True, cwd=ROOT)
+    done = subprocess.run(
+        [sys.executable, "-m", "cogapp", "--check", str(ROOT / "docs" / "cli.md")],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+    )
     assert done.returncode == 0, "docs/cli.md is stale: run `.venv/bin/cog -r docs/cli.md`\n" + done.stderr
 
 

@@ -21,20 +21,58 @@ def _fill(db: Database) -> None:
     add_site(db, code="GB-1", name="Leeds", country="GB")
     add_technician(db, name="Ana Ortiz", certificate="GB-9", scheme="GB F-gas cat I", company="Frost Ltd")
     add_cylinder(db, code="C1", refrigerant="R-404A", kind="reclaimed", tare_mg=10_000_000)
-    add_system(db, site_code="GB-1", tag="R1", refrigerant="R-404A", charge_mg=80_000_000,
-               application="commercial-refrigeration", in_service_on=date(2020, 5, 1), technician="Ana Ortiz")
-    e = log_event(db, site_code="GB-1", tag="R1", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2024, 2, 1), cylinder_code="C1",
-        cylinder_before_mg=30_000_000, cylinder_after_mg=27_500_000, technician="Ana Ortiz", note="=SUM(1)"))
+    add_system(
+        db,
+        site_code="GB-1",
+        tag="R1",
+        refrigerant="R-404A",
+        charge_mg=80_000_000,
+        application="commercial-refrigeration",
+        in_service_on=date(2020, 5, 1),
+        technician="Ana Ortiz",
+    )
+    e = log_event(
+        db,
+        site_code="GB-1",
+        tag="R1",
+        draft=EventDraft(
+            kind=EventKind.ADD,
+            performed_on=date(2024, 2, 1),
+            cylinder_code="C1",
+            cylinder_before_mg=30_000_000,
+            cylinder_after_mg=27_500_000,
+            technician="Ana Ortiz",
+            note="=SUM(1)",
+        ),
+    )
     void_event(db, event_id=e.event_id, reason="wrong cylinder")
 
 
 def _snapshot(db: Database):  # type: ignore[no-untyped-def]
     with db.read() as conn:
         histories = repo.load_histories(conn=conn)
-    return [(h.site, h.system, tuple((e.kind, e.performed_on, e.mass_mg, e.note, e.voids_id, e.chain_hash,
-                                       e.technician, e.certificate, e.cylinder_id, e.reclaimed) for e in h.events))
-            for h in histories]
+    return [
+        (
+            h.site,
+            h.system,
+            tuple(
+                (
+                    e.kind,
+                    e.performed_on,
+                    e.mass_mg,
+                    e.note,
+                    e.voids_id,
+                    e.chain_hash,
+                    e.technician,
+                    e.certificate,
+                    e.cylinder_id,
+                    e.reclaimed,
+                )
+                for e in h.events
+            ),
+        )
+        for h in histories
+    ]
 
 
 def test_round_trip_across_backends(location: Location, tmp_path: Path, sqlite_location: Location) -> None:

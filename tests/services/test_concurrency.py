@@ -21,9 +21,14 @@ def _writer(url: str, worker: int) -> int:
     for i in range(EVENTS_EACH):
         # half the writes go to a shared system, half to the worker's own
         tag = "SHARED" if i % 2 else f"W{worker}"
-        log_event(db, site_code="S", tag=tag, draft=EventDraft(
-            kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_mg=1000 + i,
-            note=f"w{worker}-{i}"))
+        log_event(
+            db,
+            site_code="S",
+            tag=tag,
+            draft=EventDraft(
+                kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_mg=1000 + i, note=f"w{worker}-{i}"
+            ),
+        )
     db.close()
     return EVENTS_EACH
 
@@ -31,8 +36,15 @@ def _writer(url: str, worker: int) -> int:
 def test_parallel_loggers_lose_nothing(db: Database, location: Location) -> None:
     add_site(db, code="S", name="S", country="DE")
     for tag in ["SHARED", *(f"W{w}" for w in range(PROCESSES))]:
-        add_system(db, site_code="S", tag=tag, refrigerant="R-134a", charge_mg=100_000_000,
-                   application="comfort-cooling", in_service_on=date(2023, 1, 1))
+        add_system(
+            db,
+            site_code="S",
+            tag=tag,
+            refrigerant="R-134a",
+            charge_mg=100_000_000,
+            application="comfort-cooling",
+            in_service_on=date(2023, 1, 1),
+        )
     ctx = mp.get_context("spawn")
     with ctx.Pool(PROCESSES) as pool:
         written = pool.starmap(_writer, [(location.url, w) for w in range(PROCESSES)])

@@ -38,8 +38,16 @@ def _counts(db: Database) -> tuple[int, int, int]:
 
 BASE = {
     "sites": [{"code": "NL-1", "name": "Utrecht", "country": "NL"}],
-    "systems": [{"site": "NL-1", "tag": "R1", "refrigerant": "R449A", "charge": "60 kg",
-                 "application": "commercial-refrigeration", "in_service": "2022-01-10"}],
+    "systems": [
+        {
+            "site": "NL-1",
+            "tag": "R1",
+            "refrigerant": "R449A",
+            "charge": "60 kg",
+            "application": "commercial-refrigeration",
+            "in_service": "2022-01-10",
+        }
+    ],
     "events": [
         {"site": "NL-1", "tag": "R1", "kind": "check", "on": "2024-01-05", "result": "leak-found", "where": "valve"},
         {"site": "NL-1", "tag": "R1", "kind": "repair", "on": "2024-01-06"},
@@ -145,19 +153,41 @@ def test_demo_records_round_trip_through_a_workbook(sqlite_location: Location, t
 
 cell = st.one_of(
     st.text(max_size=30),
-    st.sampled_from(["", "1 kg", "-5 kg", "1e999 kg", "2024-02-30", "NaN kg", "=SUM(A1)", "R-404A", "yes",
-                     "9" * 40, "\x00", "ﬁ", "😀", "2024-01-01"]),
+    st.sampled_from(
+        [
+            "",
+            "1 kg",
+            "-5 kg",
+            "1e999 kg",
+            "2024-02-30",
+            "NaN kg",
+            "=SUM(A1)",
+            "R-404A",
+            "yes",
+            "9" * 40,
+            "\x00",
+            "ﬁ",
+            "😀",
+            "2024-01-01",
+        ]
+    ),
 )
 
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(
     kind=st.sampled_from(ORDER),
-    header=st.lists(st.sampled_from(sorted(set().union(*[r | o for r, o in COLUMNS.values()]) | {"bogus"})), max_size=8),
+    header=st.lists(
+        st.sampled_from(sorted(set().union(*[r | o for r, o in COLUMNS.values()]) | {"bogus"})), max_size=8
+    ),
     rows=st.lists(st.lists(cell, max_size=9), max_size=6),
 )
 def test_fuzzed_files_never_crash_and_never_write_partially(
-    sqlite_location: Location, tmp_path_factory: pytest.TempPathFactory, kind: str, header: list[str], rows: list[list[str]]
+    sqlite_location: Location,
+    tmp_path_factory: pytest.TempPathFactory,
+    kind: str,
+    header: list[str],
+    rows: list[list[str]],
 ) -> None:
     db = Database(sqlite_location)
     folder = tmp_path_factory.mktemp("fuzz")
@@ -175,7 +205,9 @@ def test_fuzzed_files_never_crash_and_never_write_partially(
 
 @settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(blob=st.binary(max_size=300))
-def test_fuzzed_bytes_never_crash(sqlite_location: Location, tmp_path_factory: pytest.TempPathFactory, blob: bytes) -> None:
+def test_fuzzed_bytes_never_crash(
+    sqlite_location: Location, tmp_path_factory: pytest.TempPathFactory, blob: bytes
+) -> None:
     db = Database(sqlite_location)
     folder = tmp_path_factory.mktemp("bytes")
     for name in ("events.csv", "book.xlsx"):

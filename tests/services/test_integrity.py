@@ -21,14 +21,34 @@ from ledger.store.tables import event
 
 def _ledger(db: Database) -> list[int]:
     add_site(db, code="S", name="S", country="DE")
-    add_system(db, site_code="S", tag="A", refrigerant="R-134a", charge_mg=50_000_000,
-               application="comfort-cooling", in_service_on=date(2023, 1, 1))
-    add_system(db, site_code="S", tag="B", refrigerant="R-134a", charge_mg=50_000_000,
-               application="comfort-cooling", in_service_on=date(2023, 1, 1))
+    add_system(
+        db,
+        site_code="S",
+        tag="A",
+        refrigerant="R-134a",
+        charge_mg=50_000_000,
+        application="comfort-cooling",
+        in_service_on=date(2023, 1, 1),
+    )
+    add_system(
+        db,
+        site_code="S",
+        tag="B",
+        refrigerant="R-134a",
+        charge_mg=50_000_000,
+        application="comfort-cooling",
+        in_service_on=date(2023, 1, 1),
+    )
     ids = []
     for day in (1, 2, 3, 4):
-        ids.append(log_event(db, site_code="S", tag="A", draft=EventDraft(
-            kind=EventKind.ADD, performed_on=date(2024, 1, day), mass_mg=1_000_000 * day)).event_id)
+        ids.append(
+            log_event(
+                db,
+                site_code="S",
+                tag="A",
+                draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, day), mass_mg=1_000_000 * day),
+            ).event_id
+        )
     return ids
 
 

@@ -26,15 +26,27 @@ from ledger.store.tables import event
 
 def _ledger(db: Database) -> None:
     add_site(db, code="DE-1", name="Store", country="DE")
-    add_technician(db, name="Ada Novak", certificate="C-1", scheme="EU 2015/2067 cat I",
-                   valid_to=date(2030, 1, 1), company="Cold GmbH")
-    add_technician(db, name="Old Hand", certificate="C-2", scheme="EU 2015/2067 cat I",
-                   valid_to=date(2024, 6, 30))
+    add_technician(
+        db,
+        name="Ada Novak",
+        certificate="C-1",
+        scheme="EU 2015/2067 cat I",
+        valid_to=date(2030, 1, 1),
+        company="Cold GmbH",
+    )
+    add_technician(db, name="Old Hand", certificate="C-2", scheme="EU 2015/2067 cat I", valid_to=date(2024, 6, 30))
     add_cylinder(db, code="CY-1", refrigerant="R-448A", kind="virgin", tare_mg=13_600_000)
     add_cylinder(db, code="CY-2", refrigerant="R-404A", kind="virgin", tare_mg=None)
-    add_system(db, site_code="DE-1", tag="RACK", refrigerant="R448A", charge_mg=120_000_000,
-               application="commercial-refrigeration", in_service_on=date(2022, 4, 1),
-               technician="Ada Novak")
+    add_system(
+        db,
+        site_code="DE-1",
+        tag="RACK",
+        refrigerant="R448A",
+        charge_mg=120_000_000,
+        application="commercial-refrigeration",
+        in_service_on=date(2022, 4, 1),
+        technician="Ada Novak",
+    )
 
 
 def _events(db: Database) -> int:
@@ -44,11 +56,25 @@ def _events(db: Database) -> int:
 
 def test_round_trip_and_chain(db: Database) -> None:
     _ledger(db)
-    log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2024, 3, 1), cylinder_code="CY-1",
-        cylinder_before_mg=48_200_000, cylinder_after_mg=41_700_000, technician="Ada Novak"))
-    log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(
-        kind=EventKind.CHECK, performed_on=date(2024, 3, 2), result="leak-found", location="header"))
+    log_event(
+        db,
+        site_code="DE-1",
+        tag="RACK",
+        draft=EventDraft(
+            kind=EventKind.ADD,
+            performed_on=date(2024, 3, 1),
+            cylinder_code="CY-1",
+            cylinder_before_mg=48_200_000,
+            cylinder_after_mg=41_700_000,
+            technician="Ada Novak",
+        ),
+    )
+    log_event(
+        db,
+        site_code="DE-1",
+        tag="RACK",
+        draft=EventDraft(kind=EventKind.CHECK, performed_on=date(2024, 3, 2), result="leak-found", location="header"),
+    )
     with db.read() as conn:
         history = repo.load_histories("DE-1", conn=conn)[0]
         rows = conn.execute(select(event).order_by(event.c.id)).mappings().all()
@@ -68,8 +94,12 @@ def test_round_trip_and_chain(db: Database) -> None:
 
 def test_void_keeps_the_event_and_records_the_reason(db: Database) -> None:
     _ledger(db)
-    logged = log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2024, 3, 1), mass_mg=2_000_000))
+    logged = log_event(
+        db,
+        site_code="DE-1",
+        tag="RACK",
+        draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 3, 1), mass_mg=2_000_000),
+    )
     void_event(db, event_id=logged.event_id, reason="typed in lb")
     with db.read() as conn:
         events = repo.load_events(conn=conn)
@@ -82,29 +112,73 @@ def test_void_keeps_the_event_and_records_the_reason(db: Database) -> None:
 
 def test_lapsed_certificate_is_recorded_with_a_warning(db: Database) -> None:
     _ledger(db)
-    logged = log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(
-        kind=EventKind.CHECK, performed_on=date(2025, 2, 3), result="no-leak", technician="Old Hand"))
+    logged = log_event(
+        db,
+        site_code="DE-1",
+        tag="RACK",
+        draft=EventDraft(kind=EventKind.CHECK, performed_on=date(2025, 2, 3), result="no-leak", technician="Old Hand"),
+    )
     assert logged.event_id > 0
     assert any("was not valid on 2025-02-03" in w.message for w in logged.warnings)
 
 
 BAD_EVENTS = [
     # (draft fields, expected exception, text in the message)
-    (dict(kind=EventKind.ADD, performed_on=date(2099, 1, 1), mass_mg=1000), Rejected, "--on: 2099-01-01 is in the future"),
-    (dict(kind=EventKind.ADD, performed_on=date(2021, 1, 1), mass_mg=1000), Rejected, "before the system was placed in service"),
-    (dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1000, refrigerant="R-404A"), Rejected, "is not what the system holds"),
-    (dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), cylinder_code="CY-2", mass_mg=1000), Rejected, "holds R-404A, but the system holds R-448A"),
-    (dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), cylinder_code="CY-1", cylinder_before_mg=10_000, cylinder_after_mg=20_000), Rejected, "--before"),
-    (dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1000, technician="Nobody"), NotFound, "tech: 'Nobody'"),
-    (dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), cylinder_code="CY-9", mass_mg=1000), NotFound, "cylinder: 'CY-9'"),
+    (
+        dict(kind=EventKind.ADD, performed_on=date(2099, 1, 1), mass_mg=1000),
+        Rejected,
+        "--on: 2099-01-01 is in the future",
+    ),
+    (
+        dict(kind=EventKind.ADD, performed_on=date(2021, 1, 1), mass_mg=1000),
+        Rejected,
+        "before the system was placed in service",
+    ),
+    (
+        dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1000, refrigerant="R-404A"),
+        Rejected,
+        "is not what the system holds",
+    ),
+    (
+        dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), cylinder_code="CY-2", mass_mg=1000),
+        Rejected,
+        "holds R-404A, but the system holds R-448A",
+    ),
+    (
+        dict(
+            kind=EventKind.ADD,
+            performed_on=date(2024, 1, 1),
+            cylinder_code="CY-1",
+            cylinder_before_mg=10_000,
+            cylinder_after_mg=20_000,
+        ),
+        Rejected,
+        "--before",
+    ),
+    (
+        dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1000, technician="Nobody"),
+        NotFound,
+        "tech: 'Nobody'",
+    ),
+    (
+        dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1), cylinder_code="CY-9", mass_mg=1000),
+        NotFound,
+        "cylinder: 'CY-9'",
+    ),
     (dict(kind=EventKind.ADD, performed_on=date(2024, 1, 1)), Rejected, "--mass: is required"),
     (dict(kind=EventKind.CHECK, performed_on=date(2024, 1, 1), result="maybe"), Rejected, "--result: 'maybe'"),
-    (dict(kind=EventKind.RETROFIT, performed_on=date(2024, 1, 1), refrigerant="R-999Z", charge_mg=1000), UnknownRefrigerant, "R-999Z"),
+    (
+        dict(kind=EventKind.RETROFIT, performed_on=date(2024, 1, 1), refrigerant="R-999Z", charge_mg=1000),
+        UnknownRefrigerant,
+        "R-999Z",
+    ),
 ]
 
 
 @pytest.mark.parametrize(("fields", "error", "text"), BAD_EVENTS)
-def test_bad_events_are_refused_without_a_write(db: Database, fields: dict, error: type[LedgerError], text: str) -> None:
+def test_bad_events_are_refused_without_a_write(
+    db: Database, fields: dict, error: type[LedgerError], text: str
+) -> None:
     _ledger(db)
     before = _events(db)
     with pytest.raises(error) as info:
@@ -116,11 +190,21 @@ def test_bad_events_are_refused_without_a_write(db: Database, fields: dict, erro
 
 def test_event_after_retirement_is_refused(db: Database) -> None:
     _ledger(db)
-    log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(
-        kind=EventKind.RETIRE, performed_on=date(2025, 6, 1), mass_mg=100_000_000, destination="reclaim"))
+    log_event(
+        db,
+        site_code="DE-1",
+        tag="RACK",
+        draft=EventDraft(
+            kind=EventKind.RETIRE, performed_on=date(2025, 6, 1), mass_mg=100_000_000, destination="reclaim"
+        ),
+    )
     with pytest.raises(Rejected, match="on or after the system was retired"):
-        log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(
-            kind=EventKind.ADD, performed_on=date(2025, 7, 1), mass_mg=1000))
+        log_event(
+            db,
+            site_code="DE-1",
+            tag="RACK",
+            draft=EventDraft(kind=EventKind.ADD, performed_on=date(2025, 7, 1), mass_mg=1000),
+        )
 
 
 def test_duplicates_and_unknowns(db: Database) -> None:
@@ -128,19 +212,52 @@ def test_duplicates_and_unknowns(db: Database) -> None:
     with pytest.raises(Conflict, match="site: 'DE-1' already exists"):
         add_site(db, code="DE-1", name="Again", country="DE")
     with pytest.raises(Conflict, match="system: 'RACK' already exists"):
-        add_system(db, site_code="DE-1", tag="RACK", refrigerant="R-448A", charge_mg=1000,
-                   application="other", in_service_on=date(2023, 1, 1))
+        add_system(
+            db,
+            site_code="DE-1",
+            tag="RACK",
+            refrigerant="R-448A",
+            charge_mg=1000,
+            application="other",
+            in_service_on=date(2023, 1, 1),
+        )
     with pytest.raises(NotFound, match="site: 'XX'"):
-        add_system(db, site_code="XX", tag="T", refrigerant="R-448A", charge_mg=1000,
-                   application="other", in_service_on=date(2023, 1, 1))
+        add_system(
+            db,
+            site_code="XX",
+            tag="T",
+            refrigerant="R-448A",
+            charge_mg=1000,
+            application="other",
+            in_service_on=date(2023, 1, 1),
+        )
     with pytest.raises(NotFound, match="system: DE-1/'NOPE'"):
-        log_event(db, site_code="DE-1", tag="NOPE", draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1))
+        log_event(
+            db,
+            site_code="DE-1",
+            tag="NOPE",
+            draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1),
+        )
     with pytest.raises(UnknownRefrigerant, match="closest known"):
-        add_system(db, site_code="DE-1", tag="T2", refrigerant="R-404B", charge_mg=1000,
-                   application="other", in_service_on=date(2023, 1, 1))
+        add_system(
+            db,
+            site_code="DE-1",
+            tag="T2",
+            refrigerant="R-404B",
+            charge_mg=1000,
+            application="other",
+            in_service_on=date(2023, 1, 1),
+        )
     with pytest.raises(InputError, match="--application: 'fridge'"):
-        add_system(db, site_code="DE-1", tag="T3", refrigerant="R-404A", charge_mg=1000,
-                   application="fridge", in_service_on=date(2023, 1, 1))
+        add_system(
+            db,
+            site_code="DE-1",
+            tag="T3",
+            refrigerant="R-404A",
+            charge_mg=1000,
+            application="fridge",
+            in_service_on=date(2023, 1, 1),
+        )
     with pytest.raises(InputError, match="--country: 'XQ'"):
         add_site(db, code="X", name="X", country="XQ")
 

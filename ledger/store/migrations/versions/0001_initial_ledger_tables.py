@@ -5,208 +5,223 @@ below refuse UPDATE and DELETE on ``event`` in the database itself (design §6),
 not even a hand-written SQL statement can rewrite history; corrections are VOID events.
 
 Revision ID: 0001
-Revises: 
+Revises:
 Create Date: 2026-12-01 21:45:06.283295
 """
 
-from alembic import op
 import sqlalchemy as sa
+from alembic import op
 
-
-revision = '0001'
+revision = "0001"
 down_revision = None
 branch_labels = None
 depends_on = None
 
 
 def upgrade() -> None:
-    op.create_table('company',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('name', sa.String(length=200), nullable=False),
-    sa.Column('certificate', sa.String(length=100), nullable=True),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_company')),
-    sa.UniqueConstraint('name', name=op.f('uq_company_name'))
+    op.create_table(
+        "company",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("name", sa.String(length=200), nullable=False),
+        sa.Column("certificate", sa.String(length=100), nullable=True),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_company")),
+        sa.UniqueConstraint("name", name=op.f("uq_company_name")),
     )
-    op.create_table('cylinder',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('code', sa.String(length=100), nullable=False),
-    sa.Column('refrigerant', sa.String(length=40), nullable=False),
-    sa.Column('kind', sa.String(length=20), nullable=False),
-    sa.Column('tare_mg', sa.BigInteger(), nullable=True),
-    sa.Column('created_at', sa.DateTime(timezone=True), nullable=False),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_cylinder')),
-    sa.UniqueConstraint('code', name=op.f('uq_cylinder_code'))
+    op.create_table(
+        "cylinder",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("code", sa.String(length=100), nullable=False),
+        sa.Column("refrigerant", sa.String(length=40), nullable=False),
+        sa.Column("kind", sa.String(length=20), nullable=False),
+        sa.Column("tare_mg", sa.BigInteger(), nullable=True),
+        sa.Column("created_at", sa.DateTime(timezone=True), nullable=False),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_cylinder")),
+        sa.UniqueConstraint("code", name=op.f("uq_cylinder_code")),
     )
-    op.create_table('report_run',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('made_at', sa.DateTime(timezone=True), nullable=False),
-    sa.Column('kind', sa.String(length=40), nullable=False),
-    sa.Column('subject', sa.String(length=200), nullable=False),
-    sa.Column('as_of', sa.Date(), nullable=False),
-    sa.Column('regime_versions', sa.String(length=400), server_default='', nullable=False),
-    sa.Column('chain_digest', sa.String(length=64), nullable=False),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_report_run'))
+    op.create_table(
+        "report_run",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("made_at", sa.DateTime(timezone=True), nullable=False),
+        sa.Column("kind", sa.String(length=40), nullable=False),
+        sa.Column("subject", sa.String(length=200), nullable=False),
+        sa.Column("as_of", sa.Date(), nullable=False),
+        sa.Column("regime_versions", sa.String(length=400), server_default="", nullable=False),
+        sa.Column("chain_digest", sa.String(length=64), nullable=False),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_report_run")),
     )
-    op.create_table('site',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('code', sa.String(length=40), nullable=False),
-    sa.Column('name', sa.String(length=200), nullable=False),
-    sa.Column('country', sa.String(length=2), nullable=False),
-    sa.Column('subdivision', sa.String(length=10), nullable=True),
-    sa.Column('timezone', sa.String(length=64), nullable=False),
-    sa.Column('regimes', sa.String(length=200), server_default='', nullable=False),
-    sa.Column('leak_rate_method', sa.String(length=20), server_default='annualizing', nullable=False),
-    sa.Column('mass_unit', sa.String(length=4), server_default='kg', nullable=False),
-    sa.Column('created_at', sa.DateTime(timezone=True), nullable=False),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_site')),
-    sa.UniqueConstraint('code', name=op.f('uq_site_code'))
+    op.create_table(
+        "site",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("code", sa.String(length=40), nullable=False),
+        sa.Column("name", sa.String(length=200), nullable=False),
+        sa.Column("country", sa.String(length=2), nullable=False),
+        sa.Column("subdivision", sa.String(length=10), nullable=True),
+        sa.Column("timezone", sa.String(length=64), nullable=False),
+        sa.Column("regimes", sa.String(length=200), server_default="", nullable=False),
+        sa.Column("leak_rate_method", sa.String(length=20), server_default="annualizing", nullable=False),
+        sa.Column("mass_unit", sa.String(length=4), server_default="kg", nullable=False),
+        sa.Column("created_at", sa.DateTime(timezone=True), nullable=False),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_site")),
+        sa.UniqueConstraint("code", name=op.f("uq_site_code")),
     )
-    op.create_table('system',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('site_id', sa.Integer(), nullable=False),
-    sa.Column('tag', sa.String(length=100), nullable=False),
-    sa.Column('description', sa.Text(), server_default='', nullable=False),
-    sa.Column('application', sa.String(length=40), nullable=False),
-    sa.Column('equipment_form', sa.String(length=40), server_default='other', nullable=False),
-    sa.Column('hermetic', sa.Boolean(), server_default='0', nullable=False),
-    sa.Column('residential', sa.Boolean(), server_default='0', nullable=False),
-    sa.Column('location', sa.Text(), server_default='', nullable=False),
-    sa.Column('maker', sa.String(length=200), server_default='', nullable=False),
-    sa.Column('model', sa.String(length=200), server_default='', nullable=False),
-    sa.Column('serial', sa.String(length=200), server_default='', nullable=False),
-    sa.Column('defrost_every_hours', sa.Float(), nullable=True),
-    sa.Column('created_at', sa.DateTime(timezone=True), nullable=False),
-    sa.ForeignKeyConstraint(['site_id'], ['site.id'], name=op.f('fk_system_site_id_site')),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_system')),
-    sa.UniqueConstraint('site_id', 'tag', name='uq_system_site_id_tag')
+    op.create_table(
+        "system",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("site_id", sa.Integer(), nullable=False),
+        sa.Column("tag", sa.String(length=100), nullable=False),
+        sa.Column("description", sa.Text(), server_default="", nullable=False),
+        sa.Column("application", sa.String(length=40), nullable=False),
+        sa.Column("equipment_form", sa.String(length=40), server_default="other", nullable=False),
+        sa.Column("hermetic", sa.Boolean(), server_default="0", nullable=False),
+        sa.Column("residential", sa.Boolean(), server_default="0", nullable=False),
+        sa.Column("location", sa.Text(), server_default="", nullable=False),
+        sa.Column("maker", sa.String(length=200), server_default="", nullable=False),
+        sa.Column("model", sa.String(length=200), server_default="", nullable=False),
+        sa.Column("serial", sa.String(length=200), server_default="", nullable=False),
+        sa.Column("defrost_every_hours", sa.Float(), nullable=True),
+        sa.Column("created_at", sa.DateTime(timezone=True), nullable=False),
+        sa.ForeignKeyConstraint(["site_id"], ["site.id"], name=op.f("fk_system_site_id_site")),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_system")),
+        sa.UniqueConstraint("site_id", "tag", name="uq_system_site_id_tag"),
     )
-    op.create_table('technician',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('name', sa.String(length=200), nullable=False),
-    sa.Column('company_id', sa.Integer(), nullable=True),
-    sa.Column('created_at', sa.DateTime(timezone=True), nullable=False),
-    sa.ForeignKeyConstraint(['company_id'], ['company.id'], name=op.f('fk_technician_company_id_company')),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_technician')),
-    sa.UniqueConstraint('name', name=op.f('uq_technician_name'))
+    op.create_table(
+        "technician",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("name", sa.String(length=200), nullable=False),
+        sa.Column("company_id", sa.Integer(), nullable=True),
+        sa.Column("created_at", sa.DateTime(timezone=True), nullable=False),
+        sa.ForeignKeyConstraint(["company_id"], ["company.id"], name=op.f("fk_technician_company_id_company")),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_technician")),
+        sa.UniqueConstraint("name", name=op.f("uq_technician_name")),
     )
-    op.create_table('certificate',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('technician_id', sa.Integer(), nullable=False),
-    sa.Column('scheme', sa.String(length=200), nullable=False),
-    sa.Column('number', sa.String(length=100), nullable=False),
-    sa.Column('category', sa.String(length=100), server_default='', nullable=False),
-    sa.Column('valid_from', sa.Date(), nullable=True),
-    sa.Column('valid_to', sa.Date(), nullable=True),
-    sa.ForeignKeyConstraint(['technician_id'], ['technician.id'], name=op.f('fk_certificate_technician_id_technician')),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_certificate')),
-    sa.UniqueConstraint('scheme', 'number', name='uq_certificate_scheme_number')
+    op.create_table(
+        "certificate",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("technician_id", sa.Integer(), nullable=False),
+        sa.Column("scheme", sa.String(length=200), nullable=False),
+        sa.Column("number", sa.String(length=100), nullable=False),
+        sa.Column("category", sa.String(length=100), server_default="", nullable=False),
+        sa.Column("valid_from", sa.Date(), nullable=True),
+        sa.Column("valid_to", sa.Date(), nullable=True),
+        sa.ForeignKeyConstraint(
+            ["technician_id"], ["technician.id"], name=op.f("fk_certificate_technician_id_technician")
+        ),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_certificate")),
+        sa.UniqueConstraint("scheme", "number", name="uq_certificate_scheme_number"),
     )
-    with op.batch_alter_table('certificate', schema=None) as batch_op:
-        batch_op.create_index(batch_op.f('ix_certificate_technician_id'), ['technician_id'], unique=False)
+    with op.batch_alter_table("certificate", schema=None) as batch_op:
+        batch_op.create_index(batch_op.f("ix_certificate_technician_id"), ["technician_id"], unique=False)
 
-    op.create_table('detector_channel',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('site_id', sa.Integer(), nullable=False),
-    sa.Column('code', sa.String(length=100), nullable=False),
-    sa.Column('system_id', sa.Integer(), nullable=False),
-    sa.Column('levels_ppm', sa.String(length=100), nullable=False),
-    sa.Column('night_start', sa.String(length=5), server_default='22:00', nullable=False),
-    sa.Column('night_end', sa.String(length=5), server_default='06:00', nullable=False),
-    sa.Column('created_at', sa.DateTime(timezone=True), nullable=False),
-    sa.ForeignKeyConstraint(['site_id'], ['site.id'], name=op.f('fk_detector_channel_site_id_site')),
-    sa.ForeignKeyConstraint(['system_id'], ['system.id'], name=op.f('fk_detector_channel_system_id_system')),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_detector_channel')),
-    sa.UniqueConstraint('site_id', 'code', name='uq_detector_channel_site_id_code')
+    op.create_table(
+        "detector_channel",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("site_id", sa.Integer(), nullable=False),
+        sa.Column("code", sa.String(length=100), nullable=False),
+        sa.Column("system_id", sa.Integer(), nullable=False),
+        sa.Column("levels_ppm", sa.String(length=100), nullable=False),
+        sa.Column("night_start", sa.String(length=5), server_default="22:00", nullable=False),
+        sa.Column("night_end", sa.String(length=5), server_default="06:00", nullable=False),
+        sa.Column("created_at", sa.DateTime(timezone=True), nullable=False),
+        sa.ForeignKeyConstraint(["site_id"], ["site.id"], name=op.f("fk_detector_channel_site_id_site")),
+        sa.ForeignKeyConstraint(["system_id"], ["system.id"], name=op.f("fk_detector_channel_system_id_system")),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_detector_channel")),
+        sa.UniqueConstraint("site_id", "code", name="uq_detector_channel_site_id_code"),
     )
-    with op.batch_alter_table('detector_channel', schema=None) as batch_op:
-        batch_op.create_index(batch_op.f('ix_detector_channel_system_id'), ['system_id'], unique=False)
+    with op.batch_alter_table("detector_channel", schema=None) as batch_op:
+        batch_op.create_index(batch_op.f("ix_detector_channel_system_id"), ["system_id"], unique=False)
 
-    op.create_table('detector_episode',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('channel_id', sa.Integer(), nullable=False),
-    sa.Column('level', sa.Integer(), nullable=False),
-    sa.Column('start_at', sa.DateTime(timezone=True), nullable=False),
-    sa.Column('end_at', sa.DateTime(timezone=True), nullable=False),
-    sa.Column('peak_ppm', sa.Float(), nullable=False),
-    sa.Column('ppm_hours', sa.Float(), nullable=False),
-    sa.Column('reviewed_at', sa.DateTime(timezone=True), nullable=False),
-    sa.ForeignKeyConstraint(['channel_id'], ['detector_channel.id'], name=op.f('fk_detector_episode_channel_id_detector_channel')),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_detector_episode'))
+    op.create_table(
+        "detector_episode",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("channel_id", sa.Integer(), nullable=False),
+        sa.Column("level", sa.Integer(), nullable=False),
+        sa.Column("start_at", sa.DateTime(timezone=True), nullable=False),
+        sa.Column("end_at", sa.DateTime(timezone=True), nullable=False),
+        sa.Column("peak_ppm", sa.Float(), nullable=False),
+        sa.Column("ppm_hours", sa.Float(), nullable=False),
+        sa.Column("reviewed_at", sa.DateTime(timezone=True), nullable=False),
+        sa.ForeignKeyConstraint(
+            ["channel_id"], ["detector_channel.id"], name=op.f("fk_detector_episode_channel_id_detector_channel")
+        ),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_detector_episode")),
     )
-    with op.batch_alter_table('detector_episode', schema=None) as batch_op:
-        batch_op.create_index('ix_detector_episode_channel_id_start_at', ['channel_id', 'start_at'], unique=False)
+    with op.batch_alter_table("detector_episode", schema=None) as batch_op:
+        batch_op.create_index("ix_detector_episode_channel_id_start_at", ["channel_id", "start_at"], unique=False)
 
-    op.create_table('event',
-    sa.Column('id', sa.Integer(), nullable=False),
-    sa.Column('system_id', sa.Integer(), nullable=False),
-    sa.Column('kind', sa.String(length=20), nullable=False),
-    sa.Column('performed_on', sa.Date(), nullable=False),
-    sa.Column('recorded_at', sa.DateTime(timezone=True), nullable=False),
-    sa.Column('mass_mg', sa.BigInteger(), nullable=True),
-    sa.Column('refrigerant', sa.String(length=40), nullable=True),
-    sa.Column('charge_mg', sa.BigInteger(), nullable=True),
-    sa.Column('result', sa.String(length=20), nullable=True),
-    sa.Column('location', sa.Text(), nullable=True),
-    sa.Column('method', sa.String(length=100), nullable=True),
-    sa.Column('destination', sa.String(length=20), nullable=True),
-    sa.Column('cylinder_id', sa.Integer(), nullable=True),
-    sa.Column('cylinder_before_mg', sa.BigInteger(), nullable=True),
-    sa.Column('cylinder_after_mg', sa.BigInteger(), nullable=True),
-    sa.Column('technician_id', sa.Integer(), nullable=True),
-    sa.Column('certificate_id', sa.Integer(), nullable=True),
-    sa.Column('recorded_by', sa.String(length=200), nullable=True),
-    sa.Column('note', sa.Text(), server_default='', nullable=False),
-    sa.Column('voids_id', sa.Integer(), nullable=True),
-    sa.Column('reason', sa.Text(), nullable=True),
-    sa.Column('attachments', sa.Text(), server_default='', nullable=False),
-    sa.Column('reclaimed', sa.Boolean(), server_default='0', nullable=False),
-    sa.Column('content_key', sa.String(length=64), nullable=True),
-    sa.Column('prev_hash', sa.String(length=64), nullable=False),
-    sa.Column('chain_hash', sa.String(length=64), nullable=False),
-    sa.ForeignKeyConstraint(['certificate_id'], ['certificate.id'], name=op.f('fk_event_certificate_id_certificate')),
-    sa.ForeignKeyConstraint(['cylinder_id'], ['cylinder.id'], name=op.f('fk_event_cylinder_id_cylinder')),
-    sa.ForeignKeyConstraint(['system_id'], ['system.id'], name=op.f('fk_event_system_id_system')),
-    sa.ForeignKeyConstraint(['technician_id'], ['technician.id'], name=op.f('fk_event_technician_id_technician')),
-    sa.ForeignKeyConstraint(['voids_id'], ['event.id'], name=op.f('fk_event_voids_id_event')),
-    sa.PrimaryKeyConstraint('id', name=op.f('pk_event')),
-    sa.UniqueConstraint('chain_hash', name=op.f('uq_event_chain_hash'))
+    op.create_table(
+        "event",
+        sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("system_id", sa.Integer(), nullable=False),
+        sa.Column("kind", sa.String(length=20), nullable=False),
+        sa.Column("performed_on", sa.Date(), nullable=False),
+        sa.Column("recorded_at", sa.DateTime(timezone=True), nullable=False),
+        sa.Column("mass_mg", sa.BigInteger(), nullable=True),
+        sa.Column("refrigerant", sa.String(length=40), nullable=True),
+        sa.Column("charge_mg", sa.BigInteger(), nullable=True),
+        sa.Column("result", sa.String(length=20), nullable=True),
+        sa.Column("location", sa.Text(), nullable=True),
+        sa.Column("method", sa.String(length=100), nullable=True),
+        sa.Column("destination", sa.String(length=20), nullable=True),
+        sa.Column("cylinder_id", sa.Integer(), nullable=True),
+        sa.Column("cylinder_before_mg", sa.BigInteger(), nullable=True),
+        sa.Column("cylinder_after_mg", sa.BigInteger(), nullable=True),
+        sa.Column("technician_id", sa.Integer(), nullable=True),
+        sa.Column("certificate_id", sa.Integer(), nullable=True),
+        sa.Column("recorded_by", sa.String(length=200), nullable=True),
+        sa.Column("note", sa.Text(), server_default="", nullable=False),
+        sa.Column("voids_id", sa.Integer(), nullable=True),
+        sa.Column("reason", sa.Text(), nullable=True),
+        sa.Column("attachments", sa.Text(), server_default="", nullable=False),
+        sa.Column("reclaimed", sa.Boolean(), server_default="0", nullable=False),
+        sa.Column("content_key", sa.String(length=64), nullable=True),
+        sa.Column("prev_hash", sa.String(length=64), nullable=False),
+        sa.Column("chain_hash", sa.String(length=64), nullable=False),
+        sa.ForeignKeyConstraint(
+            ["certificate_id"], ["certificate.id"], name=op.f("fk_event_certificate_id_certificate")
+        ),
+        sa.ForeignKeyConstraint(["cylinder_id"], ["cylinder.id"], name=op.f("fk_event_cylinder_id_cylinder")),
+        sa.ForeignKeyConstraint(["system_id"], ["system.id"], name=op.f("fk_event_system_id_system")),
+        sa.ForeignKeyConstraint(["technician_id"], ["technician.id"], name=op.f("fk_event_technician_id_technician")),
+        sa.ForeignKeyConstraint(["voids_id"], ["event.id"], name=op.f("fk_event_voids_id_event")),
+        sa.PrimaryKeyConstraint("id", name=op.f("pk_event")),
+        sa.UniqueConstraint("chain_hash", name=op.f("uq_event_chain_hash")),
     )
-    with op.batch_alter_table('event', schema=None) as batch_op:
-        batch_op.create_index('ix_event_content_key', ['content_key'], unique=False)
-        batch_op.create_index('ix_event_kind_performed_on', ['kind', 'performed_on'], unique=False)
-        batch_op.create_index('ix_event_system_id_id', ['system_id', 'id'], unique=False)
-        batch_op.create_index('ix_event_system_id_performed_on', ['system_id', 'performed_on'], unique=False)
+    with op.batch_alter_table("event", schema=None) as batch_op:
+        batch_op.create_index("ix_event_content_key", ["content_key"], unique=False)
+        batch_op.create_index("ix_event_kind_performed_on", ["kind", "performed_on"], unique=False)
+        batch_op.create_index("ix_event_system_id_id", ["system_id", "id"], unique=False)
+        batch_op.create_index("ix_event_system_id_performed_on", ["system_id", "performed_on"], unique=False)
 
     _create_append_only_triggers()
 
 
 def downgrade() -> None:
     _drop_append_only_triggers()
-    with op.batch_alter_table('event', schema=None) as batch_op:
-        batch_op.drop_index('ix_event_system_id_performed_on')
-        batch_op.drop_index('ix_event_system_id_id')
-        batch_op.drop_index('ix_event_kind_performed_on')
-        batch_op.drop_index('ix_event_content_key')
+    with op.batch_alter_table("event", schema=None) as batch_op:
+        batch_op.drop_index("ix_event_system_id_performed_on")
+        batch_op.drop_index("ix_event_system_id_id")
+        batch_op.drop_index("ix_event_kind_performed_on")
+        batch_op.drop_index("ix_event_content_key")
 
-    op.drop_table('event')
-    with op.batch_alter_table('detector_episode', schema=None) as batch_op:
-        batch_op.drop_index('ix_detector_episode_channel_id_start_at')
+    op.drop_table("event")
+    with op.batch_alter_table("detector_episode", schema=None) as batch_op:
+        batch_op.drop_index("ix_detector_episode_channel_id_start_at")
 
-    op.drop_table('detector_episode')
-    with op.batch_alter_table('detector_channel', schema=None) as batch_op:
-        batch_op.drop_index(batch_op.f('ix_detector_channel_system_id'))
+    op.drop_table("detector_episode")
+    with op.batch_alter_table("detector_channel", schema=None) as batch_op:
+        batch_op.drop_index(batch_op.f("ix_detector_channel_system_id"))
 
-    op.drop_table('detector_channel')
-    with op.batch_alter_table('certificate', schema=None) as batch_op:
-        batch_op.drop_index(batch_op.f('ix_certificate_technician_id'))
+    op.drop_table("detector_channel")
+    with op.batch_alter_table("certificate", schema=None) as batch_op:
+        batch_op.drop_index(batch_op.f("ix_certificate_technician_id"))
 
-    op.drop_table('certificate')
-    op.drop_table('technician')
-    op.drop_table('system')
-    op.drop_table('site')
-    op.drop_table('report_run')
-    op.drop_table('cylinder')
-    op.drop_table('company')
+    op.drop_table("certificate")
+    op.drop_table("technician")
+    op.drop_table("system")
+    op.drop_table("site")
+    op.drop_table("report_run")
+    op.drop_table("cylinder")
+    op.drop_table("company")
 
 
 APPEND_ONLY_MESSAGE = "events are append-only: record a void event instead"
