@@ -1,0 +1,149 @@
+"""Regime us-ca: California refrigerant management program, 17 CCR 95380 ff.
+
+Inspection intervals are 17 CCR 95385 and the repair deadline 95386 as given in
+reference-notes.md; scope and size classes from the same notes (secondary); the report date
+from the notes without a section (95388 from memory). "TEST-150" is a fictitious refrigerant
+of GWP exactly 150. 50 lb = 22 679 618.5 mg exactly.
+"""
+
+from __future__ import annotations
+
+from ledger.domain.records import Application, Confidence, ObligationKind, ObligationStatus
+from ledger.rules import us_ca
+from ledger.rules.common import BELOW_THRESHOLD, OUT_OF_SCOPE
+from tests.domain import D, Log, lb, site, system
+from tests.rules import REF, of_kind, summary
+
+OPEN, MET, OVERDUE = ObligationStatus.OPEN, ObligationStatus.MET, ObligationStatus.OVERDUE
+INSPECT = ObligationKind.LEAK_INSPECTION
+CA_SITE = site("CA1", "US", ("us-82f", "us-84c", "us-ca"), subdivision="US-CA")
+
+
+def _history(log, system_id=1):
+    return log.history(CA_SITE, system(system_id, "CA1",
+                                       application=Application.COMMERCIAL_REFRIGERATION))
+
+
+def _run(logs, as_of):
+    return us_ca.compute_obligations([_history(log, log.system_id) for log in logs], REF, as_of)
+
+
+def _tier(refrigerant, charge_mg, detection=False):
+    log = Log()
+    log.in_service(D(2025, 1, 1), refrigerant, charge_mg)
+    if detection:
+        log.detection_on(D(2025, 1, 1))
+    return us_ca.tier_of(_history(log), REF, D(2025, 6, 1))
+
+
+def test_scope_over_50_lb_of_gwp_150_or_more():
+    # 17 CCR 95380 ff. (notes): > 50 lb; GWP >= 150 (AR4)
+    assert _tier("TEST-150", 22_679_618).band == BELOW_THRESHOLD  # under 50 lb
+    assert _tier("TEST-150", 22_679_619).band == "50–200 lb"  # over 50 lb
+    assert _tier("TEST-53", lb(100)).band == OUT_OF_SCOPE  # GWP 53 < 150
+    assert _tier("R-744", lb(5000)).band == OUT_OF_SCOPE
+
+
+def test_inspection_interval_by_size():
+    # 17 CCR 95385: > 50-< 200 lb annually; 200-< 2 000 lb quarterly; >= 2 000 lb monthly,
+    # quarterly with automatic leak detection
+    assert _tier("R-404A", lb(199)).interval_months == 12
+    assert _tier("R-404A", lb(200)).interval_months == 3
+    assert _tier("R-404A", lb(1999)).interval_months == 3
+    assert _tier("R-404A", lb(2000)).interval_months == 1
+    assert _tier("R-404A", lb(2000), detection=True).interval_months == 3
+    assert _tier("R-404A", lb(200)).basis.confidence is Confidence.CHECKED
+
+
+def test_annual_inspection_due_at_the_end_of_the_calendar_year():
+    log = Log()
+    start = log.in_service(D(2025, 3, 10), "R-404A", lb(100))
+    obs, _ = _run([log], D(2025, 6, 1))
+    assert summary(obs) == [("leak-inspection", D(2025, 12, 31), "open", start.id, None)]
+    seen = log.check(D(2025, 5, 1))
+    obs, _ = _run([log], D(2025, 6, 1))
+    # the period holding as_of is met, so next year's is listed too
+    assert [(o.earliest_on, o.due_on, o.status, o.met_by) for o in obs] == [
+        (D(2025, 3, 10), D(2025, 12, 31), MET, seen.id),
+        (D(2026, 1, 1), D(2026, 12, 31), OPEN, None),
+    ]
+
+
+def test_quarterly_inspections_due_at_quarter_end():
+    log = Log()
+    log.in_service(D(2025, 2, 10), "R-404A", lb(300))
+    seen = log.check(D(2025, 3, 31))
+    obs, _ = _run([log], D(2025, 10, 5))
+    assert [(o.due_on, o.status, o.met_by) for o in of_kind(obs, INSPECT)] == [
+        (D(2025, 3, 31), MET, seen.id),
+        (D(2025, 6, 30), OVERDUE, None),
+        (D(2025, 9, 30), OVERDUE, None),
+        (D(2025, 12, 31), OPEN, None),
+    ]
+
+
+def test_large_system_monthly_without_detection_quarterly_with():
+    log = Log()
+    log.in_service(D(2025, 1, 31), "R-404A", lb(2500))
+    obs, _ = _run([log], D(2025, 3, 15))
+    assert [o.due_on for o in of_kind(obs, INSPECT)] == [
+        D(2025, 1, 31), D(2025, 2, 28), D(2025, 3, 31)]
+    log.detection_on(D(2025, 3, 1))
+    obs, _ = _run([log], D(2025, 3, 15))
+    # the March period is read on its first day: detection fitted -> calendar quarter
+    assert [o.due_on for o in of_kind(obs, INSPECT)] == [
+        D(2025, 1, 31), D(2025, 2, 28), D(2025, 3, 31)]
+    obs, _ = _run([log], D(2025, 5, 1))
+    assert [o.due_on for o in of_kind(obs, INSPECT)][-1] == D(2025, 6, 30)
+
+
+def test_leak_repair_within_14_days():
+    # 17 CCR 95386: repair within 14 days of detection
+    log = Log()
+    log.in_service(D(2025, 1, 1), "R-404A", lb(300))
+    leak = log.check(D(2025, 5, 20), leak=True)
+    obs, _ = _run([log], D(2025, 6, 5))
+    assert summary(of_kind(obs, ObligationKind.REPAIR)) == [
+        ("repair", D(2025, 6, 3), "overdue", leak.id, None)]
+    fix = log.repair(D(2025, 6, 2))
+    repair = of_kind(_run([log], D(2025, 6, 5))[0], ObligationKind.REPAIR)[0]
+    assert (repair.status, repair.met_by) == (MET, fix.id)
+
+
+def test_facility_report_for_large_and_medium_facilities_only():
+    # annual report by 1 March for large and medium facilities (notes; 95388 from memory)
+    big, small = Log(system_id=1), Log(system_id=2, first_id=100)
+    big.in_service(D(2024, 1, 1), "R-404A", lb(2100))
+    small.in_service(D(2024, 1, 1), "R-404A", lb(120))
+    reports = of_kind(_run([big, small], D(2025, 6, 1))[0], ObligationKind.REPORT)
+    assert [(r.due_on, r.status, r.system_id, r.site_code) for r in reports] == [
+        (D(2026, 3, 1), OPEN, None, "CA1")]
+    assert "large facility" in reports[0].detail and "SYS1" in reports[0].detail
+    assert reports[0].basis.confidence is Confidence.MEMORY
+    # on 1 March itself the report for the year before is the one due
+    assert of_kind(_run([big], D(2025, 3, 1))[0], ObligationKind.REPORT)[0].due_on == (
+        D(2025, 3, 1))
+    assert of_kind(_run([small], D(2025, 6, 1))[0], ObligationKind.REPORT) == []
+
+
+def test_retired_system_stops_its_inspections():
+    log = Log()
+    log.in_service(D(2025, 1, 1), "R-404A", lb(300))
+    seen = log.check(D(2025, 2, 1))
+    log.retire(D(2025, 5, 15))
+    obs, _ = _run([log], D(2026, 1, 1))
+    assert [(o.due_on, o.status, o.met_by) for o in of_kind(obs, INSPECT)] == [
+        (D(2025, 3, 31), MET, seen.id)]
+
+
+def test_systems_from_before_the_program_start_in_2011():
+    log = Log()
+    log.in_service(D(2008, 6, 1), "R-404A", lb(100))
+    obs, _ = _run([log], D(2011, 3, 1))
+    assert [(o.earliest_on, o.due_on) for o in of_kind(obs, INSPECT)] == [
+        (D(2011, 1, 1), D(2011, 12, 31))]
+
+
+def test_constants():
+    assert us_ca.GWP_BASIS == "ar4"
+    assert {c.basis.citation for c in us_ca.CONSTANTS} >= {"17 CCR 95385", "17 CCR 95386"}
