@@ -85,3 +85,7 @@ _register()
 def main() -> None:
     """Console-script entry point."""
     app()
+
+
+if __name__ == "__main__":
+    main()
