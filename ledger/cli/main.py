@@ -59,6 +59,7 @@ def _register() -> None:
         log_cmd,
         people_cmd,
         refrigerant_cmd,
+        report_cmd,
         site_cmd,
         system_cmd,
         verify_cmd,
@@ -70,6 +71,7 @@ def _register() -> None:
     app.add_typer(people_cmd.cylinder_app, name="cylinder")
     app.add_typer(log_cmd.app, name="log")
     due_cmd.register(app)
+    app.add_typer(report_cmd.app, name="report")
     app.add_typer(refrigerant_cmd.app, name="refrigerant")
     app.add_typer(detector_cmd.app, name="detector")
     verify_cmd.register(app)

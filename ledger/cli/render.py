@@ -18,6 +18,7 @@ import typer
 from typer.core import TyperGroup
 
 from ledger.errors import LedgerError
+from ledger.exports.common import CAUTION
 
 PIPED_WIDTH = 200  # columns used when stdout is not a terminal
 EXIT_FINDINGS = 1
@@ -82,8 +83,4 @@ def table(headers: Sequence[str], rows: Iterable[Sequence[Any]], *, title: str |
     console.print(t)
 
 
-LOCAL_RULES_NOTE = (
-    "Local regulation and the competent authority govern; schedules computed here are an aid "
-    "to be checked. Refrigerant work needs certified personnel; flammable (A2L/A2/A3) and toxic "
-    "(B-class, e.g. ammonia) refrigerants carry safety duties outside this tool."
-)
+LOCAL_RULES_NOTE = CAUTION  # the same caution every report carries

@@ -13,6 +13,8 @@ from ledger.store.db import Database, Location, upgrade
 # The scenario in sample_records/ is written to be seen on this day (its last events are in
 # late November 2026); a fixed day keeps the demo's output the same whenever it is run.
 DEMO_AS_OF = date(2026, 12, 1)
+# The sample records begin here; the sample logbook covers the records, not the years before.
+DEMO_RECORDS_FROM = date(2023, 12, 1)
 
 
 @dataclass(slots=True)
@@ -60,6 +62,7 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         if summary.added["sites"] == 0 and summary.skipped["sites"]:
             raise Conflict("db: already holds these sites; use an empty database or --replace")
         as_of = DEMO_AS_OF
+        correct_at_the_desk(db)
         detectors = records / "detectors"
         reviews = load_detectors(db, location, detectors) if detectors.is_dir() else []
         listing = due(db, as_of=as_of)
@@ -76,7 +79,7 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         if out is not None:
             from ledger.services.samples import write_samples
 
-            result.files = write_samples(db, out, as_of=as_of)
+            result.files = write_samples(db, out, as_of=as_of, records_from=DEMO_RECORDS_FROM)
             if reviews:
                 result.files.append(write_review_pdf(reviews[0], out))
         return result
@@ -128,3 +131,19 @@ def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
         repairs=result.repairs,
     )
     return path
+
+
+def correct_at_the_desk(db: Database) -> None:
+    """The office types a top-up as 16 kg instead of 1.6 kg and voids it: shows a correction.
+
+    Made through the services (the import format has no voids, which need an event id).
+    """
+    from ledger.domain.drafts import EventDraft
+    from ledger.domain.records import EventKind
+    from ledger.services.recording import log_event, void_event
+
+    wrong = log_event(db, site_code="DE-LEJ", tag="CU-DAIRY", draft=EventDraft(
+        kind=EventKind.ADD, performed_on=date(2026, 11, 5), mass_mg=16_000_000,
+        technician="Jana Köhler", recorded_by="Greta Lind", note="from the service sheet"))
+    void_event(db, event_id=wrong.event_id, reason="typed 16 kg for 1.6 kg; the 1.6 kg entry of the same day stands",
+               recorded_by="Greta Lind")

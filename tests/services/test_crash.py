@@ -29,7 +29,8 @@ def _events_file(folder: Path) -> Path:
         writer.writerow(["site", "tag", "kind", "on", "mass", "note"])
         start = date(2022, 1, 1)
         for i in range(ROWS):
-            writer.writerow(["S", f"T{i % 20}", "add", (start + timedelta(days=i % 1000)).isoformat(), "0.5 kg", f"row {i}"])
+            day = (start + timedelta(days=i % 1000)).isoformat()
+            writer.writerow(["S", f"T{i % 20}", "add", day, "0.5 kg", f"row {i}"])
     return path
 
 

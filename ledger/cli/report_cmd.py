@@ -1,0 +1,160 @@
+"""`refledger report`: a system's logbook and the annual loss summary, as PDF, xlsx or JSON."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from ledger.cli import context
+
+app = typer.Typer(
+    no_args_is_help=True,
+    help="Reports: system logbooks and the annual refrigerant loss summary.",
+)
+
+
+@app.command("logbook")
+def logbook(
+    ref: Annotated[
+        str | None, typer.Argument(metavar="SITE/TAG", help="The system, as SITE/TAG.")
+    ] = None,
+    site: Annotated[
+        str | None,
+        typer.Option("--site", help="Every system of this site, one PDF and one xlsx each (with --out)."),
+    ] = None,
+    out: Annotated[
+        Path | None, typer.Option("--out", help="Folder for --site logbooks.", metavar="DIR")
+    ] = None,
+    from_on: Annotated[
+        str | None, typer.Option("--from", help="First day shown, YYYY-MM-DD (default: the first event).")
+    ] = None,
+    to_on: Annotated[
+        str | None, typer.Option("--to", help="Last day shown, YYYY-MM-DD (default: today at the site).")
+    ] = None,
+    pdf: Annotated[Path | None, typer.Option("--pdf", help="Write a PDF to FILE.", metavar="FILE")] = None,
+    xlsx: Annotated[
+        Path | None, typer.Option("--xlsx", help="Write a spreadsheet to FILE.", metavar="FILE")
+    ] = None,
+    json_out: Annotated[bool, typer.Option("--json", help="Print the logbook as JSON.")] = False,
+) -> None:
+    """A system's logbook: header, every event (voided ones marked), obligations, chain head.
+
+    Example: refledger report logbook DE-HAM/LT-RACK --from 2025-01-01 --pdf lt-rack.pdf
+    """
+    from ledger.cli.render import print_json
+    from ledger.errors import InputError, LedgerError
+    from ledger.inputs import parse_day, parse_system_ref
+    from ledger.services import reporting
+
+    first = parse_day(from_on, field="--from") if from_on else None
+    last = parse_day(to_on, field="--to") if to_on else None
+    if (ref is None) == (site is None):
+        raise LedgerError("SITE/TAG: give either SITE/TAG or --site CODE (not both)")
+    db = context.open_db()
+    if site is not None:
+        if out is None:
+            raise LedgerError("--out: is needed with --site (the folder for the logbooks)")
+        if pdf or xlsx:
+            raise InputError("--pdf/--xlsx", str(pdf or xlsx), "names one system's file; with "
+                             "--site use --out DIR")
+        from ledger.exports.pdf import write_logbook_pdf
+        from ledger.exports.xlsx import write_logbook_xlsx
+        from ledger.services.samples import file_stem
+
+        books = reporting.site_logbooks(db, site_code=site, from_on=first, to_on=last)
+        if json_out:
+            print_json(books)
+        for book in books:
+            stem = file_stem("logbook", book["site"]["code"], book["system"]["tag"])
+            for path in (write_logbook_pdf(out / f"{stem}.pdf", book),
+                         write_logbook_xlsx(out / f"{stem}.xlsx", book)):
+                typer.echo(f"wrote {path}", err=json_out)
+        if not books:
+            typer.echo(f"site {site} has no systems", err=True)
+        return
+    if not (pdf or xlsx or json_out):
+        raise LedgerError("--pdf/--xlsx/--json: choose an output (--pdf FILE, --xlsx FILE or --json)")
+    assert ref is not None
+    site_code, tag = parse_system_ref(ref)
+    book = reporting.logbook(db, site_code=site_code, tag=tag, from_on=first, to_on=last)
+    if pdf:
+        from ledger.exports.pdf import write_logbook_pdf
+
+        typer.echo(f"wrote {write_logbook_pdf(pdf, book)}", err=json_out)
+    if xlsx:
+        from ledger.exports.xlsx import write_logbook_xlsx
+
+        typer.echo(f"wrote {write_logbook_xlsx(xlsx, book)}", err=json_out)
+    if json_out:
+        print_json(book)
+    else:
+        typer.echo(f"chain head {book['chain_head'] or '-'}")
+
+
+@app.command("annual")
+def annual(
+    year: Annotated[int, typer.Option("--year", help="The calendar year, e.g. 2025.")],
+    site: Annotated[str | None, typer.Option("--site", help="Only this site.")] = None,
+    basis: Annotated[
+        str | None,
+        typer.Option("--basis", help="GWP basis: eu, ar4, ar5 or ar6 (default: the sites' regime "
+                     "basis, or eu for a mixed estate)."),
+    ] = None,
+    xlsx: Annotated[
+        Path | None, typer.Option("--xlsx", help="Write a spreadsheet to FILE.", metavar="FILE")
+    ] = None,
+    pdf: Annotated[Path | None, typer.Option("--pdf", help="Write a PDF to FILE.", metavar="FILE")] = None,
+    json_out: Annotated[bool, typer.Option("--json", help="Print the summary as JSON.")] = False,
+) -> None:
+    """Annual loss summary: kg added and recovered, leak rates, t CO2e, scope 1 estimates.
+
+    Example: refledger report annual --year 2025 --basis ar5 --xlsx losses-2025.xlsx
+    """
+    from ledger.cli.render import print_json
+    from ledger.services.reporting import annual_summary
+
+    summary = annual_summary(context.open_db(), year=year, site_code=site, basis=basis)
+    if xlsx:
+        from ledger.exports.xlsx import write_annual_xlsx
+
+        typer.echo(f"wrote {write_annual_xlsx(xlsx, summary)}", err=json_out)
+    if pdf:
+        from ledger.exports.pdf import write_annual_pdf
+
+        typer.echo(f"wrote {write_annual_pdf(pdf, summary)}", err=json_out)
+    if json_out:
+        print_json(summary)
+        return
+    if not (xlsx or pdf):
+        _print_annual(summary)
+
+
+def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
+    from ledger.cli.render import table
+    from ledger.exports.common import CAUTION, KG, PERCENT, TONNES, fmt
+
+    e = summary["estate"]
+    typer.echo(
+        f"Annual loss summary {summary['year']} ({summary['site_filter'] or 'whole estate'}), "
+        f"GWP basis {summary['basis']}: {fmt(e['added_kg'], KG)} kg added, "
+        f"{fmt(e['co2e_t'], TONNES)} t CO2e, {e['chronic']} chronic leakers, "
+        f"{e['overdue']} obligations overdue"
+    )
+    table(
+        ["site", "systems", "added kg", "recovered kg", "net loss kg", "leak rate %", "t CO2e",
+         "125 %+", "overdue"],
+        [[s["site"], s["systems"], fmt(s["added_kg"], KG), fmt(s["recovered_kg"], KG),
+          fmt(s["net_loss_kg"], KG), fmt(s["leak_rate_percent"], PERCENT), fmt(s["co2e_t"], TONNES),
+          s["chronic"], s["overdue"]] for s in summary["sites"]]
+        + [["estate", e["systems"], fmt(e["added_kg"], KG), fmt(e["recovered_kg"], KG),
+            fmt(e["net_loss_kg"], KG), fmt(e["leak_rate_percent"], PERCENT), fmt(e["co2e_t"], TONNES),
+            e["chronic"], e["overdue"]]],
+    )
+    table(
+        ["scope 1 method", "emissions kg", "t CO2e", "formula"],
+        [[m["label"], fmt(m["emissions_kg"], KG), fmt(m["co2e_t"], TONNES), m["formula"]]
+         for m in summary["scope1"]],
+    )
+    typer.echo(CAUTION)

@@ -1,0 +1,170 @@
+"""What every report shares: the caution, column kinds, safe text, number formatting, palette.
+
+Imports only the standard library, so the CLI can print ``CAUTION`` without loading a writer.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from datetime import date, datetime
+from decimal import ROUND_HALF_UP, Decimal
+from typing import Any
+
+# The note every report carries (design §8): PDFs print it, spreadsheets put it on their notes
+# sheet, JSON output has it as ``caution``.
+CAUTION = (
+    "Local regulation and the competent authority govern; schedules computed here are an aid "
+    "to be checked. Refrigerant work needs certified personnel; flammable (A2L/A2/A3) and toxic "
+    "(B-class, e.g. ammonia) refrigerants carry safety duties (ventilation, detection, occupancy "
+    "limits) outside this tool."
+)
+
+# Characters that make a spreadsheet (or a program importing a CSV) read a cell as a formula.
+FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
+
+# Column kinds: how a value is stored, formatted and totalled.
+TEXT = "text"  # free text (user-supplied text is guarded against formula injection)
+DATE = "date"  # a calendar day
+DATETIME = "datetime"  # an aware UTC time, shown as ISO text
+KG = "kg"  # mass in kg, three decimals shown (the gram)
+TONNES = "t"  # t CO2e, three decimals shown
+PERCENT = "percent"  # a percentage as a number (23.5 means 23.5 %), one decimal shown
+INT = "int"  # a count
+NUMBER = "number"  # any other number (GWP), shown as stored
+BOOL = "bool"  # yes / blank
+KINDS = (TEXT, DATE, DATETIME, KG, TONNES, PERCENT, INT, NUMBER, BOOL)
+
+# Own neutral palette: ink, muted greys and one blue-grey accent; overdue rows get a pale warm
+# sand tint plus a bold marker in the status cell, so the mark survives black-and-white print.
+INK = "#1d232a"
+MUTED = "#5b6570"
+RULE = "#c9ced4"
+HEADER_FILL = "#e7eaee"
+ACCENT = "#35566e"
+ACCENT_LIGHT = "#9bb0c0"
+OVERDUE_FILL = "#f4e6cf"
+VOIDED_INK = "#8a9096"
+OVERDUE_MARK = "OVERDUE"
+
+
+@dataclass(frozen=True, slots=True)
+class Column:
+    """One column of a report table.
+
+    ``total``: "sum" for a SUM over the rows, ``("ratio", numerator key, denominator key,
+    factor)`` for a ratio of two totals, or None.
+    """
+
+    key: str
+    header: str  # with the unit, e.g. "added (kg)"
+    kind: str = TEXT
+    total: str | tuple[str, str, str, int] | None = None
+    width: int | None = None  # spreadsheet width in characters; None: from the content
+
+
+def is_blank(value: Any) -> bool:
+    """True for None, NaN and pandas' missing markers (without importing pandas)."""
+    if value is None:
+        return True
+    if isinstance(value, float) and math.isnan(value):
+        return True
+    return type(value).__name__ in ("NAType", "NaTType")
+
+
+def needs_guard(text: str) -> bool:
+    """True when a text would be read as a formula by a spreadsheet."""
+    return text.startswith(FORMULA_PREFIXES)
+
+
+def csv_safe(text: str) -> str:
+    """Text for a CSV cell: a leading apostrophe disarms a formula prefix (OWASP advice)."""
+    return "'" + text if needs_guard(text) else text
+
+
+def to_number(value: Any) -> float | int | None:
+    """A Decimal/int/float as a spreadsheet number (ints stay ints), None stays None."""
+    if is_blank(value):
+        return None
+    if isinstance(value, bool):
+        return int(value)
+    if isinstance(value, int):
+        return value
+    if isinstance(value, Decimal):
+        return int(value) if value == value.to_integral_value() else float(value)
+    return float(value)
+
+
+def fmt(value: Any, kind: str, places: int | None = None) -> str:
+    """A value as display text for PDFs and text output (rounded half-up for display only)."""
+    if is_blank(value):
+        return ""
+    if kind in (KG, TONNES, PERCENT, NUMBER):
+        default = {KG: 3, TONNES: 3, PERCENT: 1, NUMBER: 0}[kind]
+        q = Decimal(1).scaleb(-(default if places is None else places))
+        number = Decimal(str(value)) if isinstance(value, float) else Decimal(value)
+        text = f"{number.quantize(q, rounding=ROUND_HALF_UP):,}"
+        return text
+    if kind == INT:
+        return f"{int(value):,}"
+    if kind == BOOL:
+        return "yes" if value else ""
+    if kind == DATE and isinstance(value, date | datetime):
+        return value.isoformat()[:10]
+    if kind == DATETIME and isinstance(value, datetime):
+        return value.strftime("%Y-%m-%d %H:%M UTC")
+    return str(value)
+
+
+def short_hash(digest: str | None, n: int = 12) -> str:
+    """The first characters of a hash, for tables (footers print the whole hash)."""
+    return (digest or "")[:n]
+
+
+# How the annual summary's figures are defined; printed on the notes sheet and in the PDF.
+ANNUAL_CONVENTIONS: tuple[tuple[str, str], ...] = (
+    ("added", "every addition of refrigerant in the year (kg), as recorded"),
+    ("initial charge", "additions on the day a system was placed in service or retrofitted; "
+     "part of its charge, not a loss"),
+    ("leak rate", "additions excluding initial charges / full charge x 100; the full charge is "
+     "the one held on 31 December, or on the last day in service for a system retired or "
+     "retrofitted in the year"),
+    ("CO2e of additions", "additions excluding initial charges x GWP of the refrigerant held "
+     "that day / 1000, under the basis named"),
+    ("net loss", "material balance per system: full charge on 1 January + charges of units "
+     "placed in service + additions excluding initial charges - recovered - full charge on "
+     "31 December"),
+    ("recovered", "recover events and the mass recovered at retirement, by destination"),
+    ("125 % or more added", "additions excluding initial charges of at least 125 % of the full "
+     "charge in the calendar year (the US 40 CFR 82.157(j) test, shown for every system as an "
+     "indicator; only US regimes attach a report duty to it)"),
+    ("leak checks required", "periodic leak-check and leak-inspection obligations due in the "
+     "year under the site's regimes"),
+    ("leak checks done", "leak-check events recorded in the year"),
+    ("missed / overdue", "obligations due in the year and not met on the evaluation day"),
+    ("chain digest", "SHA-256 over '<system id>:<chain head>' lines of every system in scope; "
+     "recompute it from the ledger to tie this report to the records"),
+)
+
+# EU 517/2014 Art 6 record items (kept by Reg. (EU) 2024/573 Art 7) and where a logbook shows
+# each; the PDF and the spreadsheet print this table, and tests check each mapping.
+ART6_MAP: tuple[tuple[str, str, str], ...] = (
+    ("(a)", "quantity and type of fluorinated gas installed",
+     "system sheet: refrigerant, composition, full charge; events 'placed in service' and "
+     "'retrofit': refrigerant, full charge (kg)"),
+    ("(b)", "quantities added during installation, maintenance or servicing or due to leakage",
+     "events 'refrigerant added': quantity (kg), added for (installation / servicing / leak)"),
+    ("(c)", "whether recycled or reclaimed gas was used, with the facility and its certificate",
+     "events: 'recycled or reclaimed gas' column, cylinder and cylinder kind; the reclaimer's "
+     "name and certificate go in the note"),
+    ("(d)", "quantity of gas recovered",
+     "events 'refrigerant recovered' and 'taken out of service': quantity (kg), recovered gas to"),
+    ("(e)", "identity of the undertaking that installed, serviced, checked or decommissioned, "
+     "with its certificate number",
+     "events: technician, company, certificate (scheme, number)"),
+    ("(f)", "dates and results of the checks",
+     "events 'leak check', 'follow-up check', 'detection system check': date, result, location, "
+     "check method"),
+    ("(g)", "recovery and disposal measures at final decommissioning",
+     "event 'taken out of service': date, quantity (kg), recovered gas to, note"),
+)
