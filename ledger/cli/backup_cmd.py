@@ -16,13 +16,29 @@ def register(app: typer.Typer) -> None:
     app.command("restore")(restore)
 
 
-def export(folder: Annotated[Path, typer.Argument(metavar="DIR", help="Empty or new folder.")]) -> None:
+def export(
+    folder: Annotated[Path | None, typer.Argument(metavar="DIR", help="Empty or new folder.")] = None,
+    workbook: Annotated[
+        Path | None,
+        typer.Option("--workbook", help="Instead: every record as an import workbook (docs/import.md).",
+                     metavar="FILE"),
+    ] = None,
+) -> None:
     """Write the whole ledger as plain files (one per table) plus a manifest with counts and digests.
+
+    With --workbook, write the records in the import layout instead; importing that workbook
+    into an empty ledger gives the same records and the same chain heads.
 
     Example: refledger export backup-2026-12-01
     """
-    from ledger.services.backup import export_ledger
+    from ledger.services.backup import export_ledger, export_workbook
 
+    if workbook is not None:
+        counts = export_workbook(context.open_db(), workbook)
+        typer.echo(f"wrote {workbook}: " + ", ".join(f"{n} {k}" for k, n in counts.items()))
+        return
+    if folder is None:
+        raise typer.BadParameter("give a folder, or --workbook FILE", param_hint="DIR")
     result = export_ledger(context.open_db(), folder)
     total = sum(result.counts.values())
     typer.echo(

@@ -18,7 +18,11 @@ def register(app: typer.Typer) -> None:
 
 
 def demo(
-    records: Annotated[Path, typer.Option("--records", help="Folder with the demo CSV files.")] = DEFAULT_RECORDS,
+    records: Annotated[
+        Path,
+        typer.Option("--records", help="Folder with the demo CSV files [default: the project's sample_records/].",
+                     show_default=False),
+    ] = DEFAULT_RECORDS,
     out: Annotated[Path | None, typer.Option("--out", help="Also write sample reports into this folder.")] = None,
     replace: Annotated[bool, typer.Option("--replace", help="Delete an existing SQLite demo file first.")] = False,
 ) -> None:

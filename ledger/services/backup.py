@@ -15,6 +15,7 @@ import hashlib
 import json
 from dataclasses import dataclass
 from datetime import UTC, date, datetime
+from decimal import Decimal
 from pathlib import Path
 from typing import Any
 
@@ -180,3 +181,111 @@ def restore_ledger(folder: Path, location: Location) -> BackupResult:
         return BackupResult(folder, counts, checked.digest)
     finally:
         db.close()
+
+
+# ---- the records as an import workbook ------------------------------------------------------
+
+
+def _mass_text(mg: int | None) -> str:
+    """Exact kg text for a mass (the import parses it back to the same milligram)."""
+    if mg is None:
+        return ""
+    text = format(Decimal(mg) / 1_000_000, "f")
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return f"{text} kg"
+
+
+def _day(value: date | None) -> str:
+    return value.isoformat() if value else ""
+
+
+def export_workbook(db: Database, path: Path) -> dict[str, int]:
+    """Write every record in the import layout (docs/import.md), one sheet per record type.
+
+    Events carry their ``recorded_at`` and voids name the voided event by its chain hash, so
+    importing the workbook into an empty ledger reproduces the same chains and chain heads.
+
+    Returns:
+        Rows written per sheet.
+    """
+    from openpyxl import Workbook
+
+    from ledger.domain.records import EventKind
+    from ledger.services.importing import COLUMNS, ORDER
+    from ledger.store import repository as repo
+
+    with db.read() as conn:
+        sites = repo.list_sites(conn=conn)
+        techs = repo.list_technicians(conn=conn)
+        cylinders = repo.list_cylinders(conn=conn)
+        histories = repo.load_histories(conn=conn)
+    hashes = {e.id: e.chain_hash for h in histories for e in h.events}
+    sheets: dict[str, list[dict[str, str]]] = {k: [] for k in ORDER}
+    for s in sites:
+        sheets["sites"].append({
+            "code": s.code, "name": s.name, "country": s.country, "subdivision": s.subdivision or "",
+            "timezone": s.timezone, "regimes": " ".join(s.regimes), "leak_rate_method": s.leak_rate_method,
+            "unit": s.mass_unit,
+        })
+    for t in techs:
+        for c in t.certificates:
+            sheets["technicians"].append({
+                "name": t.name, "company": t.company, "scheme": c.scheme, "certificate": c.number,
+                "category": c.category, "valid_from": _day(c.valid_from), "valid_to": _day(c.valid_to),
+            })
+    for cy in cylinders:
+        sheets["cylinders"].append({"id": cy.id, "refrigerant": cy.refrigerant, "kind": cy.kind.value,
+                                    "tare": _mass_text(cy.tare_mg)})
+    for h in histories:
+        placed = next((e for e in h.events if e.kind is EventKind.IN_SERVICE), None)
+        if placed is None:
+            continue
+        sy = h.system
+        sheets["systems"].append({
+            "site": h.site.code, "tag": sy.tag, "refrigerant": placed.refrigerant or "",
+            "charge": _mass_text(placed.charge_mg), "application": sy.application.value,
+            "in_service": placed.performed_on.isoformat(), "form": sy.equipment_form.value,
+            "description": sy.description, "hermetic": "yes" if sy.hermetic else "no",
+            "residential": "yes" if sy.residential else "no", "detection_system": "no",
+            "location": sy.location, "maker": sy.maker, "model": sy.model, "serial": sy.serial,
+            "defrost_every_hours": "" if sy.defrost_every_hours is None else f"{sy.defrost_every_hours:g}",
+            "tech": placed.technician or "", "by": placed.recorded_by or "",
+            "recorded_at": placed.recorded_at.isoformat() if placed.recorded_at else "",
+        })
+        for e in sorted(h.events, key=lambda e: e.id):
+            if e.kind is EventKind.IN_SERVICE:
+                continue
+            weighed = e.cylinder_before_mg is not None and e.cylinder_after_mg is not None
+            sheets["events"].append({
+                "site": h.site.code, "tag": sy.tag, "kind": e.kind.value, "on": e.performed_on.isoformat(),
+                "mass": "" if weighed else _mass_text(e.mass_mg),
+                "cylinder": e.cylinder_id or "",
+                "before": _mass_text(e.cylinder_before_mg) if weighed else "",
+                "after": _mass_text(e.cylinder_after_mg) if weighed else "",
+                "refrigerant": e.refrigerant or "", "charge": _mass_text(e.charge_mg),
+                "result": e.result or "", "where": e.location or "", "method": e.method or "",
+                "destination": e.destination or "", "reclaimed": "yes" if e.reclaimed else "",
+                "tech": e.technician or "", "by": e.recorded_by or "", "note": e.note,
+                "recorded_at": e.recorded_at.isoformat() if e.recorded_at else "",
+                "attachments": " ".join(e.attachments),
+                "voids": hashes.get(e.voids_id, "") if e.voids_id else "", "reason": e.reason or "",
+            })
+    book = Workbook()
+    book.remove(book.active)
+    counts = {}
+    for kind in ORDER:
+        sheet = book.create_sheet(kind)
+        required, optional = COLUMNS[kind]
+        names = sorted(required) + sorted(optional)
+        sheet.append(names)
+        for row in sheets[kind]:
+            sheet.append([row.get(n, "") or None for n in names])
+        for cells in sheet.iter_rows(min_row=2):
+            for cell in cells:
+                if cell.value is not None:
+                    cell.data_type = "s"  # all text: formulas never run, dates never reinterpreted
+        sheet.freeze_panes = "A2"
+        counts[kind] = len(sheets[kind])
+    book.save(path)
+    return counts

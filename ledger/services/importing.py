@@ -15,7 +15,7 @@ import json
 from collections import defaultdict
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field, replace
-from datetime import date, datetime
+from datetime import UTC, date, datetime
 from pathlib import Path
 from typing import Any
 
@@ -68,6 +68,8 @@ COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
                 "serial",
                 "defrost_every_hours",
                 "tech",
+                "by",
+                "recorded_at",
             }
         ),
     ),
@@ -89,13 +91,19 @@ COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
                 "tech",
                 "by",
                 "note",
+                "recorded_at",
+                "attachments",
+                "voids",
+                "reason",
             }
         ),
     ),
 }
 
-# Event kinds an import may carry; voids need an event id and go through `log void`.
-IMPORT_KINDS = frozenset(EventKind) - {EventKind.IN_SERVICE, EventKind.VOID}
+# Event kinds an import may carry (placing in service comes from the systems sheet). A void
+# names the voided event by its chain hash, so it can refer to a row of the same input.
+IMPORT_KINDS = frozenset(EventKind) - {EventKind.IN_SERVICE}
+HASH_LENGTH = 64
 TRUE = frozenset({"yes", "y", "true", "1", "x"})
 FALSE = frozenset({"no", "n", "false", "0", ""})
 MAX_CELL = 10_000  # characters; longer cells are refused rather than stored
@@ -296,6 +304,24 @@ class _Cells:
             self.fail(column, str(exc).split(": ", 1)[-1].replace(repr(value) + " ", ""))
             return None
 
+    def moment(self, column: str, *, now: datetime) -> datetime | None:
+        """An ISO 8601 time with a UTC offset (when the ledger recorded an event)."""
+        value = self.text(column)
+        if not value:
+            return None
+        try:
+            parsed = datetime.fromisoformat(value.replace("Z", "+00:00"))
+        except ValueError:
+            self.fail(column, "is not an ISO 8601 time, e.g. 2025-03-14T09:30:00+00:00")
+            return None
+        if parsed.tzinfo is None:
+            self.fail(column, "needs a UTC offset, e.g. +00:00")
+            return None
+        if parsed > now:
+            self.fail(column, "is in the future")
+            return None
+        return parsed.astimezone(UTC)
+
     def flag(self, column: str) -> bool:
         value = self.text(column).lower()
         if value in TRUE:
@@ -403,6 +429,7 @@ class _Job:
     def __init__(self, conn: Any, dayfirst: bool, summary: ImportSummary, progress: ProgressFn | None) -> None:
         self.conn, self.dayfirst, self.summary, self.progress = conn, dayfirst, summary, progress
         self.problems = _Problems()
+        self.now = repo.now_utc()  # one recording time for every row that does not bring its own
 
     def cells(self, row: Row) -> _Cells:
         return _Cells(row, self.problems, self.dayfirst)
@@ -522,6 +549,8 @@ class _Job:
             flags = {k: c.flag(k) for k in ("hermetic", "residential", "detection_system")}
             defrost = c.text("defrost_every_hours")
             tech_name = c.text("tech")
+            recorded_by = c.text("by") or tech_name or None
+            recorded_at = c.moment("recorded_at", now=self.now)
             if site_code and site_code not in sites:
                 c.fail("site", "is not a site in the ledger or the input")
             if tech_name and tech_name not in techs:
@@ -568,7 +597,8 @@ class _Job:
                 "performed_on": in_service,
                 "technician_id": tech_id,
                 "certificate_id": cert_id,
-                "recorded_by": tech_name or None,
+                "recorded_by": recorded_by,
+                "recorded_at": recorded_at or self.now,
             }
             repo.append_event(
                 conn=self.conn, values={**common, "kind": "in-service", "refrigerant": refrigerant, "charge_mg": charge}
@@ -579,6 +609,14 @@ class _Job:
 
     def _technicians(self) -> dict[str, tuple[Technician, dict[str, int]]]:
         return {t.name: repo.get_technician(t.name, conn=self.conn) for t in repo.list_technicians(conn=self.conn)}
+
+    @staticmethod
+    def _certificate_key(techs: dict[str, tuple[Technician, dict[str, int]]], name: str, on: date) -> str | None:
+        """The natural key (``scheme|number``) of the certificate ``_tech_ids`` picks."""
+        if not name or name not in techs:
+            return None
+        valid = [cert for cert in techs[name][0].certificates if cert.valid_on(on)]
+        return f"{valid[0].scheme}|{valid[0].number}" if valid else None
 
     @staticmethod
     def _tech_ids(
@@ -619,6 +657,11 @@ class _Job:
             )
         }
         heads: dict[int, str] = {}
+        # chain hash -> (event id, system id, kind); negative ids are rows of this input
+        by_hash: dict[str, tuple[int, int, EventKind]] = {
+            e.chain_hash: (e.id, sid, e.kind) for sid, evs in history.items() for e in evs if e.chain_hash
+        }
+        voided_ids = {e.voids_id for evs in history.values() for e in evs if e.voids_id is not None}
         pending: list[dict[str, Any]] = []
         total = len(rows)
         today_by_site = {code: site_today(s.timezone) for code, s in sites.items()}
@@ -640,6 +683,18 @@ class _Job:
                 self.summary.skipped["events"] += 1
                 continue
             kind = EventKind(kind_text)
+            recorded_at = c.moment("recorded_at", now=self.now) or self.now
+            voids_id = None
+            target_hash = (c.text("voids") or "").lower() or None
+            if kind is EventKind.VOID:
+                voids_id = self._void_target(c, target_hash, sys_.id, by_hash, voided_ids)
+                if c.bad:
+                    continue
+            elif target_hash:
+                c.fail("voids", "applies only to kind void")
+            attachments = c.text("attachments").split()
+            if any(len(a) != HASH_LENGTH or any(ch not in "0123456789abcdef" for ch in a) for a in attachments):
+                c.fail("attachments", "must be SHA-256 digests (64 hex digits) separated by spaces")
             draft = EventDraft(
                 kind=kind,
                 performed_on=on,
@@ -657,6 +712,8 @@ class _Job:
                 recorded_by=c.text("by") or c.text("tech") or None,
                 note=c.text("note"),
                 reclaimed=c.flag("reclaimed"),
+                voids_id=voids_id,
+                reason=c.text("reason") or None,
             )
             if draft.technician and draft.technician not in techs:
                 c.fail("tech", "is not a technician in the ledger or the input")
@@ -709,14 +766,29 @@ class _Job:
                 "certificate_id": cert_id,
                 "recorded_by": draft.recorded_by,
                 "note": draft.note,
-                "attachments": "",
+                "attachments": " ".join(attachments),
                 "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
                 "content_key": key,
-                "voids_id": None,
-                "reason": None,
+                "voids_id": voids_id,
+                "reason": draft.reason,
+                "recorded_at": recorded_at,
             }
+            if sys_.id not in heads:
+                heads[sys_.id] = repo.chain_head(sys_.id, conn=self.conn)
+            natural = {
+                "system": f"{site_code}/{tag}",
+                "technician": draft.technician,
+                "certificate": self._certificate_key(techs, draft.technician or "", on),
+                "cylinder": draft.cylinder_code,
+                "voids": target_hash if kind is EventKind.VOID else None,
+            }
+            values["prev_hash"] = heads[sys_.id]
+            values["chain_hash"] = heads[sys_.id] = chain.link(heads[sys_.id], {**values, **natural})
             pending.append(values)
             keys.add(key)
+            by_hash[values["chain_hash"]] = (next_temp_id, sys_.id, kind)
+            if voids_id is not None:
+                voided_ids.add(voids_id)
             history[sys_.id].append(
                 Event(
                     id=next_temp_id,
@@ -727,12 +799,13 @@ class _Job:
                     refrigerant=values["refrigerant"],
                     charge_mg=draft.charge_mg,
                     result=draft.result,
+                    voids_id=voids_id,
                 )
             )
             next_temp_id -= 1
         if self.problems.items or not pending:
             return
-        self._write_events(pending, heads)
+        self._write_events(pending)
         self.summary.added["events"] += len(pending)
         if self.progress:
             self.progress(total, total)
@@ -744,20 +817,53 @@ class _Job:
 
         return {r.code: r.id for r in self.conn.execute(select(cylinder.c.code, cylinder.c.id))}
 
-    def _write_events(self, pending: list[dict[str, Any]], heads: dict[int, str]) -> None:
-        from sqlalchemy import insert
+    def _void_target(
+        self,
+        c: _Cells,
+        target_hash: str | None,
+        system_id: int,
+        by_hash: dict[str, tuple[int, int, EventKind]],
+        voided_ids: set[int],
+    ) -> int | None:
+        """The (possibly provisional, negative) id of the event a void row names; else a problem."""
+        if not target_hash:
+            c.fail("voids", "is required for kind void: the chain hash of the voided event")
+            return None
+        if not c.text("reason"):
+            c.fail("reason", "is required for kind void")
+        found = by_hash.get(target_hash)
+        if found is None:
+            c.fail("voids", "is not the chain hash of an event in the ledger or earlier in the input")
+            return None
+        event_id, owner, kind = found
+        if owner != system_id:
+            c.fail("voids", "names an event of another system")
+        elif kind in (EventKind.VOID, EventKind.IN_SERVICE):
+            c.fail("voids", f"names a {kind.value} event, which cannot be voided")
+        elif event_id in voided_ids:
+            c.fail("voids", "names an event that is already voided")
+        return event_id
+
+    def _write_events(self, pending: list[dict[str, Any]]) -> None:
+        """Insert in input order; a void of a row of this input gets that row's real id."""
+        from sqlalchemy import insert, select
 
         from ledger.store.tables import event as event_table
 
-        now = repo.now_utc()
+        hash_of = {-(i + 1): v["chain_hash"] for i, v in enumerate(pending)}
+        batch: list[dict[str, Any]] = []
         for values in pending:
-            sid = values["system_id"]
-            if sid not in heads:
-                heads[sid] = repo.chain_head(sid, conn=self.conn)
-            values["recorded_at"] = now
-            values["prev_hash"] = heads[sid]
-            values["chain_hash"] = heads[sid] = chain.link(heads[sid], values)
-        self.conn.execute(insert(event_table), pending)
+            target = values["voids_id"]
+            if target is not None and target < 0:
+                if batch:
+                    self.conn.execute(insert(event_table), batch)
+                    batch = []
+                values["voids_id"] = self.conn.execute(
+                    select(event_table.c.id).where(event_table.c.chain_hash == hash_of[target])
+                ).scalar_one()
+            batch.append(values)
+        if batch:
+            self.conn.execute(insert(event_table), batch)
 
 
 def _column_for(f: Finding) -> str:

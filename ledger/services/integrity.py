@@ -86,17 +86,11 @@ def check_chain(rows: list[dict[str, Any]]) -> tuple[str, str, int] | None:
 
 def verify(db: Database, *, site_code: str | None = None) -> Verification:
     """Recompute every chain (or one site's)."""
-    from sqlalchemy import select
-
-    from ledger.store.tables import event, site, system
+    from ledger.store.repository import events_with_keys
+    from ledger.store.tables import event, site
 
     result = Verification()
-    stmt = (
-        select(event, site.c.code.label("site_code"), system.c.tag.label("tag"))
-        .join(system, system.c.id == event.c.system_id)
-        .join(site, site.c.id == system.c.site_id)
-        .order_by(event.c.system_id, event.c.id)
-    )
+    stmt = events_with_keys().order_by(event.c.system_id, event.c.id)
     if site_code:
         stmt = stmt.where(site.c.code == site_code)
     grouped: dict[tuple[str, str], list[dict[str, Any]]] = defaultdict(list)

@@ -209,7 +209,8 @@ def next_due(db: Database, *, site_code: str, tag: str, limit: int = 3) -> list[
     current, _ = current_only(obligations)
     pending = [o for o in current if o.status is not ObligationStatus.MET]
     return [
-        f"{o.kind.value} {o.status.value} by {o.due_on.isoformat()} ({o.regime}: {o.basis.citation})"
+        f"{o.kind.value} {'overdue since' if o.status is ObligationStatus.OVERDUE else 'due by'} "
+        f"{o.due_on.isoformat()} ({o.regime}: {o.basis.citation})"
         for o in pending[:limit]
     ]
 

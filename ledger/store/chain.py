@@ -17,12 +17,15 @@ from datetime import UTC, date, datetime
 from typing import Any
 
 GENESIS = "0" * 64
-CHAIN_VERSION = 1
+CHAIN_VERSION = 1  # bump when CANONICAL_FIELDS or their form change
 
-# The event columns that the hash covers: everything except the surrogate row id, the
-# chain columns themselves and the import content key (a lookup aid).
+# What the hash covers: the event's content, with every reference written as the natural key
+# a person would read on a logbook (site/tag, technician name, certificate scheme and number,
+# cylinder id, the voided event's own hash) rather than a database row id, so that a chain
+# computed in one database holds in any other the records are moved or re-imported into.
+# Not covered: the row id, the chain columns themselves and the import content key.
 CANONICAL_FIELDS: tuple[str, ...] = (
-    "system_id",
+    "system",  # "SITE/TAG"
     "kind",
     "performed_on",
     "recorded_at",
@@ -33,14 +36,14 @@ CANONICAL_FIELDS: tuple[str, ...] = (
     "location",
     "method",
     "destination",
-    "cylinder_id",
+    "cylinder",  # cylinder id as marked on it
     "cylinder_before_mg",
     "cylinder_after_mg",
-    "technician_id",
-    "certificate_id",
+    "technician",  # name
+    "certificate",  # "scheme|number" of the certificate valid on the day
     "recorded_by",
     "note",
-    "voids_id",
+    "voids",  # chain hash of the voided event
     "reason",
     "attachments",
     "reclaimed",
@@ -60,10 +63,11 @@ def _plain(value: Any) -> Any:
 
 
 def canonical(row: Mapping[str, Any]) -> bytes:
-    """The canonical bytes of an event row's content.
+    """The canonical bytes of an event's content.
 
     Args:
-        row: a mapping holding at least ``CANONICAL_FIELDS`` (missing ones count as null).
+        row: a mapping holding ``CANONICAL_FIELDS`` with natural keys (missing ones count as
+            null); ``repository.natural_keys`` adds them to an event row.
     Returns:
         Compact, key-sorted JSON as UTF-8 bytes.
     """

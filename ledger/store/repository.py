@@ -9,10 +9,11 @@ from __future__ import annotations
 
 from collections import defaultdict
 from collections.abc import Iterable, Mapping, Sequence
-from datetime import UTC, datetime
+from datetime import UTC, date, datetime
 from typing import Any
 
-from sqlalchemy import Connection, and_, func, insert, select
+from sqlalchemy import Connection, and_, func, insert, select, type_coerce
+from sqlalchemy.types import NullType
 
 from ledger.domain.records import (
     Application,
@@ -252,6 +253,53 @@ def chain_head(system_id: int, *, conn: Connection) -> str:
     return head or chain.GENESIS
 
 
+def natural_keys(values: Mapping[str, Any], *, conn: Connection) -> dict[str, Any]:
+    """The natural keys the chain hashes (``chain.CANONICAL_FIELDS``) for an event's row ids."""
+    keys: dict[str, Any] = {"system": None, "technician": None, "certificate": None, "cylinder": None, "voids": None}
+    row = conn.execute(
+        select(site.c.code, system.c.tag).join(site, site.c.id == system.c.site_id)
+        .where(system.c.id == values["system_id"])
+    ).first()
+    if row is not None:
+        keys["system"] = f"{row.code}/{row.tag}"
+    if values.get("technician_id") is not None:
+        keys["technician"] = conn.execute(
+            select(technician.c.name).where(technician.c.id == values["technician_id"])).scalar()
+    if values.get("certificate_id") is not None:
+        cert = conn.execute(
+            select(certificate.c.scheme, certificate.c.number).where(certificate.c.id == values["certificate_id"])
+        ).first()
+        keys["certificate"] = f"{cert.scheme}|{cert.number}" if cert else None
+    if values.get("cylinder_id") is not None:
+        keys["cylinder"] = conn.execute(select(cylinder.c.code).where(cylinder.c.id == values["cylinder_id"])).scalar()
+    if values.get("voids_id") is not None:
+        keys["voids"] = conn.execute(select(event.c.chain_hash).where(event.c.id == values["voids_id"])).scalar()
+    return keys
+
+
+def events_with_keys():  # type: ignore[no-untyped-def]
+    """SELECT of event rows with the natural keys the chain hashes, labelled as in CANONICAL_FIELDS."""
+    voided = event.alias("voided")
+    return (
+        select(
+            event,
+            (site.c.code + "/" + system.c.tag).label("system"),
+            site.c.code.label("site_code"),
+            system.c.tag.label("tag"),
+            technician.c.name.label("technician"),
+            (certificate.c.scheme + "|" + certificate.c.number).label("certificate"),
+            cylinder.c.code.label("cylinder"),
+            voided.c.chain_hash.label("voids"),
+        )
+        .join(system, system.c.id == event.c.system_id)
+        .join(site, site.c.id == system.c.site_id)
+        .outerjoin(technician, technician.c.id == event.c.technician_id)
+        .outerjoin(certificate, certificate.c.id == event.c.certificate_id)
+        .outerjoin(cylinder, cylinder.c.id == event.c.cylinder_id)
+        .outerjoin(voided, voided.c.id == event.c.voids_id)
+    )
+
+
 def append_event(*, conn: Connection, values: Mapping[str, Any]) -> tuple[int, str]:
     """Append one event to its system's chain.
 
@@ -261,13 +309,13 @@ def append_event(*, conn: Connection, values: Mapping[str, Any]) -> tuple[int, s
     Returns:
         The new event id and its chain hash.
     """
-    row = {**values, "recorded_at": now_utc()}
+    row = {**values, "recorded_at": values.get("recorded_at") or now_utc()}
     row.setdefault("note", "")
     row.setdefault("attachments", "")
     row.setdefault("reclaimed", False)
     prev = chain_head(row["system_id"], conn=conn)
     row["prev_hash"] = prev
-    row["chain_hash"] = chain.link(prev, row)
+    row["chain_hash"] = chain.link(prev, {**row, **natural_keys(row, conn=conn)})
     event_id = conn.execute(insert(event).values(**row)).inserted_primary_key[0]
     return event_id, row["chain_hash"]
 
@@ -285,16 +333,51 @@ def event_system(event_id: int, *, conn: Connection) -> tuple[int, str, str]:
     return row.system_id, row.kind, f"{row.code}/{row.tag}"
 
 
+# Estate-wide loads read a million events: SQLAlchemy's per-value result processing and row
+# objects would cost several times the query itself, so the event columns are read as the
+# driver returns them (``type_coerce(..., NullType())``: text dates on SQLite, typed values on
+# PostgreSQL) and converted once here; repeated strings (names, results, methods) are shared
+# between records instead of held once per event.
+_EVENT_BATCH = 20_000  # rows per fetch; bounds the driver-side buffer (server cursor on PostgreSQL)
+_IN_CHUNK = 10_000  # system ids per IN (...) list: SQLite allows at most 32 766 bound parameters
+
+
+def _raw(column: Any, name: str) -> Any:
+    return type_coerce(column, NullType()).label(name)
+
+
 def _events_query():  # type: ignore[no-untyped-def]
+    # Columns in ``Event`` field order (the certificate as its three parts); ``_event_records``
+    # relies on this order.
     return (
         select(
-            event,
-            technician.c.name.label("tech_name"),
-            company.c.name.label("company_name"),
-            certificate.c.scheme.label("cert_scheme"),
-            certificate.c.number.label("cert_number"),
-            certificate.c.category.label("cert_category"),
-            cylinder.c.code.label("cylinder_code"),
+            _raw(event.c.id, "id"),
+            _raw(event.c.system_id, "system_id"),
+            _raw(event.c.kind, "kind"),
+            _raw(event.c.performed_on, "performed_on"),
+            _raw(event.c.recorded_at, "recorded_at"),
+            _raw(event.c.mass_mg, "mass_mg"),
+            _raw(event.c.refrigerant, "refrigerant"),
+            _raw(event.c.charge_mg, "charge_mg"),
+            _raw(event.c.result, "result"),
+            _raw(event.c.location, "location"),
+            _raw(event.c.method, "method"),
+            _raw(event.c.destination, "destination"),
+            _raw(cylinder.c.code, "cylinder_code"),
+            _raw(event.c.cylinder_before_mg, "cylinder_before_mg"),
+            _raw(event.c.cylinder_after_mg, "cylinder_after_mg"),
+            _raw(technician.c.name, "tech_name"),
+            _raw(company.c.name, "company_name"),
+            _raw(certificate.c.scheme, "cert_scheme"),
+            _raw(certificate.c.number, "cert_number"),
+            _raw(certificate.c.category, "cert_category"),
+            _raw(event.c.recorded_by, "recorded_by"),
+            _raw(event.c.note, "note"),
+            _raw(event.c.voids_id, "voids_id"),
+            _raw(event.c.reason, "reason"),
+            _raw(event.c.attachments, "attachments"),
+            _raw(event.c.reclaimed, "reclaimed"),
+            _raw(event.c.chain_hash, "chain_hash"),
         )
         .outerjoin(technician, technician.c.id == event.c.technician_id)
         .outerjoin(company, company.c.id == technician.c.company_id)
@@ -303,54 +386,89 @@ def _events_query():  # type: ignore[no-untyped-def]
     )
 
 
-def _event_record(r: Any) -> Event:
-    cert = None
-    if r.cert_number:
-        cert = f"{r.cert_scheme} {r.cert_number}" + (f" ({r.cert_category})" if r.cert_category else "")
-    recorded = r.recorded_at
-    if recorded is not None and recorded.tzinfo is None:
-        recorded = recorded.replace(tzinfo=UTC)
-    return Event(
-        id=r.id,
-        system_id=r.system_id,
-        kind=EventKind(r.kind),
-        performed_on=r.performed_on,
-        recorded_at=recorded,
-        mass_mg=r.mass_mg,
-        refrigerant=r.refrigerant,
-        charge_mg=r.charge_mg,
-        result=r.result,
-        location=r.location,
-        method=r.method,
-        destination=r.destination,
-        cylinder_id=r.cylinder_code,
-        cylinder_before_mg=r.cylinder_before_mg,
-        cylinder_after_mg=r.cylinder_after_mg,
-        technician=r.tech_name,
-        company=r.company_name,
-        certificate=cert,
-        recorded_by=r.recorded_by,
-        note=r.note or "",
-        voids_id=r.voids_id,
-        reason=r.reason,
-        attachments=tuple(a for a in (r.attachments or "").split() if a),
-        reclaimed=bool(r.reclaimed),
-        chain_hash=r.chain_hash,
-    )
+_KINDS: Mapping[str, EventKind] = {k.value: k for k in EventKind}
+
+
+def _event_records(rows: Iterable[Sequence[Any]], into: dict[int, list[Event]], shared: dict[Any, Any]) -> None:
+    """Map raw event rows (``_events_query`` order) to records, appending them per system.
+
+    Args:
+        rows: driver values: dates and times as ISO text (SQLite) or as objects (PostgreSQL).
+        into: system id -> its records so far.
+        shared: one instance per distinct value (strings, days, certificate labels).
+    """
+    same = shared.setdefault
+    kinds = _KINDS
+    for (
+        id_, system_id, kind, on, recorded, mass, refrigerant, charge, result, location, method,
+        destination, cylinder_code, before, after, tech, company_name, scheme, number, category,
+        recorded_by, note, voids, reason, attachments, reclaimed, chain_hash,
+    ) in rows:
+        day = shared.get(on)
+        if day is None:
+            day = same(on, date.fromisoformat(on) if isinstance(on, str) else on)
+        if isinstance(recorded, str):
+            recorded = datetime.fromisoformat(recorded)
+        if recorded is not None and recorded.tzinfo is None:
+            recorded = recorded.replace(tzinfo=UTC)
+        cert = None
+        if number:
+            key = (scheme, number, category)
+            cert = shared.get(key)
+            if cert is None:
+                cert = same(key, f"{scheme} {number}" + (f" ({category})" if category else ""))
+        into[system_id].append(
+            Event(
+                id_,
+                system_id,
+                kinds[kind],
+                day,
+                recorded,
+                mass,
+                same(refrigerant, refrigerant),
+                charge,
+                same(result, result),
+                same(location, location),
+                same(method, method),
+                same(destination, destination),
+                same(cylinder_code, cylinder_code),
+                before,
+                after,
+                same(tech, tech),
+                same(company_name, company_name),
+                cert,
+                same(recorded_by, recorded_by),
+                same(note, note) if note else "",
+                voids,
+                reason,
+                tuple(attachments.split()) if attachments else (),
+                bool(reclaimed),
+                chain_hash,
+            )
+        )
 
 
 def load_events(system_ids: Iterable[int] | None = None, *, conn: Connection) -> dict[int, tuple[Event, ...]]:
-    """Events grouped by system, in recording order (one query).
+    """Events grouped by system, in recording order (one query; one per 10 000 systems asked for).
 
     Args:
         system_ids: restrict to these systems; None loads the estate.
     """
-    stmt = _events_query()
-    if system_ids is not None:
-        stmt = stmt.where(event.c.system_id.in_(list(system_ids)))
     grouped: dict[int, list[Event]] = defaultdict(list)
-    for r in conn.execute(stmt.order_by(event.c.system_id, event.c.id)):
-        grouped[r.system_id].append(_event_record(r))
+    shared: dict[Any, Any] = {}
+    order = (event.c.system_id, event.c.id)
+    if system_ids is None:
+        statements = [_events_query().order_by(*order)]
+    else:
+        ids = sorted(set(system_ids))
+        statements = [
+            _events_query().where(event.c.system_id.in_(ids[i : i + _IN_CHUNK])).order_by(*order)
+            for i in range(0, len(ids), _IN_CHUNK)
+        ]
+    for stmt in statements:
+        result = conn.execute(stmt.execution_options(yield_per=_EVENT_BATCH))
+        for rows in result.partitions():
+            _event_records(rows, grouped, shared)
     return {k: tuple(v) for k, v in grouped.items()}
 
 

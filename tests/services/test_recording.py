@@ -77,7 +77,7 @@ def test_round_trip_and_chain(db: Database) -> None:
     )
     with db.read() as conn:
         history = repo.load_histories("DE-1", conn=conn)[0]
-        rows = conn.execute(select(event).order_by(event.c.id)).mappings().all()
+        rows = conn.execute(repo.events_with_keys().order_by(event.c.id)).mappings().all()
     kinds = [e.kind for e in history.events]
     assert kinds == [EventKind.IN_SERVICE, EventKind.ADD, EventKind.CHECK]
     add = history.events[1]
