@@ -123,17 +123,14 @@ def leak_rate(
     if not view["rows"]:
         typer.echo("no additions recorded")
         return
+    from ledger.cli.views import mass_in, num
+
+    unit = view["unit"]
     table(
-        ["added on", "kg", "annualizing %", "rolling %", "rate used %", "exceeded"],
+        ["added on", unit, "annualizing %", "rolling %", "rate used %", "exceeded", "note"],
         [
-            [
-                r["on"],
-                r["added_kg"],
-                r["annualizing_percent"],
-                r["rolling_percent"],
-                r["percent"],
-                "yes" if r["exceeded"] else "",
-            ]
+            [r["on"], num(mass_in(r["added_kg"], unit)), num(r["annualizing_percent"]), num(r["rolling_percent"]),
+             num(r["percent"]), "yes" if r["exceeded"] else "", r["note"]]
             for r in view["rows"]
         ],
     )

@@ -10,7 +10,8 @@ import typer
 from ledger.cli.render import LOCAL_RULES_NOTE, table
 
 
-def _num(value: Any, places: int = 2) -> str:
+def num(value: Any, places: int = 2) -> str:
+    """A number rounded half-up for display ('' for None)."""
     if value is None:
         return ""
     from ledger.reference import round_half_up
@@ -18,13 +19,26 @@ def _num(value: Any, places: int = 2) -> str:
     return str(round_half_up(Decimal(value), places))
 
 
+def mass_in(kg: Any, unit: str) -> Decimal | None:
+    """A mass given in kg, in the display unit (kg or lb)."""
+    if kg is None:
+        return None
+    from ledger.units import MG_PER_KG, MG_PER_LB
+
+    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+
+
 def print_system(view: dict[str, Any]) -> None:
     """A system's state, tiers, obligations, leak rates and events as text tables."""
     status = "in service" if view["in_service"] else f"retired {view['retired_on'] or ''}".strip()
     typer.echo(f"{view['site']}/{view['tag']}  {view['description']}".rstrip())
+    unit = view["unit"]
+    other = "kg" if unit == "lb" else "lb"
+    charge = (f"{num(mass_in(view['full_charge_kg'], unit))} {unit} "
+              f"({num(mass_in(view['full_charge_kg'], other))} {other})")
     typer.echo(
-        f"  {view['refrigerant']} ({view['safety_class']}), full charge {_num(view['full_charge_kg'])} kg, "
-        f"{_num(view['co2e_t'])} t CO2e (GWP {_num(view['gwp'], 0)}, basis {view['gwp_basis']})"
+        f"  {view['refrigerant']} ({view['safety_class']}), full charge {charge}, "
+        f"{num(view['co2e_t'])} t CO2e (GWP {num(view['gwp'], 0)}, basis {view['gwp_basis']})"
     )
     typer.echo(
         f"  {view['application']}, {status}, detection system: "
@@ -45,14 +59,14 @@ def print_system(view: dict[str, Any]) -> None:
         )
     if view["leak_rates"]:
         table(
-            ["added on", "kg", "annualizing %", "rolling %", "threshold %", "exceeded"],
+            ["added on", unit, "annualizing %", "rolling %", "threshold %", "exceeded"],
             [
                 [
                     r["on"],
-                    _num(r["added_kg"]),
-                    _num(r["annualizing_percent"]),
-                    _num(r["rolling_percent"]),
-                    _num(r["threshold_percent"], 0),
+                    num(mass_in(r["added_kg"], unit)),
+                    num(r["annualizing_percent"]),
+                    num(r["rolling_percent"]),
+                    num(r["threshold_percent"], 0),
                     "yes" if r["exceeded"] else "",
                 ]
                 for r in view["leak_rates"]
@@ -66,7 +80,7 @@ def print_system(view: dict[str, Any]) -> None:
                 e["id"],
                 e["performed_on"],
                 e["kind"] + (f" (voided by {e['voided_by']}: {e['void_reason']})" if e["voided_by"] else ""),
-                _num(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"]),
+                num(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"]),
                 e["result"] or e["location"] or (f"voids {e['voids']}: {e['reason']}" if e["voids"] else ""),
                 e["technician"],
                 e["certificate"],

@@ -19,7 +19,7 @@ from bisect import bisect_right
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from datetime import date, timedelta
-from decimal import ROUND_DOWN, Decimal
+from decimal import ROUND_DOWN, ROUND_HALF_UP, Decimal
 from typing import Any, Protocol
 
 from ledger.domain.dates import add_months, quarter_end
@@ -183,8 +183,14 @@ def fmt_kg(kilograms: Decimal) -> str:
 
 
 def fmt_lb(mass_mg: int) -> str:
-    """Pounds of a milligram mass for a sentence: two decimals, truncated."""
-    return f"{_truncate(Decimal(mass_mg) / MG_PER_LB, 2)} lb"
+    """Pounds of a milligram mass for a sentence: two decimals, truncated.
+
+    A mass typed in pounds is stored to the nearest milligram (half a milligram is about
+    1.1e-6 lb), so the value is first rounded to 5 decimals: 620 lb shows as 620.00 lb, not
+    619.99 lb, while a mass really below a threshold still never shows as the threshold.
+    """
+    pounds = (Decimal(mass_mg) / MG_PER_LB).quantize(Decimal("0.00001"), rounding=ROUND_HALF_UP)
+    return f"{_truncate(pounds, 2)} lb"
 
 
 # --- reference ------------------------------------------------------------------------------

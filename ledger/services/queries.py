@@ -15,7 +15,7 @@ from ledger.domain.state import state_of
 from ledger.reference import load_reference
 from ledger.store import repository as repo
 from ledger.store.db import Database
-from ledger.units import mg_to_kg
+from ledger.units import mg_to_kg, mg_to_lb
 
 
 def kg(mg: int | None) -> Decimal | None:
@@ -166,6 +166,8 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
         "refrigerant": state.refrigerant,
         "safety_class": ref.safety_class if ref else None,
         "full_charge_kg": mg_to_kg(state.full_charge_mg),
+        "full_charge_lb": mg_to_lb(state.full_charge_mg),
+        "unit": site.mass_unit,
         "gwp_basis": basis,
         "gwp": gwp,
         "co2e_t": co2e,
@@ -233,6 +235,7 @@ def leak_rate_view(db: Database, *, site_code: str, tag: str, method: str | None
         "system": tag,
         "application": sys_.application.value,
         "method": history.site.leak_rate_method,
+        "unit": history.site.mass_unit,
         "threshold_percent": threshold_percent(sys_.application),
         "as_of": day,
         "rows": leak_rates_json(history, day),
