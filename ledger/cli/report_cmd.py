@@ -158,3 +158,25 @@ def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
          for m in summary["scope1"]],
     )
     typer.echo(CAUTION)
+
+
+@app.command("filed")
+def filed(
+    site: Annotated[str, typer.Argument(metavar="SITE", help="The site the report is for.")],
+    regime: Annotated[str, typer.Option("--regime", help="Regime code, e.g. us-ca.")],
+    year: Annotated[int, typer.Option("--year", help="The calendar year the report covers.")],
+    on: Annotated[str, typer.Option("--on", help="Day it was filed, YYYY-MM-DD.")],
+    system: Annotated[str | None, typer.Option("--system", help="TAG, for a report about one system.")] = None,
+    reference: Annotated[str, typer.Option("--reference", help="Receipt or submission number.")] = "",
+    by: Annotated[str | None, typer.Option("--by", help="Who is recording this.")] = None,
+) -> None:
+    """Record that a report was filed with an authority; it meets the matching report duty.
+
+    Example: refledger report filed CA-SAC --regime us-ca --year 2026 --on 2027-02-20 --reference RMP-88412
+    """
+    from ledger.inputs import parse_day
+    from ledger.services.recording import record_filing
+
+    record_filing(context.open_db(), site_code=site, regime=regime, period_year=year,
+                  filed_on=parse_day(on), tag=system, reference=reference, recorded_by=by)
+    typer.echo(f"filing recorded: {site} {regime} report for {year}, filed {on}")

@@ -298,6 +298,19 @@ class Tier:
 
 
 @dataclass(frozen=True, slots=True)
+class Filing:
+    """A record that a report to an authority was filed (append-only, like events)."""
+
+    site_code: SiteCode
+    regime: RegimeCode
+    period_year: int  # the calendar year the report covers
+    filed_on: date
+    system_id: SystemId | None = None  # for a report about one system (e.g. a chronic leaker)
+    reference: str = ""  # the authority's receipt or submission number
+    recorded_by: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
 class SystemHistory:
     """Everything a regime needs about one system: its site, its static facts, its events."""
 

@@ -2,10 +2,17 @@
 
 from __future__ import annotations
 
+from bisect import bisect_right
 from collections.abc import Iterable
 from datetime import date
+from operator import attrgetter
 
 from ledger.domain.records import CheckResult, Event, EventKind, SystemState
+
+# The rules call these for every system several times per run (each regime, each tier), so
+# they are kept lean: a C key function for the sort, no filtering pass when nothing is voided.
+_DATE_ORDER = attrgetter("performed_on", "id")
+_PERFORMED_ON = attrgetter("performed_on")
 
 
 def effective_events(events: Iterable[Event]) -> tuple[Event, ...]:
@@ -17,10 +24,12 @@ def effective_events(events: Iterable[Event]) -> tuple[Event, ...]:
         The events that count, sorted by (performed_on, id) so the result does not depend
         on the order they were recorded in.
     """
+    void = EventKind.VOID
     events = tuple(events)
-    voided = {e.voids_id for e in events if e.kind is EventKind.VOID}
-    kept = [e for e in events if e.kind is not EventKind.VOID and e.id not in voided]
-    return tuple(sorted(kept, key=lambda e: (e.performed_on, e.id)))
+    voided = {e.voids_id for e in events if e.kind is void}
+    if voided:  # empty exactly when there is no VOID event
+        return tuple(sorted((e for e in events if e.kind is not void and e.id not in voided), key=_DATE_ORDER))
+    return tuple(sorted(events, key=_DATE_ORDER))
 
 
 def state_of(events: Iterable[Event], as_of: date) -> SystemState:
@@ -38,7 +47,9 @@ def state_of(events: Iterable[Event], as_of: date) -> SystemState:
     detection = False
     in_service_on = retired_on = last_check = last_repair = since = None
     open_leaks: list[int] = []
-    kept = tuple(e for e in effective_events(events) if e.performed_on <= as_of)
+    kept = effective_events(events)
+    if kept and kept[-1].performed_on > as_of:  # date order: the events that count are a prefix
+        kept = kept[: bisect_right(kept, as_of, key=_PERFORMED_ON)]
     for e in kept:
         match e.kind:
             case EventKind.IN_SERVICE:

@@ -1117,8 +1117,8 @@ def leak_rate_obligations(
             share = Decimal(totals[year]) * 100 / r.full_charge_mg
             add(ObligationKind.REPORT, date(year + 1, 3, 1), rule.report_basis, None, r.event_id,
                 f"report a chronically leaking appliance: {_pct(share)} % of the full charge "
-                f"added in {year} (≥ {rule.report_percent.normalize():f} %); filing is not "
-                "recorded in the ledger")
+                f"added in {year} (≥ {rule.report_percent.normalize():f} %); record the filing "
+                "with `refledger report filed`")
     return out, findings
 
 

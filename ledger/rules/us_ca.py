@@ -246,8 +246,8 @@ def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLik
 
 def _report_obligations(site_code: str, histories: Sequence[SystemHistory],
                         reference: ReferenceLike, as_of: date) -> list[Obligation]:
-    # Only the next report is listed: the ledger cannot yet record that one was filed, so a
-    # past report would stay overdue for ever.
+    # Only the next report is listed; a filing recorded with `refledger report filed` meets it
+    # (services.obligations.apply_filings).
     month, day = REPORT_DAY
     year = as_of.year - 1 if as_of <= date(as_of.year, month, day) else as_of.year
     if year < PROGRAM_FROM.year:
@@ -259,8 +259,8 @@ def _report_obligations(site_code: str, histories: Sequence[SystemHistory],
     return [Obligation(REGIME, ObligationKind.REPORT, due, B_REPORT, ObligationStatus.OPEN, None,
                        site_code, None, None, None,
                        f"annual report for {year} ({size_of(largest[0])} facility: largest system "
-                       f"{largest[1]}, {fmt_lb(largest[0])}); filing is not recorded in the "
-                       "ledger")]
+                       f"{largest[1]}, {fmt_lb(largest[0])}); record the filing with "
+                       "`refledger report filed`")]
 
 
 def compute_obligations(

@@ -35,6 +35,7 @@ TABLE_ORDER = (
     "detector_channel",
     "detector_episode",
     "report_run",
+    "filing",
 )
 
 

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from datetime import date
 from typing import Any
 
 from ledger.domain.detector_policy import StoredEpisode, episode_obligations, repair_findings
 from ledger.domain.records import (
+    Filing,
     Finding,
     Obligation,
     ObligationKind,
@@ -71,37 +72,75 @@ class DueList:
     findings: list[Finding]
 
 
+@dataclass(frozen=True, slots=True)
+class Evidence:
+    """What the ledger holds beside the events that bears on obligations."""
+
+    episodes: dict[int, list[StoredEpisode]] = field(default_factory=dict)  # by system id
+    filings: list[Filing] = field(default_factory=list)
+
+
+def apply_filings(obligations: list[Obligation], filings: list[Filing]) -> list[Obligation]:
+    """Mark report obligations met by a recorded filing.
+
+    A filing meets a report of its site and regime that falls due in the year after the
+    period it covers (reports for a calendar year are due early in the next); one naming a
+    system meets only that system's report.
+    """
+    if not filings:
+        return obligations
+    out = []
+    for ob in obligations:
+        if ob.kind is ObligationKind.REPORT and ob.status is not ObligationStatus.MET:
+            match = next(
+                (f for f in filings
+                 if f.regime == ob.regime and f.site_code == ob.site_code and f.period_year == ob.due_on.year - 1
+                 and (f.system_id is None or f.system_id == ob.system_id)),
+                None,
+            )
+            if match is not None:
+                late = " (late)" if match.filed_on > ob.due_on else ""
+                ref = f", reference {match.reference}" if match.reference else ""
+                ob = replace(ob, status=ObligationStatus.MET,
+                             detail=f"{ob.detail}; filed {match.filed_on.isoformat()}{late}{ref}")
+        out.append(ob)
+    return out
+
+
 def compute(
     histories: list[SystemHistory],
     as_of: date,
-    episodes: dict[int, list[StoredEpisode]] | None = None,
+    evidence: Evidence | None = None,
 ) -> tuple[list[Obligation], list[Finding]]:
     """Every obligation of these systems on ``as_of`` (met ones included), with findings.
 
     Args:
         histories: the systems to evaluate.
         as_of: the day.
-        episodes: stored detector episodes by system id; they add site-policy leak checks
-            and findings about repairs that readings put in doubt.
+        evidence: stored detector episodes (they add site-policy leak checks and findings
+            about repairs that readings put in doubt) and report filings (they meet report
+            obligations).
     """
     from ledger.rules import compute_all
 
     obligations, findings = compute_all(histories, load_reference(), as_of)
-    if episodes:
-        for h in histories:
-            eps = episodes.get(h.system.id)
-            if not eps:
-                continue
-            obligations.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
-            findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
-        obligations.sort(key=lambda o: (o.due_on, o.site_code or "", o.system_id or 0, o.kind.value))
+    if evidence is None:
+        return obligations, findings
+    for h in histories:
+        eps = evidence.episodes.get(h.system.id)
+        if not eps:
+            continue
+        obligations.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
+        findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
+    obligations = apply_filings(obligations, [f for f in evidence.filings if f.filed_on <= as_of])
+    obligations.sort(key=lambda o: (o.due_on, o.site_code or "", o.system_id or 0, o.kind.value))
     return obligations, findings
 
 
-def load_with_episodes(
+def load_evidence(
     db: Database, *, site_code: str | None = None, system_id: int | None = None
-) -> tuple[list[SystemHistory], dict[int, list[StoredEpisode]]]:
-    """Histories and their stored detector episodes, in one read transaction."""
+) -> tuple[list[SystemHistory], Evidence]:
+    """Histories with their stored detector episodes and the sites' filings, in one read."""
     from ledger.services.detectors import stored_episodes
 
     with db.read() as conn:
@@ -109,7 +148,9 @@ def load_with_episodes(
         zones = {h.system.id: h.site.timezone for h in histories}
         ids = None if site_code is None and system_id is None else list(zones)
         episodes = stored_episodes(conn, ids, zones)
-    return histories, episodes
+        sites = {h.site.code for h in histories}
+        filings = [f for f in repo.load_filings(site_code, conn=conn) if f.site_code in sites]
+    return histories, Evidence(episodes, filings)
 
 
 def due(
@@ -129,8 +170,8 @@ def due(
         site_code: only this site.
         overdue_only: only overdue obligations.
     """
-    histories, episodes = load_with_episodes(db, site_code=site_code)
-    obligations, findings = compute(histories, as_of, episodes)
+    histories, evidence = load_evidence(db, site_code=site_code)
+    obligations, findings = compute(histories, as_of, evidence)
     current, missed = current_only(obligations)
     labels = labels_of(histories)
     rows = []

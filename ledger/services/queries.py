@@ -136,12 +136,12 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
     """Everything about one system on a day: facts, state, tiers, obligations, leak rates."""
     from ledger.domain.leak_rate import leak_rates_json
     from ledger.rules import REGIMES
-    from ledger.services.obligations import compute, current_only, load_with_episodes
+    from ledger.services.obligations import compute, current_only, load_evidence
 
     reference = load_reference()
     with db.read() as conn:
         _, sys_ = repo.get_system(site_code, tag, conn=conn)
-    histories, episodes = load_with_episodes(db, system_id=sys_.id)
+    histories, evidence = load_evidence(db, system_id=sys_.id)
     history = histories[0]
     site = history.site
     state = state_of(history.events, as_of)
@@ -152,7 +152,7 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
         gwp = reference.gwp(state.refrigerant, basis).value
         co2e = mg_to_kg(state.full_charge_mg) * gwp / 1000
     voided_by = {e.voids_id: e for e in history.events if e.voids_id is not None}
-    obligations, findings = compute([history], as_of, episodes)
+    obligations, findings = compute([history], as_of, evidence)
     current, _ = current_only(obligations)
     labels = labels_of([history])
     ref = reference.lookup(state.refrigerant) if state.refrigerant else None
@@ -200,14 +200,14 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
 
 def next_due(db: Database, *, site_code: str, tag: str, limit: int = 3) -> list[str]:
     """One line per open or overdue obligation of a system, earliest first."""
-    from ledger.services.obligations import compute, current_only, load_with_episodes
+    from ledger.services.obligations import compute, current_only, load_evidence
     from ledger.services.recording import site_today
 
     with db.read() as conn:
         _, sys_ = repo.get_system(site_code, tag, conn=conn)
-    histories, episodes = load_with_episodes(db, system_id=sys_.id)
+    histories, evidence = load_evidence(db, system_id=sys_.id)
     today = site_today(histories[0].site.timezone)
-    obligations, _ = compute(histories, today, episodes)
+    obligations, _ = compute(histories, today, evidence)
     current, _ = current_only(obligations)
     pending = [o for o in current if o.status is not ObligationStatus.MET]
     return [

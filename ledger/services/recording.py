@@ -375,3 +375,35 @@ def void_event(db: Database, *, event_id: int, reason: str, recorded_by: str | N
         )
     site_code, _, tag = ref.partition("/")
     return Logged(new_id, head, (), site_code, tag)
+
+
+def record_filing(
+    db: Database,
+    *,
+    site_code: str,
+    regime: str,
+    period_year: int,
+    filed_on: date,
+    tag: str | None = None,
+    reference: str = "",
+    recorded_by: str | None = None,
+) -> None:
+    """Record that a report was filed with an authority (it meets the matching report duty)."""
+    from ledger.rules import REGIMES
+
+    if regime not in REGIMES:
+        raise InputError("--regime", regime, f"is not one of {', '.join(REGIMES)}")
+    if not 1990 <= period_year <= filed_on.year:
+        raise InputError("--year", period_year, f"must be a year up to the filing's ({filed_on.year})")
+    with db.write() as conn:
+        site = repo.get_site(site_code, conn=conn)
+        if regime not in site.regimes:
+            raise InputError("--regime", regime, f"does not apply to site {site_code} ({', '.join(site.regimes)})")
+        today = site_today(site.timezone)
+        if filed_on > today:
+            raise InputError("--on", filed_on.isoformat(), f"is in the future (today is {today})")
+        system_id = repo.get_system(site_code, tag, conn=conn)[1].id if tag else None
+        repo.insert_filing(conn=conn, site_id=site.id, values={
+            "system_id": system_id, "regime": regime, "period_year": period_year, "filed_on": filed_on,
+            "reference": reference.strip(), "recorded_by": recorded_by,
+        })

@@ -507,15 +507,15 @@ def annual_summary(
         as_of: the day obligations are evaluated on; default the year's last day, or today
             for the current year.
     """
-    from ledger.services.obligations import compute, load_with_episodes
+    from ledger.services.obligations import compute, load_evidence
 
     if not 1900 < year < 2200:
         raise InputError("--year", year, "is not a plausible year")
     reference = load_reference()
-    histories, episodes = load_with_episodes(db, site_code=site_code)
+    histories, evidence = load_evidence(db, site_code=site_code)
     chosen = check_basis(basis) if basis else default_basis(histories)
     as_of = as_of or min(date(year, 12, 31), today_utc())
-    obligations, _ = compute(histories, as_of, episodes)
+    obligations, _ = compute(histories, as_of, evidence)
     return annual_data(
         histories, reference, year=year, basis=chosen, obligations=obligations, as_of=as_of,
         site_code=site_code, generated_at=utc_now(),
@@ -739,7 +739,7 @@ def site_logbooks(
 def _logbooks(
     db: Database, *, site_code: str, tag: str | None, from_on: date | None, to_on: date | None
 ) -> list[dict[str, Any]]:
-    from ledger.services.obligations import compute, load_with_episodes
+    from ledger.services.obligations import compute, load_evidence
 
     reference = load_reference()
     with db.read() as conn:
@@ -747,11 +747,11 @@ def _logbooks(
         if tag is None:
             repo.get_site(site_code, conn=conn)
         cylinders = {c.id: c for c in repo.list_cylinders(conn=conn)}
-    histories, episodes = load_with_episodes(db, site_code=None if tag else site_code, system_id=system_id)
+    histories, evidence = load_evidence(db, site_code=None if tag else site_code, system_id=system_id)
     if not histories:
         return []
     to_day = _period(histories[0], from_on, to_on)
-    obligations, findings = compute(histories, to_day, episodes)
+    obligations, findings = compute(histories, to_day, evidence)
     now = utc_now()
     return [
         logbook_data(h, reference, from_on=from_on, to_on=to_day, obligations=obligations,

@@ -23,6 +23,7 @@ from ledger.domain.records import (
     EquipmentForm,
     Event,
     EventKind,
+    Filing,
     Site,
     System,
     SystemHistory,
@@ -35,6 +36,7 @@ from ledger.store.tables import (
     company,
     cylinder,
     event,
+    filing,
     site,
     system,
     technician,
@@ -498,3 +500,23 @@ def load_histories(
 def count_events(*, conn: Connection) -> int:
     """How many event rows the ledger holds."""
     return conn.execute(select(func.count()).select_from(event)).scalar_one()
+
+
+# ---- filings ------------------------------------------------------------------------------
+
+
+def insert_filing(*, conn: Connection, site_id: int, values: Mapping[str, Any]) -> int:
+    """Record that a report was filed (append-only)."""
+    stmt = insert(filing).values(**values, site_id=site_id, recorded_at=now_utc())
+    return conn.execute(stmt).inserted_primary_key[0]
+
+
+def load_filings(site_code: str | None = None, *, conn: Connection) -> list[Filing]:
+    """Every filing (or one site's), oldest first."""
+    stmt = select(filing, site.c.code.label("site_code")).join(site, site.c.id == filing.c.site_id)
+    if site_code:
+        stmt = stmt.where(site.c.code == site_code)
+    return [
+        Filing(r.site_code, r.regime, r.period_year, r.filed_on, r.system_id, r.reference, r.recorded_by)
+        for r in conn.execute(stmt.order_by(filing.c.id))
+    ]

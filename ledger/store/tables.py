@@ -193,3 +193,18 @@ report_run = Table(
     Column("regime_versions", String(400), nullable=False, server_default=""),
     Column("chain_digest", String(64), nullable=False),
 )
+
+# Reports filed with an authority (append-only, like events): they meet `report` obligations.
+filing = Table(
+    "filing",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("site_id", Integer, ForeignKey("site.id"), nullable=False, index=True),
+    Column("system_id", Integer, ForeignKey("system.id")),
+    Column("regime", String(20), nullable=False),
+    Column("period_year", Integer, nullable=False),
+    Column("filed_on", Date, nullable=False),
+    Column("reference", String(200), nullable=False, server_default=""),
+    Column("recorded_by", String(200)),
+    Column("recorded_at", DateTime(timezone=True), nullable=False),
+)

@@ -40,3 +40,36 @@ def test_events_are_append_only_in_the_database(location: Location) -> None:
         else:
             raise AssertionError(f"{statement} was allowed")
     db.close()
+
+
+def test_upgrade_from_the_first_revision_keeps_data_and_makes_a_backup(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    from datetime import date
+
+    from ledger.services.recording import add_site, add_system
+    from ledger.store.db import locate, upgrade
+
+    loc = locate(str(tmp_path / "old.db"))
+    command.upgrade(alembic_config(loc), "0001")
+    db = Database(loc)
+    with db.engine.begin() as conn:
+        assert conn.execute(text("SELECT version_num FROM alembic_version")).scalar() == "0001"
+    before, after, saved = upgrade(loc)
+    assert (before, after) == ("0001", HEAD_REVISION)
+    assert saved is not None and saved.name == "old.db.bak-0001" and saved.exists()
+    add_site(db, code="S", name="S", country="DE")
+    add_system(db, site_code="S", tag="T", refrigerant="R-134a", charge_mg=1_000_000,
+               application="other", in_service_on=date(2024, 1, 1))
+    db.close()
+
+
+def test_commands_refuse_a_database_behind_the_head(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    import pytest
+
+    from ledger.errors import SchemaOutOfDate
+    from ledger.store.db import locate
+
+    loc = locate(str(tmp_path / "old.db"))
+    command.upgrade(alembic_config(loc), "0001")
+    with pytest.raises(SchemaOutOfDate, match="refledger db upgrade"):
+        with Database(loc).read():
+            pass
