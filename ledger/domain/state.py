@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from bisect import bisect_right
-from collections.abc import Iterable
+from collections import deque
+from collections.abc import Iterable, Iterator
 from datetime import date
 from operator import attrgetter
 
@@ -32,14 +33,13 @@ def effective_events(events: Iterable[Event]) -> tuple[Event, ...]:
     return tuple(sorted(events, key=_DATE_ORDER))
 
 
-def state_of(events: Iterable[Event], as_of: date) -> SystemState:
-    """Fold a system's events on or before ``as_of`` into its state.
+def fold_days(kept: tuple[Event, ...]) -> Iterator[tuple[int, SystemState]]:
+    """Fold effective events (date order) once, yielding the state at the end of each day.
 
     Args:
-        events: all events of one system (voids included; they are applied here).
-        as_of: the day to look at; events after it are ignored.
-    Returns:
-        The SystemState on that day.
+        kept: effective events in date order (``effective_events``).
+    Yields:
+        (index of the day's last event, state after it), one pair per distinct day.
     """
     in_service = False
     refrigerant: str | None = None
@@ -47,10 +47,8 @@ def state_of(events: Iterable[Event], as_of: date) -> SystemState:
     detection = False
     in_service_on = retired_on = last_check = last_repair = since = None
     open_leaks: list[int] = []
-    kept = effective_events(events)
-    if kept and kept[-1].performed_on > as_of:  # date order: the events that count are a prefix
-        kept = kept[: bisect_right(kept, as_of, key=_PERFORMED_ON)]
-    for e in kept:
+    last = len(kept) - 1
+    for i, e in enumerate(kept):
         match e.kind:
             case EventKind.IN_SERVICE:
                 in_service, in_service_on, since = True, e.performed_on, e.performed_on
@@ -75,16 +73,39 @@ def state_of(events: Iterable[Event], as_of: date) -> SystemState:
                 in_service, retired_on = False, e.performed_on
             case _:
                 pass
-    return SystemState(
-        in_service=in_service,
-        refrigerant=refrigerant,
-        full_charge_mg=charge_mg,
-        detection_system=detection,
-        in_service_on=in_service_on,
-        retired_on=retired_on,
-        last_check_on=last_check,
-        last_repair_on=last_repair,
-        open_leaks=tuple(open_leaks),
-        refrigerant_since=since,
-        events=kept,
-    )
+        if i == last or kept[i + 1].performed_on != e.performed_on:
+            yield i, SystemState(
+                in_service=in_service,
+                refrigerant=refrigerant,
+                full_charge_mg=charge_mg,
+                detection_system=detection,
+                in_service_on=in_service_on,
+                retired_on=retired_on,
+                last_check_on=last_check,
+                last_repair_on=last_repair,
+                open_leaks=tuple(open_leaks),
+                refrigerant_since=since,
+                events=kept[: i + 1],
+            )
+
+
+EMPTY_STATE = SystemState(
+    in_service=False, refrigerant=None, full_charge_mg=0, detection_system=False, in_service_on=None,
+    retired_on=None, last_check_on=None, last_repair_on=None, open_leaks=(), refrigerant_since=None,
+)
+
+
+def state_of(events: Iterable[Event], as_of: date) -> SystemState:
+    """Fold a system's events on or before ``as_of`` into its state.
+
+    Args:
+        events: all events of one system (voids included; they are applied here).
+        as_of: the day to look at; events after it are ignored.
+    Returns:
+        The SystemState on that day.
+    """
+    kept = effective_events(events)
+    if kept and kept[-1].performed_on > as_of:  # date order: the events that count are a prefix
+        kept = kept[: bisect_right(kept, as_of, key=_PERFORMED_ON)]
+    days = deque(fold_days(kept), maxlen=1)  # only the last day's state is wanted
+    return days[0][1] if days else EMPTY_STATE

@@ -41,7 +41,7 @@ from ledger.domain.records import (
     SystemState,
     Tier,
 )
-from ledger.domain.state import effective_events, state_of
+from ledger.domain.state import EMPTY_STATE, effective_events, fold_days
 from ledger.errors import LedgerError
 
 __all__ = [
@@ -229,47 +229,8 @@ class Timeline:
     def __init__(self, events: Sequence[Event]) -> None:
         self.events = tuple(events)
         self._states: dict[date, SystemState] = {}
-        self._before = state_of((), date.min)
-        in_service = detection = False
-        refrigerant: str | None = None
-        charge_mg = 0
-        in_service_on = retired_on = last_check = last_repair = since = None
-        open_leaks: list[EventId] = []
-        for i, e in enumerate(self.events):
-            match e.kind:
-                case EventKind.IN_SERVICE:
-                    in_service, in_service_on, since = True, e.performed_on, e.performed_on
-                    refrigerant, charge_mg = e.refrigerant, e.charge_mg or 0
-                case EventKind.RETROFIT:
-                    refrigerant, since = e.refrigerant, e.performed_on
-                    charge_mg = e.charge_mg or charge_mg
-                case EventKind.CHARGE_REVISED:
-                    charge_mg = e.charge_mg or charge_mg
-                case EventKind.CHECK:
-                    last_check = e.performed_on
-                    if e.result == CheckResult.LEAK_FOUND:
-                        open_leaks.append(e.id)
-                case EventKind.REPAIR:
-                    last_repair = e.performed_on
-                    open_leaks.clear()
-                case EventKind.DETECTION_ON:
-                    detection = True
-                case EventKind.DETECTION_OFF:
-                    detection = False
-                case EventKind.RETIRE:
-                    in_service, retired_on = False, e.performed_on
-                case _:
-                    pass
-            last_of_day = i + 1 == len(self.events) or self.events[i + 1].performed_on != (
-                e.performed_on)
-            if last_of_day:
-                self._states[e.performed_on] = SystemState(
-                    in_service=in_service, refrigerant=refrigerant, full_charge_mg=charge_mg,
-                    detection_system=detection, in_service_on=in_service_on,
-                    retired_on=retired_on, last_check_on=last_check, last_repair_on=last_repair,
-                    open_leaks=tuple(open_leaks), refrigerant_since=since,
-                    events=self.events[: i + 1],
-                )
+        self._before = EMPTY_STATE
+        self._states = {self.events[i].performed_on: state for i, state in fold_days(self.events)}
         self._dates = sorted(self._states)
 
     @property
