@@ -479,6 +479,7 @@ def _walk_segment(
 ) -> list[Window]:
     out: list[Window] = []
     anchor, cause, end = seg.start_on, seg.cause, seg.end_on
+    check_days = [c.performed_on for c in checks]  # both lists are in date order: bisect into them
     while anchor <= as_of:
         cadence = cadence_at(anchor)
         if cadence is None or cadence.months is None:
@@ -490,21 +491,18 @@ def _walk_segment(
         months: int = cadence.months
         due = add_months(anchor, months)
         lost: date | None = None
-        for d in changes:
-            if d <= anchor:
-                continue
+        for d in changes[bisect_right(changes, anchor):]:
             if d > due or (end is not None and d >= end):
                 break
             changed = cadence_at(d)
             if changed is None or changed.months is None:
                 lost = d
                 break
+            if changed.months != months:
+                due = add_months(anchor, changed.months)
             cadence, months = changed, changed.months
-            due = add_months(anchor, months)
         met = None
-        for c in checks:
-            if c.performed_on <= anchor:
-                continue
+        for c in checks[bisect_right(check_days, anchor):]:
             if (
                 c.performed_on > due
                 or (lost is not None and c.performed_on >= lost)

@@ -21,9 +21,10 @@ how sure we are of it.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from datetime import date
+from dataclasses import replace
+from datetime import date, timedelta
 from decimal import Context, Decimal, localcontext
-from functools import partial
+from functools import lru_cache, partial
 
 from ledger.domain.records import (
     Basis,
@@ -35,7 +36,7 @@ from ledger.domain.records import (
     SystemState,
     Tier,
 )
-from ledger.domain.state import state_of
+from ledger.domain.state import EMPTY_STATE, state_of
 from ledger.rules.common import (
     BELOW_THRESHOLD,
     EXEMPT,
@@ -180,6 +181,26 @@ def _band(value: Decimal, bands: Sequence[tuple[Decimal, int, str]]) -> tuple[in
 
 
 def assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
+    """The leak-check band of an in-service system on a day (memoised ``_assess``).
+
+    The verdict depends only on the refrigerant, full charge, detection system, the sealed
+    and residential flags and whether Annex II gases count yet, so an estate's thousands of
+    (system, day) questions reduce to a few distinct answers.
+    """
+    return _assess_memo(reference, state.refrigerant, state.full_charge_mg, state.detection_system,
+                        system.hermetic, system.residential, day >= APPLIES_FROM)
+
+
+@lru_cache(maxsize=1 << 16)
+def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_mg: int, detection: bool,
+                 hermetic: bool, residential: bool, counts_ii: bool) -> Assessment:
+    system = System(id=0, site_code="", tag="", hermetic=hermetic, residential=residential)
+    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_mg=charge_mg,
+                    detection_system=detection)
+    return _assess(reference, system, state, APPLIES_FROM if counts_ii else APPLIES_FROM - timedelta(days=1))
+
+
+def _assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
     """The leak-check band of an in-service system on a day, Art 5(1) and Art 6.
 
     Args:

@@ -21,9 +21,10 @@ Implements, for each system (see docs/rules/gb.md for sources, marks and what is
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import replace
 from datetime import date
 from decimal import Decimal
-from functools import partial
+from functools import lru_cache, partial
 
 from ledger.domain.records import (
     Basis,
@@ -35,7 +36,7 @@ from ledger.domain.records import (
     SystemState,
     Tier,
 )
-from ledger.domain.state import state_of
+from ledger.domain.state import EMPTY_STATE, state_of
 from ledger.rules.common import (
     BELOW_THRESHOLD,
     EXEMPT,
@@ -141,6 +142,21 @@ def _band(value: Decimal, bands: Sequence[tuple[Decimal, int, str]]) -> tuple[in
 
 
 def assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
+    """The leak-check band of an in-service system (memoised ``_assess``; see eu.assess)."""
+    return _assess_memo(reference, state.refrigerant, state.full_charge_mg, state.detection_system,
+                        system.hermetic, system.residential)
+
+
+@lru_cache(maxsize=1 << 16)
+def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_mg: int, detection: bool,
+                 hermetic: bool, residential: bool) -> Assessment:
+    system = System(id=0, site_code="", tag="", hermetic=hermetic, residential=residential)
+    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_mg=charge_mg,
+                    detection_system=detection)
+    return _assess(reference, system, state, APPLIES_FROM)
+
+
+def _assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
     """The leak-check band of an in-service system: 517/2014 Art 4 and the HCFC rules.
 
     Args:
