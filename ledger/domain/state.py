@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from bisect import bisect_right
-from collections import deque
 from collections.abc import Iterable, Iterator
 from datetime import date
 from operator import attrgetter
@@ -33,13 +32,16 @@ def effective_events(events: Iterable[Event]) -> tuple[Event, ...]:
     return tuple(sorted(events, key=_DATE_ORDER))
 
 
-def fold_days(kept: tuple[Event, ...]) -> Iterator[tuple[int, SystemState]]:
+def fold_days(kept: tuple[Event, ...], *, every_day: bool = True) -> Iterator[tuple[int, SystemState]]:
     """Fold effective events (date order) once, yielding the state at the end of each day.
 
     Args:
         kept: effective events in date order (``effective_events``).
+        every_day: False yields only the state after the last event: each state holds the
+            events up to it, so building one per day costs time quadratic in the history.
     Yields:
-        (index of the day's last event, state after it), one pair per distinct day.
+        (index of the day's last event, state after it), one pair per distinct day (or just
+        the last one).
     """
     in_service = False
     refrigerant: str | None = None
@@ -73,7 +75,7 @@ def fold_days(kept: tuple[Event, ...]) -> Iterator[tuple[int, SystemState]]:
                 in_service, retired_on = False, e.performed_on
             case _:
                 pass
-        if i == last or kept[i + 1].performed_on != e.performed_on:
+        if i == last or (every_day and kept[i + 1].performed_on != e.performed_on):
             yield i, SystemState(
                 in_service=in_service,
                 refrigerant=refrigerant,
@@ -107,5 +109,6 @@ def state_of(events: Iterable[Event], as_of: date) -> SystemState:
     kept = effective_events(events)
     if kept and kept[-1].performed_on > as_of:  # date order: the events that count are a prefix
         kept = kept[: bisect_right(kept, as_of, key=_PERFORMED_ON)]
-    days = deque(fold_days(kept), maxlen=1)  # only the last day's state is wanted
-    return days[0][1] if days else EMPTY_STATE
+    for _, state in fold_days(kept, every_day=False):
+        return state
+    return EMPTY_STATE

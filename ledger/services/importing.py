@@ -410,7 +410,7 @@ def import_files(
         summary.problems = read_problems
         return summary
     try:
-        with db.write() as conn:
+        with db.write() as conn, repo.gc_paused():
             job = _Job(conn, dayfirst, summary, progress)
             job.run(grouped)
             if job.problems.items:
@@ -630,10 +630,7 @@ class _Job:
 
     # -- events --
     def events(self, rows: list[Row]) -> None:
-        from sqlalchemy import select
-
         from ledger.services.recording import placed_on, site_today
-        from ledger.store.tables import event as event_table
 
         if not rows:
             return
@@ -645,22 +642,19 @@ class _Job:
         touched = {
             systems[k].id for k in {(r.cells.get("site", ""), r.cells.get("tag", "")) for r in rows} if k in systems
         }
+        # Lock the touched chains first, then read them: their heads are then the last events
+        # loaded (one query, not one per system), and no other writer can extend them meanwhile.
+        repo.lock_systems(touched, conn=self.conn)
         history: dict[int, list[Event]] = defaultdict(list)
-        for sid, evs in repo.load_events(touched, conn=self.conn).items():
+        for sid, evs in repo.load_event_outlines(touched, conn=self.conn).items():
             history[sid].extend(evs)
-        keys = {
-            k
-            for (k,) in self.conn.execute(
-                select(event_table.c.content_key).where(
-                    event_table.c.system_id.in_(touched), event_table.c.content_key.is_not(None)
-                )
-            )
-        }
-        heads: dict[int, str] = {}
+        # A row's key holds its site and tag, so a key already in the ledger is on that system:
+        # looking the input's keys up in their index reads far less than the touched systems' rows.
+        row_keys = [content_key("events", r.cells) for r in rows]
+        keys = repo.existing_content_keys(row_keys, conn=self.conn)
+        heads: dict[int, str] = {sid: evs[-1].chain_hash or chain.GENESIS for sid, evs in history.items() if evs}
         # chain hash -> (event id, system id, kind); negative ids are rows of this input
-        by_hash: dict[str, tuple[int, int, EventKind]] = {
-            e.chain_hash: (e.id, sid, e.kind) for sid, evs in history.items() for e in evs if e.chain_hash
-        }
+        by_hash = _HashIndex(history)
         voided_ids = {e.voids_id for evs in history.values() for e in evs if e.voids_id is not None}
         pending: list[dict[str, Any]] = []
         total = len(rows)
@@ -678,7 +672,7 @@ class _Job:
                 c.fail("tag", f"{site_code}/{tag} is not a system in the ledger or the input")
             if c.bad or sys_ is None or on is None or kind_text is None:
                 continue
-            key = content_key("events", row.cells)
+            key = row_keys[number - 1]
             if key in keys:
                 self.summary.skipped["events"] += 1
                 continue
@@ -773,8 +767,8 @@ class _Job:
                 "reason": draft.reason,
                 "recorded_at": recorded_at,
             }
-            if sys_.id not in heads:
-                heads[sys_.id] = repo.chain_head(sys_.id, conn=self.conn)
+            if sys_.id not in heads:  # a system with no event yet
+                heads[sys_.id] = chain.GENESIS
             natural = {
                 "system": f"{site_code}/{tag}",
                 "technician": draft.technician,
@@ -786,7 +780,7 @@ class _Job:
             values["chain_hash"] = heads[sys_.id] = chain.link(heads[sys_.id], {**values, **natural})
             pending.append(values)
             keys.add(key)
-            by_hash[values["chain_hash"]] = (next_temp_id, sys_.id, kind)
+            by_hash.add(values["chain_hash"], (next_temp_id, sys_.id, kind))
             if voids_id is not None:
                 voided_ids.add(voids_id)
             history[sys_.id].append(
@@ -822,7 +816,7 @@ class _Job:
         c: _Cells,
         target_hash: str | None,
         system_id: int,
-        by_hash: dict[str, tuple[int, int, EventKind]],
+        by_hash: _HashIndex,
         voided_ids: set[int],
     ) -> int | None:
         """The (possibly provisional, negative) id of the event a void row names; else a problem."""
@@ -864,6 +858,36 @@ class _Job:
             batch.append(values)
         if batch:
             self.conn.execute(insert(event_table), batch)
+
+
+class _HashIndex:
+    """Chain hash -> (event id, system id, kind) over the loaded events and this input's rows.
+
+    Only void rows look events up, so the index of the loaded events (a million at estate
+    scale) is built on the first lookup; rows accepted before it are kept in order meanwhile.
+    """
+
+    def __init__(self, history: dict[int, list[Event]]) -> None:
+        # Rows of this input are appended to the history without a chain hash (theirs come
+        # with add()), so indexing the events that carry one indexes the loaded events.
+        self._history = history
+        self._index: dict[str, tuple[int, int, EventKind]] | None = None
+        self._added: list[tuple[str, tuple[int, int, EventKind]]] = []
+
+    def add(self, chain_hash: str, entry: tuple[int, int, EventKind]) -> None:
+        if self._index is None:
+            self._added.append((chain_hash, entry))
+        else:
+            self._index[chain_hash] = entry
+
+    def get(self, chain_hash: str) -> tuple[int, int, EventKind] | None:
+        if self._index is None:
+            self._index = {
+                e.chain_hash: (e.id, sid, e.kind) for sid, evs in self._history.items() for e in evs if e.chain_hash
+            }
+            self._index.update(self._added)
+            self._added = []
+        return self._index.get(chain_hash)
 
 
 def _column_for(f: Finding) -> str:

@@ -170,8 +170,9 @@ def due(
         site_code: only this site.
         overdue_only: only overdue obligations.
     """
-    histories, evidence = load_evidence(db, site_code=site_code)
-    obligations, findings = compute(histories, as_of, evidence)
+    with repo.gc_paused():
+        histories, evidence = load_evidence(db, site_code=site_code)
+        obligations, findings = compute(histories, as_of, evidence)
     current, missed = current_only(obligations)
     labels = labels_of(histories)
     rows = []
