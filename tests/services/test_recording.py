@@ -207,30 +207,20 @@ def test_event_after_retirement_is_refused(db: Database) -> None:
         )
 
 
+def _add_system(db: Database, **fields: object) -> None:
+    values: dict = dict(site_code="DE-1", tag="T", refrigerant="R-448A", charge_mg=1000,
+                        application="other", in_service_on=date(2023, 1, 1))
+    add_system(db, **{**values, **fields})
+
+
 def test_duplicates_and_unknowns(db: Database) -> None:
     _ledger(db)
     with pytest.raises(Conflict, match="site: 'DE-1' already exists"):
         add_site(db, code="DE-1", name="Again", country="DE")
     with pytest.raises(Conflict, match="system: 'RACK' already exists"):
-        add_system(
-            db,
-            site_code="DE-1",
-            tag="RACK",
-            refrigerant="R-448A",
-            charge_mg=1000,
-            application="other",
-            in_service_on=date(2023, 1, 1),
-        )
+        _add_system(db, tag="RACK")
     with pytest.raises(NotFound, match="site: 'XX'"):
-        add_system(
-            db,
-            site_code="XX",
-            tag="T",
-            refrigerant="R-448A",
-            charge_mg=1000,
-            application="other",
-            in_service_on=date(2023, 1, 1),
-        )
+        _add_system(db, site_code="XX")
     with pytest.raises(NotFound, match="system: DE-1/'NOPE'"):
         log_event(
             db,
@@ -239,25 +229,9 @@ def test_duplicates_and_unknowns(db: Database) -> None:
             draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, 1), mass_mg=1),
         )
     with pytest.raises(UnknownRefrigerant, match="closest known"):
-        add_system(
-            db,
-            site_code="DE-1",
-            tag="T2",
-            refrigerant="R-404B",
-            charge_mg=1000,
-            application="other",
-            in_service_on=date(2023, 1, 1),
-        )
+        _add_system(db, tag="T2", refrigerant="R-404B")
     with pytest.raises(InputError, match="--application: 'fridge'"):
-        add_system(
-            db,
-            site_code="DE-1",
-            tag="T3",
-            refrigerant="R-404A",
-            charge_mg=1000,
-            application="fridge",
-            in_service_on=date(2023, 1, 1),
-        )
+        _add_system(db, tag="T3", refrigerant="R-404A", application="fridge")
     with pytest.raises(InputError, match="--country: 'XQ'"):
         add_site(db, code="X", name="X", country="XQ")
 
