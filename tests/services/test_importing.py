@@ -203,13 +203,13 @@ cell = st.one_of(
     rows=st.lists(st.lists(cell, max_size=9), max_size=6),
 )
 def test_fuzzed_files_never_crash_and_never_write_partially(
-    sqlite_location: Location,
+    location: Location,
     tmp_path_factory: pytest.TempPathFactory,
     kind: str,
     header: list[str],
     rows: list[list[str]],
 ) -> None:
-    db = Database(sqlite_location)
+    db = Database(location)
     folder = tmp_path_factory.mktemp("fuzz")
     path = folder / f"{kind}.csv"
     with path.open("w", newline="", encoding="utf-8") as fh:
@@ -226,9 +226,9 @@ def test_fuzzed_files_never_crash_and_never_write_partially(
 @settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(blob=st.binary(max_size=300))
 def test_fuzzed_bytes_never_crash(
-    sqlite_location: Location, tmp_path_factory: pytest.TempPathFactory, blob: bytes
+    location: Location, tmp_path_factory: pytest.TempPathFactory, blob: bytes
 ) -> None:
-    db = Database(sqlite_location)
+    db = Database(location)
     folder = tmp_path_factory.mktemp("bytes")
     for name in ("events.csv", "book.xlsx"):
         (folder / name).write_bytes(blob)
