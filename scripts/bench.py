@@ -2,7 +2,7 @@
 
 The estate is invented data for benchmarking only. At ``--scale 1`` it has 1 000 sites (EU,
 GB, US and California stores), 30 systems per site (central plants, condensing units, plug-in
-cabinets, split air conditioning, chillers, process and transport units) and about 1.2 million
+cabinets, split air conditioning, chillers, process and transport units) and about 1.16 million
 events over five years: periodic leak checks, leaks found and repaired, top-ups (some by
 cylinder weights), follow-up checks, detection-system checks, recoveries, retrofits,
 retirements, revised charges and voids. It is deterministic: the same scale always gives the
@@ -36,7 +36,8 @@ Usage::
 
 PostgreSQL: ``$REFLEDGER_TEST_PG_URL`` if set (a scratch database is created in that server
 and dropped afterwards), else a throwaway server started from /usr/lib/postgresql/*/bin as
-``scripts/test`` does. Timings vary by about 20 % from run to run on a small machine.
+``scripts/test`` does. Timings vary by about ±20 % from run to run on a small machine; results,
+machine and method are in docs/performance.md.
 """
 
 from __future__ import annotations
@@ -1231,7 +1232,50 @@ def _drop_copies(backend: str, urls: list[str], pg: PgServer | None) -> None:
             pg.drop(u.rsplit("/", 1)[1])
 
 
-def print_table(results: list[dict[str, Any]]) -> None:
+CONSTANT_COST = {"log-add", "help"}  # one process each, whatever the estate: shown in seconds
+
+
+def _scaling(results: list[dict[str, Any]]) -> tuple[list[float], list[tuple[str, str, list[str]]]]:
+    """Per measurement and backend, one cell per scale: seconds per million events for the
+    estate-wide work (flat when cost grows linearly), plain seconds for the constant-cost ones."""
+    scales = sorted({r["scale"] for r in results})
+    keys = sorted({(r["name"], r["backend"]) for r in results if r["seconds"] is not None},
+                  key=lambda k: (MEASUREMENTS.index(k[0]), k[1]))
+    rows = []
+    for name, backend in keys:
+        cells = []
+        for s in scales:
+            r = next((x for x in results if x["scale"] == s and x["name"] == name
+                      and x["backend"] == backend and x["seconds"] is not None), None)
+            if r is None:
+                cells.append("-")
+            elif name in CONSTANT_COST:
+                cells.append(f"{r['seconds']:.2f} s")
+            else:
+                cells.append(f"{r['seconds'] / r['events'] * 1e6:.1f}")
+        rows.append((name, backend, cells))
+    return scales, rows
+
+
+def print_table(results: list[dict[str, Any]], markdown: bool = False) -> None:
+    if markdown:
+        print("| S | measurement | backend | seconds | floor s | ratio | goal | peak RSS MB |")
+        print("|---|---|---|---:|---:|---:|---:|---:|")
+        for r in results:
+            if r["seconds"] is None:
+                print(f"| {r['scale']} | {r['name']} | {r['backend']} | pending | | | {r['goal']} | |")
+                continue
+            mark = "" if r["ratio"] is not None and r["ratio"] <= r["goal"] else " ✗"
+            print(f"| {r['scale']} | {r['name']} | {r['backend']} | {r['seconds']:.3f} | {r['floor_seconds']:.3f} "
+                  f"| {r['ratio']:.2f}{mark} | {r['goal']} | {r['peak_rss_mb']:.0f} |")
+        scales, rows = _scaling(results)
+        if len(scales) > 1:
+            print()
+            print("| measurement | backend | " + " | ".join(f"S = {s}" for s in scales) + " |")
+            print("|---|---|" + "---:|" * len(scales))
+            for name, backend, cells in rows:
+                print(f"| {name} | {backend} | " + " | ".join(cells) + " |")
+        return
     head = (f"{'scale':>5} {'measurement':11} {'backend':10} {'seconds':>9} {'floor s':>9} "
             f"{'ratio':>7} {'goal':>5} {'peak MB':>8}  events")
     print(head)
@@ -1244,20 +1288,13 @@ def print_table(results: list[dict[str, Any]]) -> None:
         print(f"{r['scale']:>5} {r['name']:11} {r['backend']:10} {r['seconds']:9.3f} "
               f"{r['floor_seconds']:9.3f} {r['ratio']:7.2f} {r['goal']:5.1f} {r['peak_rss_mb']:8.0f}"
               f"  {r['events']}{flag}")
-    scales = sorted({r["scale"] for r in results})
+    scales, rows = _scaling(results)
     if len(scales) > 1:
         print()
-        print("scaling: seconds per million events (linear cost keeps this flat)")
-        keys = sorted({(r["name"], r["backend"]) for r in results if r["seconds"] is not None},
-                      key=lambda k: (MEASUREMENTS.index(k[0]), k[1]))
+        print("scaling: seconds per million events (flat = linear cost); log-add and help in seconds")
         print(f"{'measurement':11} {'backend':10} " + " ".join(f"{'S=' + str(s):>10}" for s in scales))
-        for name, backend in keys:
-            cells = []
-            for s in scales:
-                r = next((x for x in results if x["scale"] == s and x["name"] == name
-                          and x["backend"] == backend and x["seconds"] is not None), None)
-                cells.append(f"{r['seconds'] / r['events'] * 1e6:10.2f}" if r else f"{'-':>10}")
-            print(f"{name:11} {backend:10} " + " ".join(cells))
+        for name, backend, cells in rows:
+            print(f"{name:11} {backend:10} " + " ".join(f"{c:>10}" for c in cells))
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -1279,6 +1316,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                    help="keep the SQLite file in --workdir (for profiling); implies sqlite only")
     p.add_argument("--report", nargs="+", type=Path, metavar="JSON",
                    help="print the table (and scaling) of earlier --json outputs; runs nothing")
+    p.add_argument("--markdown", action="store_true", help="with --report: Markdown tables")
     p.add_argument("--child", help=argparse.SUPPRESS)
     p.add_argument("--side", help=argparse.SUPPRESS)
     p.add_argument("--ctx", help=argparse.SUPPRESS)
@@ -1289,7 +1327,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.report:
         merged = [r for path in args.report for r in json.loads(path.read_text())]
         merged.sort(key=lambda r: r["scale"])  # stable: each run keeps its own order
-        print_table(merged)
+        print_table(merged, markdown=args.markdown)
         return 0
     scales = [float(s) for s in args.scale.split(",") if s.strip()]
     backends = [b.strip() for b in args.backends.split(",") if b.strip()]
