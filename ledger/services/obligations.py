@@ -2,21 +2,27 @@
 
 from __future__ import annotations
 
+import functools
+import hashlib
 from dataclasses import dataclass, field, replace
-from datetime import date
+from datetime import UTC, date, datetime
+from itertools import groupby
 from typing import Any
 
 from ledger.domain.detector_policy import StoredEpisode, episode_obligations, repair_findings
 from ledger.domain.records import (
+    Basis,
+    Confidence,
     Filing,
     Finding,
     Obligation,
     ObligationKind,
     ObligationStatus,
+    Severity,
     SystemHistory,
 )
 from ledger.reference import load_reference
-from ledger.services.queries import labels_of, obligation_json
+from ledger.services.queries import obligation_json
 from ledger.store import repository as repo
 from ledger.store.db import Database
 
@@ -153,6 +159,211 @@ def load_evidence(
     return histories, Evidence(episodes, filings)
 
 
+# --- kept obligations -----------------------------------------------------------------------
+#
+# `due` keeps, per site, the obligations it showed (the current period of each periodic series
+# and every unmet one-off duty, with the count of earlier missed periods) and the rules'
+# findings, in the kept_* tables. A later `due` reuses a site's kept rows instead of running
+# the rules over its history when all of these hold:
+#
+# * the site's newest event id and newest system id are the ones kept (records are
+#   append-only, so any new event, void or system changes them);
+# * the rules and reference data are those of `rules_key()`;
+# * the day asked for is on or after the day they were computed for, in the same calendar
+#   year, with no regime date in between, and not after the earliest due day of a duty that
+#   was open then (`fresh_until`): until then no status and no wording can change;
+# * no event of the site was dated after the day they were computed for.
+#
+# Under those conditions the rows shown are the same (tests/services/test_kept.py holds the
+# two paths to that): nothing new happened, nothing open fell due, a periodic series' first
+# unmet period stays the first and later periods collapse into it. Otherwise the site is
+# computed again (and kept again). Detector episodes and filings are applied on every run.
+
+KEEP_FORMAT = "1"  # bump when what is kept, or how it is read back, changes
+
+
+@functools.cache
+def rules_key() -> str:
+    """A digest of everything besides the records that the kept rows depend on."""
+    from ledger import __version__
+    from ledger.reference import data_digest
+    from ledger.rules import REGIMES
+
+    parts = [KEEP_FORMAT, __version__, data_digest(), *(f"{c}={m.REGIME_VERSION}" for c, m in REGIMES.items())]
+    return hashlib.sha256("|".join(parts).encode()).hexdigest()
+
+
+@functools.cache
+def rule_dates() -> tuple[date, ...]:
+    """Every date a regime names (dates of application, phase-ins): the rules may change there."""
+    from ledger.rules import REGIMES
+
+    return tuple(sorted({c.value for m in REGIMES.values() for c in m.CONSTANTS if isinstance(c.value, date)}))
+
+
+def _usable(kept: Any, head_event: int | None, head_system: int | None, as_of: date) -> bool:
+    return (
+        kept is not None
+        and kept.rules_key == rules_key()
+        and kept.head_event_id == head_event
+        and kept.head_system_id == head_system
+        and kept.as_of <= as_of
+        and kept.as_of.year == as_of.year
+        and (kept.fresh_until is None or as_of <= kept.fresh_until)
+        and not any(kept.as_of < d <= as_of for d in rule_dates())
+    )
+
+
+@dataclass(slots=True)
+class _Shown:
+    """The rows `due` shows and the findings, gathered from kept and freshly computed sites."""
+
+    obligations: list[Obligation] = field(default_factory=list)
+    missed: list[int | None] = field(default_factory=list)  # earlier periods missed, per obligation
+    findings: list[Finding] = field(default_factory=list)
+
+
+def _kept_obligation(row: Any, site_code: str, as_of: date, bases: dict[tuple, Basis]) -> Obligation:
+    key = (row.citation, row.confidence, row.basis_note)
+    basis = bases.get(key)
+    if basis is None:
+        basis = bases[key] = Basis(row.citation, Confidence(row.confidence), row.basis_note)
+    status = ObligationStatus.OVERDUE if row.due_on < as_of else ObligationStatus.OPEN
+    return Obligation(row.regime, ObligationKind(row.kind), row.due_on, basis, status, row.system_id,
+                      site_code, row.earliest_on, row.caused_by, None, row.detail)
+
+
+def _keep_rows(site_id: int, obligations: list[Obligation], missed: list[int | None]) -> list[dict[str, Any]]:
+    return [
+        {
+            "site_id": site_id, "system_id": ob.system_id, "regime": ob.regime, "kind": ob.kind.value,
+            "due_on": ob.due_on, "earliest_on": ob.earliest_on, "citation": ob.basis.citation,
+            "confidence": ob.basis.confidence.value, "basis_note": ob.basis.note, "caused_by": ob.caused_by,
+            "detail": ob.detail, "earlier_missed": n,
+        }
+        for ob, n in zip(obligations, missed, strict=True)
+    ]
+
+
+def _unmet_current(obligations: list[Obligation]) -> tuple[list[Obligation], list[int | None]]:
+    """`current_only` without the met rows, with each row's earlier-missed count (None for
+    one-off duties)."""
+    kept, counts = current_only(obligations)
+    shown: list[Obligation] = []
+    missed: list[int | None] = []
+    for i, ob in enumerate(kept):
+        if ob.status is ObligationStatus.MET:
+            continue
+        shown.append(ob)
+        missed.append(counts.get(i, 0) if ob.kind in PERIODIC else None)
+    return shown, missed
+
+
+def _shown_on(db: Database, as_of: date, site_code: str | None) -> tuple[_Shown, dict[int, tuple[str, str, str]]]:
+    """The unmet current obligations and findings of the estate (or one site) on ``as_of``,
+    from kept rows where they are current, else from the rules (and kept for next time)."""
+    from ledger.rules import compute_all
+    from ledger.services.detectors import stored_episodes
+
+    with db.read() as conn:
+        if site_code is not None:
+            repo.get_site(site_code, conn=conn)  # NotFound, with the usual message
+        heads = repo.site_heads(site_code, conn=conn)
+        kept_sites = repo.load_kept_sites(None if site_code is None else list(heads), conn=conn)
+        fresh = {sid for sid, (_, he, hs) in heads.items() if _usable(kept_sites.get(sid), he, hs, as_of)}
+        stale = sorted(set(heads) - fresh)
+        ob_rows, fin_rows = repo.load_kept(sorted(fresh), conn=conn, everything=site_code is None and not stale)
+        places = repo.system_places(site_code, conn=conn)
+        histories = repo.load_histories(conn=conn, site_ids=stale) if stale else []
+        zones = {sid: tz for sid, (_, _, tz) in places.items()}
+        episodes = stored_episodes(conn, None if site_code is None else list(places), zones)
+        loaded = {h.system.id for h in histories}
+        extra = [sid for sid in episodes if sid not in loaded]
+        with_episodes = [h for h in histories if h.system.id in episodes]
+        if extra:
+            with_episodes += repo.load_histories(conn=conn, system_ids=extra)
+        filings = [f for f in repo.load_filings(site_code, conn=conn) if f.filed_on <= as_of]
+
+    code_of = {sid: code for sid, (code, _, _) in heads.items()}
+    site_of_code = {code: sid for sid, code in code_of.items()}
+    per_site: dict[str, _Shown] = {}
+    bases: dict[tuple, Basis] = {}
+    for row in ob_rows:
+        code = code_of[row.site_id]
+        part = per_site.setdefault(code, _Shown())
+        part.obligations.append(_kept_obligation(row, code, as_of, bases))
+        part.missed.append(row.earlier_missed)
+    for row in fin_rows:
+        per_site.setdefault(code_of[row.site_id], _Shown()).findings.append(
+            Finding(row.source, row.message, Severity(row.severity), row.field))
+
+    # Sites whose kept rows are not current: run the rules, and keep what they give.
+    reference = load_reference()
+    keep_sites: list[dict[str, Any]] = []
+    keep_obs: list[dict[str, Any]] = []
+    keep_fins: list[dict[str, Any]] = []
+    now = datetime.now(UTC)
+    for code, group in groupby(histories, key=lambda h: h.site.code):
+        members = list(group)
+        obligations, found = compute_all(members, reference, as_of)
+        shown, missed = _unmet_current(obligations)
+        per_site[code] = _Shown(shown, missed, found)
+        events = [e for h in members for e in h.events]
+        if any(e.performed_on > as_of for e in events):
+            continue  # records dated after the day asked for: good for that day only
+        sid = site_of_code[code]
+        open_due = [ob.due_on for ob in shown if ob.status is ObligationStatus.OPEN]
+        keep_sites.append({"site_id": sid, "as_of": as_of, "fresh_until": min(open_due, default=None),
+                           "rules_key": rules_key(),
+                           "head_event_id": max((e.id for e in events), default=None),
+                           "head_system_id": max(h.system.id for h in members), "computed_at": now})
+        keep_obs.extend(_keep_rows(sid, shown, missed))
+        keep_fins.extend({"site_id": sid, "source": f.source, "message": f.message, "severity": f.severity.value,
+                          "field": f.field} for f in found)
+    for sid in stale:  # a site without systems
+        if code_of[sid] not in per_site:
+            per_site[code_of[sid]] = _Shown()
+    if keep_sites:
+        _keep(db, keep_sites, keep_obs, keep_fins)
+
+    shown = _Shown()
+    for code in sorted(per_site):
+        part = per_site[code]
+        shown.obligations.extend(part.obligations)
+        shown.missed.extend(part.missed)
+        shown.findings.extend(part.findings)
+
+    # Detector episodes and filings: applied on every run (they change without new events).
+    episode_obs: list[Obligation] = []
+    for h in with_episodes:
+        eps = episodes[h.system.id]
+        episode_obs.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
+        shown.findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
+    ep_shown, ep_missed = _unmet_current(episode_obs)
+    shown.obligations.extend(ep_shown)
+    shown.missed.extend(ep_missed)
+    if filings:
+        filed = apply_filings(shown.obligations, filings)
+        keep_idx = [i for i, ob in enumerate(filed) if ob.status is not ObligationStatus.MET]
+        shown.obligations = [filed[i] for i in keep_idx]
+        shown.missed = [shown.missed[i] for i in keep_idx]
+    shown.findings = list(dict.fromkeys(shown.findings))
+    return shown, places
+
+
+def _keep(db: Database, sites: list[dict[str, Any]], obligations: list[dict[str, Any]],
+          findings: list[dict[str, Any]]) -> None:
+    """Store freshly computed rows for the next `due`; a ledger that cannot be written to
+    (read-only file or role) simply computes them again next time."""
+    from sqlalchemy.exc import OperationalError, ProgrammingError
+
+    try:
+        with db.write() as conn:
+            repo.replace_kept(conn=conn, sites=sites, obligations=obligations, findings=findings)
+    except (OperationalError, ProgrammingError):
+        return
+
+
 def due(
     db: Database,
     *,
@@ -171,20 +382,17 @@ def due(
         overdue_only: only overdue obligations.
     """
     with repo.gc_paused():
-        histories, evidence = load_evidence(db, site_code=site_code)
-        obligations, findings = compute(histories, as_of, evidence)
-    current, missed = current_only(obligations)
-    labels = labels_of(histories)
+        shown, places = _shown_on(db, as_of, site_code)
+    labels = {sid: (code, tag) for sid, (code, tag, _) in places.items()}
     rows = []
-    for i, ob in enumerate(current):
-        if ob.status is ObligationStatus.MET:
-            continue
+    for ob, missed in zip(shown.obligations, shown.missed, strict=True):
         if overdue_only and ob.status is not ObligationStatus.OVERDUE:
             continue
         if within_days is not None and ob.status is ObligationStatus.OPEN and (ob.due_on - as_of).days > within_days:
             continue
         row = obligation_json(ob, labels)
-        row["earlier_periods_missed"] = missed.get(i, 0) if ob.kind in PERIODIC else None
+        row["earlier_periods_missed"] = missed
         rows.append(row)
-    rows.sort(key=lambda r: (r["due_on"], r["site"] or "", r["system"] or "", r["kind"]))
-    return DueList(as_of, rows, findings)
+    rows.sort(key=lambda r: (r["due_on"], r["site"] or "", r["system"] or "", r["kind"], r["regime"],
+                             r["caused_by"] or 0, r["detail"]))
+    return DueList(as_of, rows, shown.findings)

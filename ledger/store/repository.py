@@ -39,6 +39,9 @@ from ledger.store.tables import (
     cylinder,
     event,
     filing,
+    kept_finding,
+    kept_obligation,
+    kept_site,
     site,
     system,
     technician,
@@ -555,23 +558,36 @@ def load_event_outlines(system_ids: Iterable[int], *, conn: Connection) -> dict[
 
 
 def load_histories(
-    site_code: str | None = None, *, conn: Connection, system_id: int | None = None
+    site_code: str | None = None,
+    *,
+    conn: Connection,
+    system_id: int | None = None,
+    site_ids: Sequence[int] | None = None,
+    system_ids: Sequence[int] | None = None,
 ) -> list[SystemHistory]:
-    """Site, system and events of every system (or one site / one system): three queries."""
+    """Site, system and events of every system (or one site / one system / some sites or
+    systems): three queries (more for thousands of ids)."""
     stmt = select(system)
+    everything = False
     if system_id is not None:
         stmt = stmt.where(system.c.id == system_id)
     elif site_code is not None:
         stmt = stmt.where(system.c.site_id == get_site(site_code, conn=conn).id)
+    elif site_ids is not None:
+        stmt = stmt.where(system.c.site_id.in_(sorted(set(site_ids)) or [-1]))
+    elif system_ids is not None:
+        stmt = stmt.where(system.c.id.in_(sorted(set(system_ids)) or [-1]))
+    else:
+        everything = True
     rows = conn.execute(stmt.order_by(system.c.site_id, system.c.tag)).all()
-    if system_id is None and site_code is None:
+    if everything:
         sites = {s.id: s for s in list_sites(conn=conn)}
     else:  # only the sites of these systems (a technician's `log` must not read a 1 000-site estate)
         needed = sorted({r.site_id for r in rows})
         found = conn.execute(select(site).where(site.c.id.in_(needed))) if needed else []
         sites = {r.id: _site_record(r) for r in found}
     ids = [r.id for r in rows]
-    events = load_events(ids if (system_id is not None or site_code) else None, conn=conn)
+    events = load_events(None if everything else ids, conn=conn) if ids else {}
     return [
         SystemHistory(
             site=sites[r.site_id],
@@ -605,3 +621,204 @@ def load_filings(site_code: str | None = None, *, conn: Connection) -> list[Fili
         Filing(r.site_code, r.regime, r.period_year, r.filed_on, r.system_id, r.reference, r.recorded_by)
         for r in conn.execute(stmt.order_by(filing.c.id))
     ]
+
+
+# ---- kept obligations (derived data; see tables.kept_site) ----------------------------------
+
+
+def site_heads(site_code: str | None = None, *, conn: Connection) -> dict[int, tuple[str, int | None, int | None]]:
+    """Site id -> (code, newest event id, newest system id) of every site (or one): one query.
+
+    A site's kept obligations are current while these two ids are the ones kept with them
+    (events and systems are append-only, so any new record raises one of them).
+    """
+    stmt = (
+        select(site.c.id, site.c.code, func.max(event.c.id), func.max(system.c.id))
+        .select_from(site)
+        .outerjoin(system, system.c.site_id == site.c.id)
+        .outerjoin(event, event.c.system_id == system.c.id)
+        .group_by(site.c.id, site.c.code)
+    )
+    if site_code is not None:
+        stmt = stmt.where(site.c.code == site_code)
+    return {sid: (code, head_event, head_system) for sid, code, head_event, head_system in conn.execute(stmt)}
+
+
+def system_places(site_code: str | None = None, *, conn: Connection) -> dict[int, tuple[str, str, str]]:
+    """System id -> (site code, tag, site time zone) of every system (or one site's)."""
+    stmt = select(system.c.id, site.c.code, system.c.tag, site.c.timezone).join(site, site.c.id == system.c.site_id)
+    if site_code is not None:
+        stmt = stmt.where(site.c.code == site_code)
+    return {sid: (code, tag, tz) for sid, code, tag, tz in conn.execute(stmt)}
+
+
+def load_kept_sites(site_ids: Iterable[int] | None = None, *, conn: Connection) -> dict[int, Any]:
+    """Site id -> its `kept_site` row (as_of, rules_key, head_event_id, head_system_id)."""
+    stmt = select(kept_site)
+    if site_ids is not None:
+        stmt = stmt.where(kept_site.c.site_id.in_(sorted(set(site_ids)) or [-1]))
+    return {r.site_id: r for r in conn.execute(stmt)}
+
+
+def load_kept(site_ids: Sequence[int], *, conn: Connection, everything: bool = False) -> tuple[list[Any], list[Any]]:
+    """The kept obligation rows and finding rows of some sites (or all with ``everything``),
+    in the order they were kept."""
+    if not site_ids and not everything:
+        return [], []
+    ob_cols = [c for c in kept_obligation.c if c.name != "id"]
+    obs = select(*ob_cols).order_by(kept_obligation.c.id)
+    fins = select(kept_finding).order_by(kept_finding.c.id)
+    if everything:
+        return conn.execute(obs).all(), conn.execute(fins).all()
+    ob_rows: list[Any] = []
+    fin_rows: list[Any] = []
+    ids = sorted(set(site_ids))
+    for i in range(0, len(ids), _IN_CHUNK):
+        chunk = ids[i : i + _IN_CHUNK]
+        ob_rows.extend(conn.execute(obs.where(kept_obligation.c.site_id.in_(chunk))))
+        fin_rows.extend(conn.execute(fins.where(kept_finding.c.site_id.in_(chunk))))
+    return ob_rows, fin_rows
+
+
+def replace_kept(
+    *,
+    conn: Connection,
+    sites: Sequence[Mapping[str, Any]],
+    obligations: Sequence[Mapping[str, Any]],
+    findings: Sequence[Mapping[str, Any]],
+) -> None:
+    """Replace the kept obligations of some sites (rows as `kept_site`, `kept_obligation` and
+    `kept_finding` take them). The sites' rows are locked first, so two writers keeping the
+    same site one after the other cannot leave both sets behind."""
+    ids = sorted({s["site_id"] for s in sites})
+    for i in range(0, len(ids), _IN_CHUNK):
+        chunk = ids[i : i + _IN_CHUNK]
+        conn.execute(select(site.c.id).where(site.c.id.in_(chunk)).order_by(site.c.id).with_for_update()).all()
+        for table in (kept_obligation, kept_finding, kept_site):
+            conn.execute(table.delete().where(table.c.site_id.in_(chunk)))
+    if sites:
+        conn.execute(insert(kept_site), list(sites))
+    if obligations:
+        conn.execute(insert(kept_obligation), list(obligations))
+    if findings:
+        conn.execute(insert(kept_finding), list(findings))
+
+
+# --- import fast paths ---
+# A bulk import checks every row against its system's state before it writes anything, so it
+# reads the touched systems once, set-based, and only what those checks and the chain need.
+
+
+def system_ids_by_key(*, conn: Connection) -> dict[tuple[str, str], int]:
+    """(site code, tag) -> system id of every system: one query, no records built."""
+    stmt = select(site.c.code, system.c.tag, system.c.id).join(site, site.c.id == system.c.site_id)
+    return {(code, tag): sid for code, tag, sid in conn.execute(stmt)}
+
+
+def certificate_ids(*, conn: Connection) -> dict[int, dict[str, int]]:
+    """Technician id -> {certificate number: certificate row id} (as ``get_technician`` maps
+    them, for every technician in one query)."""
+    found: dict[int, dict[str, int]] = defaultdict(dict)
+    stmt = select(certificate.c.technician_id, certificate.c.number, certificate.c.id).order_by(certificate.c.id)
+    for tid, number, cid in conn.execute(stmt):
+        found[tid][number] = cid
+    return dict(found)
+
+
+def chain_heads(system_ids: Iterable[int], *, conn: Connection) -> dict[int, str]:
+    """System id -> the chain hash of its newest event, for those of these systems that have
+    events (one indexed look-up per system; lock the chains first, see ``lock_systems``)."""
+    newest = (
+        select(event.c.chain_hash)
+        .where(event.c.system_id == system.c.id)
+        .order_by(event.c.id.desc())
+        .limit(1)
+        .scalar_subquery()
+    )
+    heads: dict[int, str] = {}
+    ids = sorted(set(system_ids))
+    for i in range(0, len(ids), _IN_CHUNK):
+        stmt = select(system.c.id, newest).where(system.c.id.in_(ids[i : i + _IN_CHUNK]))
+        heads.update((sid, head) for sid, head in conn.execute(stmt) if head is not None)
+    return heads
+
+
+def load_events_of_kinds(
+    system_ids: Iterable[int], kinds: Iterable[EventKind], *, conn: Connection
+) -> dict[int, list[Event]]:
+    """The events of these kinds of these systems, grouped by system in recording order,
+    holding id, system, kind, day, refrigerant, charge and voided event (the rest at defaults).
+
+    The (kind, day) index finds them, so this reads a few rows per system where
+    ``load_event_outlines`` reads all of them.
+    """
+    columns = (
+        event.c.id, event.c.system_id, event.c.kind, event.c.performed_on, event.c.refrigerant,
+        event.c.charge_mg, event.c.voids_id,
+    )
+    wanted = sorted(k.value for k in kinds)
+    grouped: dict[int, list[Event]] = defaultdict(list)
+    days: dict[Any, date] = {}
+    ids = sorted(set(system_ids))
+    for i in range(0, len(ids), _IN_CHUNK):
+        stmt = (
+            select(*(_raw(c, c.name) for c in columns))
+            .where(event.c.system_id.in_(ids[i : i + _IN_CHUNK]), event.c.kind.in_(wanted))
+            .order_by(event.c.system_id, event.c.id)
+        )
+        for id_, system_id, kind, on, refrigerant, charge, voids in conn.execute(stmt):
+            day = days.get(on)
+            if day is None:
+                day = days[on] = date.fromisoformat(on) if isinstance(on, str) else on
+            grouped[system_id].append(
+                Event(id_, system_id, _KINDS[kind], day, refrigerant=refrigerant, charge_mg=charge, voids_id=voids)
+            )
+    return dict(grouped)
+
+
+def events_by_chain_hash(hashes: Iterable[str], *, conn: Connection) -> dict[str, tuple[int, int, EventKind]]:
+    """Chain hash -> (event id, system id, kind) of the events carrying these hashes (by index)."""
+    wanted = sorted(set(hashes))
+    found: dict[str, tuple[int, int, EventKind]] = {}
+    for i in range(0, len(wanted), _IN_CHUNK):
+        stmt = select(event.c.chain_hash, event.c.id, event.c.system_id, event.c.kind).where(
+            event.c.chain_hash.in_(wanted[i : i + _IN_CHUNK])
+        )
+        found.update((h, (id_, sid, _KINDS[kind])) for h, id_, sid, kind in conn.execute(stmt))
+    return found
+
+
+def voiding_events(event_ids: Iterable[int], *, conn: Connection) -> list[tuple[int, int]]:
+    """(system id, voided event id) of every event that names one of these events as the one
+    it voids (a scan of the event table: for the few events an import's void rows name)."""
+    wanted = sorted(set(event_ids))
+    found: list[tuple[int, int]] = []
+    for i in range(0, len(wanted), _IN_CHUNK):
+        stmt = select(event.c.system_id, event.c.voids_id).where(event.c.voids_id.in_(wanted[i : i + _IN_CHUNK]))
+        found.extend((sid, vid) for sid, vid in conn.execute(stmt))
+    return found
+
+
+def insert_event_rows(columns: Sequence[str], rows: Sequence[Sequence[Any]], *, conn: Connection) -> None:
+    """Insert event rows given as plain tuples in ``columns`` order, in one ``executemany``.
+
+    Each value is converted as SQLAlchemy would bind it for its column (the dialect's own
+    bind processor: dates as ISO text on SQLite, for instance), so the stored rows are the
+    ones ``insert(event)`` with dictionaries stores, without its per-row parameter handling.
+    """
+    if not rows:
+        return
+    dialect = conn.dialect
+    processors = [event.c[name].type.dialect_impl(dialect).bind_processor(dialect) for name in columns]
+    if any(processors):
+        convert = [(i, p) for i, p in enumerate(processors) if p is not None]
+        converted = []
+        for row in rows:
+            out = list(row)
+            for i, p in convert:
+                out[i] = p(out[i])
+            converted.append(tuple(out))
+        rows = converted
+    mark = "?" if dialect.paramstyle == "qmark" else "%s"
+    sql = f"INSERT INTO event ({', '.join(columns)}) VALUES ({', '.join([mark] * len(columns))})"
+    conn.exec_driver_sql(sql, list(rows))

@@ -208,3 +208,54 @@ filing = Table(
     Column("recorded_by", String(200)),
     Column("recorded_at", DateTime(timezone=True), nullable=False),
 )
+
+# --- kept obligations ------------------------------------------------------------------------
+# What `due` computed for a site, kept so that the next `due` reads a few rows per system
+# instead of re-running every rule over every event. Derived data, never a record: it is not
+# exported or restored, and any row may be dropped at any time (the next `due` recomputes).
+# A site's rows are current while its newest event id and newest system id are the ones
+# stored in `kept_site`, the rules and reference data are those of `rules_key`, and the
+# as-of day asked for lies from `as_of` to `fresh_until` in the same year (see
+# services/obligations.py).
+kept_site = Table(
+    "kept_site",
+    metadata,
+    Column("site_id", Integer, ForeignKey("site.id"), primary_key=True),
+    Column("as_of", Date, nullable=False),
+    Column("fresh_until", Date),  # the earliest due day of an open duty: later, statuses move
+    Column("rules_key", String(64), nullable=False),
+    Column("head_event_id", Integer),  # newest event of the site's systems when computed
+    Column("head_system_id", Integer),  # newest system of the site when computed
+    Column("computed_at", DateTime(timezone=True), nullable=False),
+)
+
+# The site's unmet obligations that `due` shows (the current period of each periodic series
+# and every unmet one-off duty), as of `kept_site.as_of`; statuses are re-derived per day.
+kept_obligation = Table(
+    "kept_obligation",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("site_id", Integer, ForeignKey("site.id"), nullable=False, index=True),
+    Column("system_id", Integer, ForeignKey("system.id")),
+    Column("regime", String(20), nullable=False),
+    Column("kind", String(40), nullable=False),
+    Column("due_on", Date, nullable=False),
+    Column("earliest_on", Date),
+    Column("citation", Text, nullable=False),
+    Column("confidence", String(20), nullable=False),
+    Column("basis_note", Text, nullable=False, server_default=""),
+    Column("caused_by", Integer),
+    Column("detail", Text, nullable=False, server_default=""),
+    Column("earlier_missed", Integer),  # periodic series: periods missed before the last met one
+)
+
+kept_finding = Table(
+    "kept_finding",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("site_id", Integer, ForeignKey("site.id"), nullable=False, index=True),
+    Column("source", Text, nullable=False),
+    Column("message", Text, nullable=False),
+    Column("severity", String(10), nullable=False),
+    Column("field", String(40)),
+)
