@@ -166,8 +166,8 @@ def load_evidence(
 # findings, in the kept_* tables. A later `due` reuses a site's kept rows instead of running
 # the rules over its history when all of these hold:
 #
-# * the site's newest event id and newest system id are the ones kept (records are
-#   append-only, so any new event, void or system changes them);
+# * the site's revision is the one kept (triggers raise it with every event, void, system,
+#   filing or detector episode added to the site; see tables.site_revision);
 # * the rules and reference data are those of `rules_key()`;
 # * the day asked for is on or after the day they were computed for, in the same calendar
 #   year, with no regime date in between, and not after the earliest due day of a duty that
@@ -201,12 +201,11 @@ def rule_dates() -> tuple[date, ...]:
     return tuple(sorted({c.value for m in REGIMES.values() for c in m.CONSTANTS if isinstance(c.value, date)}))
 
 
-def _usable(kept: Any, head_event: int | None, head_system: int | None, as_of: date) -> bool:
+def _usable(kept: Any, revision: int, as_of: date) -> bool:
     return (
         kept is not None
         and kept.rules_key == rules_key()
-        and kept.head_event_id == head_event
-        and kept.head_system_id == head_system
+        and kept.revision == revision
         and kept.as_of <= as_of
         and kept.as_of.year == as_of.year
         and (kept.fresh_until is None or as_of <= kept.fresh_until)
@@ -268,9 +267,10 @@ def _shown_on(db: Database, as_of: date, site_code: str | None) -> tuple[_Shown,
     with db.read() as conn:
         if site_code is not None:
             repo.get_site(site_code, conn=conn)  # NotFound, with the usual message
-        heads = repo.site_heads(site_code, conn=conn)
+        heads = repo.site_revisions(site_code, conn=conn)  # read before the histories (PostgreSQL:
+        # a record committed in between leaves the kept rows stale, never wrong)
         kept_sites = repo.load_kept_sites(None if site_code is None else list(heads), conn=conn)
-        fresh = {sid for sid, (_, he, hs) in heads.items() if _usable(kept_sites.get(sid), he, hs, as_of)}
+        fresh = {sid for sid, (_, rev, _) in heads.items() if _usable(kept_sites.get(sid), rev, as_of)}
         stale = sorted(set(heads) - fresh)
         ob_rows, fin_rows = repo.load_kept(sorted(fresh), conn=conn, everything=site_code is None and not stale)
         places = repo.system_places(site_code, conn=conn)
@@ -314,9 +314,7 @@ def _shown_on(db: Database, as_of: date, site_code: str | None) -> tuple[_Shown,
         sid = site_of_code[code]
         open_due = [ob.due_on for ob in shown if ob.status is ObligationStatus.OPEN]
         keep_sites.append({"site_id": sid, "as_of": as_of, "fresh_until": min(open_due, default=None),
-                           "rules_key": rules_key(),
-                           "head_event_id": max((e.id for e in events), default=None),
-                           "head_system_id": max(h.system.id for h in members), "computed_at": now})
+                           "rules_key": rules_key(), "revision": heads[sid][1], "computed_at": now})
         keep_obs.extend(_keep_rows(sid, shown, missed))
         keep_fins.extend({"site_id": sid, "source": f.source, "message": f.message, "severity": f.severity.value,
                           "field": f.field} for f in found)

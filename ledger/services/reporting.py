@@ -11,8 +11,11 @@ contract of ``refledger report ... --json`` (docs/reports.md) and the input of t
 from __future__ import annotations
 
 import hashlib
+import io
+import pickle
 from collections import defaultdict
 from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, fields
 from datetime import UTC, date, datetime
 from decimal import ROUND_HALF_UP, Context, Decimal, localcontext
 from typing import Any
@@ -28,6 +31,7 @@ from ledger.domain.records import (
     Obligation,
     ObligationKind,
     ObligationStatus,
+    Site,
     SystemHistory,
 )
 from ledger.domain.state import effective_events, state_of
@@ -220,6 +224,21 @@ def _totals(flows: Sequence[em.Flow], gwp: _Gwp) -> dict[str, Any]:
     return t
 
 
+_SUMMED = (*_MASS_FIELDS, "service_added_mg", "net_loss_mg")
+
+
+def _merge_totals(parts: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
+    """`_totals` of the union of flows whose own `_totals` these are (exact: sums of sums)."""
+    t: dict[str, Any] = {name: sum(p[name] for p in parts) for name in _SUMMED}
+    to: dict[str, int] = defaultdict(int)
+    for p in parts:
+        for where, mg in p["recovered_to"].items():
+            to[where] += mg
+    t["recovered_to"] = dict(sorted(to.items()))
+    t["co2e_t"] = _sum(p["co2e_t"] for p in parts)
+    return t
+
+
 def _mass_view(t: Mapping[str, Any], full_charge_mg: int) -> dict[str, Any]:
     """The kg keys of a summary row from integer-mg totals."""
     return {
@@ -247,44 +266,59 @@ def _check_counts(obs: Sequence[Obligation], done: int) -> dict[str, int]:
     }
 
 
-def annual_data(
+@dataclass(slots=True)
+class AnnualPart:
+    """One site's share of an annual summary: everything `assemble_annual` needs of it.
+
+    `annual_data` builds one per site and assembles them; `annual_summary` keeps each site's
+    part (`kept_annual`), so a later summary of the same year reads the parts of unchanged
+    sites instead of running the rules and folding their histories again.
+    """
+
+    site_code: str
+    systems: list[dict[str, Any]]  # the summary's system rows, by tag
+    site_row: dict[str, Any] | None  # the site's row (None: no flows and no facility duty)
+    by_refrigerant: dict[str, dict[str, Any]]  # refrigerant -> `_totals` of its flows, plus "system_ids"
+    by_screening: dict[tuple[str, str], tuple[int, ...]]  # (refrigerant, screening row) -> `_flow_sums`
+    estate_counts: dict[str, int]  # `_check_counts` of all the site's obligations in the year
+    met_late: int
+    chronic: int
+    full_charge_mg: int  # of the systems with flows
+    monthly_mg: dict[str, dict[int, int]]  # refrigerant -> month -> service additions
+    yearly_mg: dict[str, dict[int, int]]  # refrigerant -> year -> service additions (to the year's end)
+    obligation_rows: list[dict[str, Any]]
+    notes: list[str]
+    heads: list[tuple[int, str | None]]  # (system id, chain head) of every system of the site
+
+
+def annual_part(
     histories: Sequence[SystemHistory],
     reference: Reference,
     *,
     year: int,
     basis: str,
     obligations: Sequence[Obligation] = (),
-    as_of: date | None = None,
-    site_code: str | None = None,
-    generated_at: datetime | None = None,
-) -> dict[str, Any]:
-    """The annual loss summary of loaded histories (pure: no database, no clock).
+) -> AnnualPart:
+    """One site's part of the annual summary (pure).
 
     Args:
-        histories: the systems in scope with all their events.
+        histories: the site's systems with all their events (one site only).
         reference: refrigerant tables (GWPs).
         year: the calendar year.
-        basis: GWP basis code (``eu``, ``ar4``, ``ar5``, ``ar6``).
-        obligations: every obligation of these systems evaluated on ``as_of`` (met ones too);
-            those due in the year are counted.
-        as_of: the day the obligations were evaluated (default 31 December of the year).
-        site_code: the site the summary was limited to, if any (shown only).
-        generated_at: generation time printed on the report.
-    Returns:
-        The JSON contract: year, basis, systems, sites, refrigerants, estate, scope1, caution
-        and further keys (see docs/reports.md).
+        basis: GWP basis code.
+        obligations: the site's obligations evaluated on the summary's as-of day (met ones
+            too); those due in the year are counted.
     """
     start, end = date(year, 1, 1), date(year, 12, 31)
-    as_of = as_of or end
     gwp = _Gwp(reference, basis)
     labels = {h.system.id: (h.site.code, h.system.tag) for h in histories}
     event_days = _event_days(histories)
     in_year = [o for o in obligations if start <= o.due_on <= end]
     by_system: dict[int | None, list[Obligation]] = defaultdict(list)
-    by_site_facility: dict[str, list[Obligation]] = defaultdict(list)
+    facility: list[Obligation] = []
     for o in in_year:
         if o.system_id is None:
-            by_site_facility[o.site_code or ""].append(o)
+            facility.append(o)
         else:
             by_system[o.system_id].append(o)
 
@@ -337,24 +371,15 @@ def annual_data(
             **_check_counts(by_system.get(h.system.id, []), done),
         })
 
-    # sites: totals over their systems (plus facility duties in the overdue count)
-    sites: list[dict[str, Any]] = []
-    site_info = {h.site.code: h.site for h in histories}
-    site_ids: dict[str, list[int]] = defaultdict(list)
-    for h in histories:
-        if h.system.id in sys_totals:
-            site_ids[h.site.code].append(h.system.id)
-    flows_of: dict[int, list[em.Flow]] = defaultdict(list)
-    for f in all_flows:
-        flows_of[f.system_id].append(f)
-    for code in sorted(set(site_ids) | set(by_site_facility)):
-        ids = site_ids.get(code, [])
-        flows = [f for i in ids for f in flows_of[i]]
-        t = _totals(flows, gwp)
+    site = histories[0].site if histories else None
+    code = site.code if site else ""
+    ids = list(sys_totals)
+    site_row = None
+    if ids or facility:
+        t = _totals(all_flows, gwp)
         full_mg = sum(sys_totals[i]["full_charge_mg"] for i in ids)
-        obs = [o for i in ids for o in by_system.get(i, [])] + by_site_facility.get(code, [])
-        site = site_info.get(code)
-        sites.append({
+        obs = [o for i in ids for o in by_system.get(i, [])] + facility
+        site_row = {
             "site": code,
             "name": site.name if site else "",
             "country": site.country if site else "",
@@ -363,35 +388,103 @@ def annual_data(
             **_mass_view(t, full_mg),
             "chronic": sum(1 for i in ids if sys_totals[i]["chronic"]),
             **_check_counts(obs, sum(checks_done[i] for i in ids)),
-        })
-
-    refrigerants: list[dict[str, Any]] = []
+        }
+    obligation_rows = [_obligation_row(o, labels, event_days) for o in in_year]
+    obligation_rows.sort(key=_row_order)
     grouped: dict[str, list[em.Flow]] = defaultdict(list)
+    screened: dict[tuple[str, str], list[em.Flow]] = defaultdict(list)
     for f in all_flows:
         grouped[f.refrigerant].append(f)
+        screened[(f.refrigerant, categories[f.system_id].value)].append(f)
+    by_refrigerant = {}
+    for name, flows in grouped.items():
+        by_refrigerant[name] = _totals(flows, gwp)
+        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in flows})
+    return AnnualPart(
+        site_code=code,
+        systems=systems,
+        site_row=site_row,
+        by_refrigerant=by_refrigerant,
+        by_screening={k: _flow_sums(v) for k, v in screened.items()},
+        estate_counts=_check_counts(in_year, sum(checks_done.values())),
+        met_late=sum(1 for o in in_year if o.met_by is not None and event_days.get(o.met_by, o.due_on) > o.due_on),
+        chronic=sum(1 for t in sys_totals.values() if t["chronic"]),
+        full_charge_mg=sum(t["full_charge_mg"] for t in sys_totals.values()),
+        monthly_mg={r: dict(m) for r, m in monthly_mg.items()},
+        yearly_mg={r: dict(y) for r, y in yearly_mg.items()},
+        obligation_rows=obligation_rows,
+        notes=list(dict.fromkeys(gwp.notes)),
+        heads=[(h.system.id, chain_head_of(h.events)) for h in histories],
+    )
+
+
+def assemble_annual(
+    parts: Sequence[AnnualPart],
+    reference: Reference,
+    *,
+    year: int,
+    basis: str,
+    as_of: date,
+    site_code: str | None = None,
+    generated_at: datetime | None = None,
+) -> dict[str, Any]:
+    """The annual loss summary from its sites' parts (pure); see `annual_data`."""
+    start, end = date(year, 1, 1), date(year, 12, 31)
+    parts = sorted(parts, key=lambda p: p.site_code)
+    gwp = _Gwp(reference, basis)
+    notes = [n for p in parts for n in p.notes]
+    systems = [row for p in parts for row in p.systems]
+    sites = [p.site_row for p in parts if p.site_row is not None]
+
+    refrigerants: list[dict[str, Any]] = []
+    grouped: dict[str, list[dict[str, Any]]] = defaultdict(list)
+    for p in parts:
+        for name, t in p.by_refrigerant.items():
+            grouped[name].append(t)
+    merged = {name: _merge_totals(ts) for name, ts in grouped.items()}
     for name in sorted(grouped):
-        flows = grouped[name]
-        t = _totals(flows, gwp)
+        t = merged[name]
         refrigerants.append({
             "refrigerant": name,
             "gwp": gwp(name),
-            "systems": len({f.system_id for f in flows}),
+            "systems": sum(len(x["system_ids"]) for x in grouped[name]),
             **_mass_view(t, t["last_charge_mg"]),
         })
 
-    et = _totals(all_flows, gwp)
-    estate_full = sum(t["full_charge_mg"] for t in sys_totals.values())
+    et = _merge_totals(list(merged.values()))
+    counts = {key: sum(p.estate_counts[key] for p in parts) for key in _COUNT_KEYS}
     estate = {
         "systems": len(systems),
         "sites": len(sites),
-        **_mass_view(et, estate_full),
-        "chronic": sum(1 for t in sys_totals.values() if t["chronic"]),
-        **_check_counts(in_year, sum(checks_done.values())),
-        "met_late": sum(1 for o in in_year if o.met_by is not None
-                        and event_days.get(o.met_by, o.due_on) > o.due_on),
+        **_mass_view(et, sum(p.full_charge_mg for p in parts)),
+        "chronic": sum(p.chronic for p in parts),
+        **counts,
+        "met_late": sum(p.met_late for p in parts),
     }
 
-    methods = em.scope1(all_flows, {n: gwp(n) for n in grouped}, categories)
+    # scope 1: the three methods read sums only, so one merged flow per refrigerant and
+    # screening row stands for all of them (C x T: the sum of mg-days over the year's days)
+    screened: dict[tuple[str, str], list[int]] = {}
+    for p in parts:
+        for k, sums in p.by_screening.items():
+            into = screened.get(k)
+            screened[k] = list(sums) if into is None else [a + b for a, b in zip(into, sums, strict=True)]
+    period_days = (end - start).days + 1
+    merged_flows = []
+    categories: dict[int, em.ScreeningCategory] = {}
+    for i, ((name, category), sums) in enumerate(screened.items()):
+        merged_flows.append(em.Flow(-1 - i, name, period_days, **dict(zip(_SUMMED_FLOW_FIELDS, sums, strict=True))))
+        categories[-1 - i] = em.ScreeningCategory(category)
+    methods = em.scope1(merged_flows, {n: gwp(n) for n in grouped}, categories)
+    monthly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
+    yearly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
+    for p in parts:
+        for r, per in p.monthly_mg.items():
+            for month, mg in per.items():
+                monthly_mg[r][month] += mg
+        for r, per in p.yearly_mg.items():
+            for y, mg in per.items():
+                yearly_mg[r][y] += mg
     monthly = []
     for month in range(1, 13):
         mg = sum(monthly_mg[r][month] for r in monthly_mg)
@@ -411,8 +504,9 @@ def annual_data(
         }
         for y in range(first_year, year + 1)
     ]
-    obligation_rows = [_obligation_row(o, labels, event_days) for o in in_year]
-    obligation_rows.sort(key=lambda r: (r["due_on"], r["site"] or "", r["system"] or "", r["kind"]))
+    obligation_rows = [row for p in parts for row in p.obligation_rows]
+    obligation_rows.sort(key=_row_order)  # each part's rows are in this order already: runs merge
+    heads = sorted(h for p in parts for h in p.heads)
     return {
         "report": "annual-loss-summary",
         "year": year,
@@ -428,12 +522,59 @@ def annual_data(
         "monthly": monthly,
         "trend": trend,
         "obligations": obligation_rows,
-        "notes": list(dict.fromkeys(gwp.notes)),
-        "chain": chain_digest(histories),
+        "notes": list(dict.fromkeys(notes + gwp.notes)),
+        "chain": _digest_of_heads(heads),
         "generated_at": generated_at,
         "version": __version__,
         "caution": CAUTION,
     }
+
+
+_COUNT_KEYS = ("checks_required", "checks_done", "checks_missed", "overdue")
+_SUMMED_FLOW_FIELDS = tuple(
+    f.name for f in fields(em.Flow) if f.name not in ("system_id", "refrigerant", "period_days", "recovered_to")
+)
+
+
+def _flow_sums(flows: Sequence[em.Flow]) -> tuple[int, ...]:
+    """Each integer field of a group of flows, summed (recovered_to is not used by scope 1)."""
+    return tuple(sum(getattr(f, name) for f in flows) for name in _SUMMED_FLOW_FIELDS)
+
+
+def _row_order(row: Mapping[str, Any]) -> tuple[Any, ...]:
+    return (row["due_on"], row["site"] or "", row["system"] or "", row["kind"])
+
+
+def annual_data(
+    histories: Sequence[SystemHistory],
+    reference: Reference,
+    *,
+    year: int,
+    basis: str,
+    obligations: Sequence[Obligation] = (),
+    as_of: date | None = None,
+    site_code: str | None = None,
+    generated_at: datetime | None = None,
+) -> dict[str, Any]:
+    """The annual loss summary of loaded histories (pure: no database, no clock).
+
+    Args:
+        histories: the systems in scope with all their events.
+        reference: refrigerant tables (GWPs).
+        year: the calendar year.
+        basis: GWP basis code (``eu``, ``ar4``, ``ar5``, ``ar6``).
+        obligations: every obligation of these systems evaluated on ``as_of`` (met ones too);
+            those due in the year are counted.
+        as_of: the day the obligations were evaluated (default 31 December of the year).
+        site_code: the site the summary was limited to, if any (shown only).
+        generated_at: generation time printed on the report.
+    Returns:
+        The JSON contract: year, basis, systems, sites, refrigerants, estate, scope1, caution
+        and further keys (see docs/reports.md).
+    """
+    parts = _parts_of(histories, obligations, reference, year=year, basis=basis)
+    return assemble_annual(parts, reference, year=year, basis=basis, as_of=as_of or date(year, 12, 31),
+                           site_code=site_code, generated_at=generated_at)
 
 
 def method_json(m: em.MethodResult) -> dict[str, Any]:
@@ -479,7 +620,10 @@ def chain_digest(histories: Sequence[SystemHistory]) -> dict[str, Any]:
 
     SHA-256 over the lines ``<system id>:<chain head>`` in system-id order.
     """
-    heads = sorted((h.system.id, chain_head_of(h.events)) for h in histories)
+    return _digest_of_heads(sorted((h.system.id, chain_head_of(h.events)) for h in histories))
+
+
+def _digest_of_heads(heads: Sequence[tuple[int, str | None]]) -> dict[str, Any]:
     text = "".join(f"{sid}:{head or ''}\n" for sid, head in heads)
     return {"systems": len(heads), "digest": hashlib.sha256(text.encode()).hexdigest()}
 
@@ -498,7 +642,11 @@ def annual_summary(
     basis: str | None = None,
     as_of: date | None = None,
 ) -> dict[str, Any]:
-    """Load the estate (or one site) once and build its annual loss summary.
+    """The annual loss summary of the estate (or one site).
+
+    Each site's part is read from `kept_annual` when it is current (same as-of day, same
+    records, filings, episodes and rules); the other sites' histories are loaded, their rules
+    run and their parts built, then kept for the next summary of the year.
 
     Args:
         year: the calendar year.
@@ -507,19 +655,151 @@ def annual_summary(
         as_of: the day obligations are evaluated on; default the year's last day, or today
             for the current year.
     """
-    from ledger.services.obligations import compute, load_evidence
 
     if not 1900 < year < 2200:
         raise InputError("--year", year, "is not a plausible year")
+    with repo.gc_paused():
+        return _annual_summary(db, year=year, site_code=site_code, basis=basis, as_of=as_of)
+
+
+def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: str | None,
+                    as_of: date | None) -> dict[str, Any]:
+    from ledger.services.detectors import stored_episodes
+    from ledger.services.obligations import Evidence, compute, rules_key
+
     reference = load_reference()
-    histories, evidence = load_evidence(db, site_code=site_code)
-    chosen = check_basis(basis) if basis else default_basis(histories)
     as_of = as_of or min(date(year, 12, 31), today_utc())
-    obligations, _ = compute(histories, as_of, evidence)
-    return annual_data(
-        histories, reference, year=year, basis=chosen, obligations=obligations, as_of=as_of,
-        site_code=site_code, generated_at=utc_now(),
+    key = rules_key()
+    with db.read() as conn:
+        if site_code is not None:
+            repo.get_site(site_code, conn=conn)  # NotFound, with the usual message
+        # revisions are read before the histories (PostgreSQL: a record committed in between
+        # leaves the kept part stale, never wrong)
+        heads = {sid: h for sid, h in repo.site_revisions(site_code, conn=conn).items() if h[2]}
+        sites = {s.id: s for s in repo.list_sites(conn=conn) if s.id in heads}
+        chosen = check_basis(basis) if basis else default_basis_of_sites(list(sites.values()))
+        kept = repo.load_kept_annual(year, chosen, None if site_code is None else list(heads), conn=conn)
+        parts: list[AnnualPart] = []
+        stale: list[int] = []
+        for sid, (_, revision, _) in heads.items():
+            row = kept.get(sid)
+            part = None
+            if row is not None and row.as_of == as_of and row.rules_key == key and row.revision == revision:
+                part = _unpack(row.body)
+            if part is None:
+                stale.append(sid)
+            else:
+                parts.append(part)
+        histories = repo.load_histories(conn=conn, site_ids=stale) if stale else []
+        zones = {h.system.id: h.site.timezone for h in histories}
+        everything = site_code is None and len(stale) == len(heads)
+        episodes = stored_episodes(conn, None if everything else list(zones), zones) if zones else {}
+        codes = {sites[sid].code for sid in stale}
+        filings = [f for f in repo.load_filings(site_code, conn=conn) if f.site_code in codes]
+    if histories:
+        obligations, _ = compute(histories, as_of, Evidence(episodes, filings))
+        fresh = _parts_of(histories, obligations, reference, year=year, basis=chosen)
+        parts.extend(fresh)
+        revisions = {code: (sid, rev) for sid, (code, rev, _) in heads.items()}
+        _keep_parts(db, fresh, revisions, year=year, basis=chosen, as_of=as_of)
+    return assemble_annual(parts, reference, year=year, basis=chosen, as_of=as_of, site_code=site_code,
+                           generated_at=utc_now())
+
+
+def default_basis_of_sites(sites: Sequence[Site]) -> str:
+    """`default_basis` of these sites."""
+    from ledger.rules import REGIMES
+
+    found = set()
+    for site in sites:
+        if not site.regimes or site.regimes[0] not in REGIMES:
+            return FALLBACK_BASIS
+        found.add(REGIMES[site.regimes[0]].GWP_BASIS)
+    return found.pop() if len(found) == 1 else FALLBACK_BASIS
+
+
+# --- kept annual parts ------------------------------------------------------------------------
+
+_PLAIN = frozenset({("decimal", "Decimal"), ("datetime", "date"), ("datetime", "datetime")})
+
+
+class _PlainUnpickler(pickle.Unpickler):
+    """Unpickles plain values, Decimals and dates only: a kept body never runs code."""
+
+    def find_class(self, module: str, name: str) -> Any:
+        if (module, name) not in _PLAIN:
+            raise pickle.UnpicklingError(f"kept_annual: {module}.{name} is not a plain value")
+        return super().find_class(module, name)
+
+
+def _pack(part: AnnualPart) -> bytes:
+    return pickle.dumps(
+        (part.site_code, part.systems, part.site_row, part.by_refrigerant, part.by_screening, part.estate_counts,
+         part.met_late, part.chronic, part.full_charge_mg, part.monthly_mg, part.yearly_mg, part.obligation_rows,
+         part.notes, part.heads),
+        protocol=pickle.HIGHEST_PROTOCOL,
     )
+
+
+def _unpack(body: bytes) -> AnnualPart | None:
+    """A kept part, or None when the body cannot be read (then the site is computed again)."""
+    try:
+        (code, systems, site_row, by_refrigerant, by_screening, counts, met_late, chronic, full_mg, monthly,
+         yearly, obligation_rows, notes, heads) = _PlainUnpickler(io.BytesIO(body)).load()
+    except (pickle.UnpicklingError, ValueError, TypeError, EOFError):
+        return None
+    return AnnualPart(
+        code, systems, site_row, by_refrigerant, by_screening, counts, met_late, chronic, full_mg,
+        monthly, yearly, obligation_rows, notes, heads,
+    )
+
+
+def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[str, tuple[int, int]], *,
+                year: int, basis: str, as_of: date) -> None:
+    """Keep freshly built parts; a ledger that cannot be written to builds them again next time.
+
+    Args:
+        revisions: site code -> (site id, revision read before the histories were loaded).
+    """
+    from sqlalchemy.exc import OperationalError, ProgrammingError
+
+    from ledger.services.obligations import rules_key
+
+    now = datetime.now(UTC)
+    rows = []
+    for part in parts:
+        if part.site_code not in revisions:
+            continue
+        sid, revision = revisions[part.site_code]
+        rows.append({"site_id": sid, "year": year, "basis": basis, "as_of": as_of, "rules_key": rules_key(),
+                     "revision": revision, "computed_at": now, "body": _pack(part)})
+    try:
+        with db.write() as conn:
+            repo.replace_kept_annual(conn=conn, rows=rows)
+    except (OperationalError, ProgrammingError):
+        return
+
+
+def _parts_of(histories: Sequence[SystemHistory], obligations: Sequence[Obligation], reference: Reference, *,
+              year: int, basis: str) -> list[AnnualPart]:
+    """One part per site of these histories (and per site named only by a facility duty)."""
+    by_site: dict[str, list[SystemHistory]] = defaultdict(list)
+    for h in histories:
+        by_site[h.site.code].append(h)
+    site_of = {h.system.id: h.site.code for h in histories}
+    obs_of: dict[str, list[Obligation]] = defaultdict(list)
+    for o in obligations:
+        code = site_of.get(o.system_id, o.site_code or "") if o.system_id is not None else o.site_code or ""
+        obs_of[code].append(o)
+    codes = sorted(set(by_site) | set(obs_of))
+    parts = []
+    for code in codes:
+        part = annual_part(by_site.get(code, []), reference, year=year, basis=basis, obligations=obs_of.get(code, []))
+        part.site_code = code
+        if part.site_row is not None and not part.site_row["site"]:
+            part.site_row["site"] = code  # facility duties of a site without systems in scope
+        parts.append(part)
+    return parts
 
 
 # --- logbook --------------------------------------------------------------------------------

@@ -39,10 +39,12 @@ from ledger.store.tables import (
     cylinder,
     event,
     filing,
+    kept_annual,
     kept_finding,
     kept_obligation,
     kept_site,
     site,
+    site_revision,
     system,
     technician,
 )
@@ -288,10 +290,25 @@ def lock_systems(system_ids: Iterable[int], *, conn: Connection) -> None:
     if conn.dialect.name == "sqlite":
         return
     ids = sorted(set(system_ids))
+    sites: set[int] = set()
     for i in range(0, len(ids), _IN_CHUNK):
-        conn.execute(
-            select(system.c.id).where(system.c.id.in_(ids[i : i + _IN_CHUNK])).order_by(system.c.id).with_for_update()
+        rows = conn.execute(
+            select(system.c.id, system.c.site_id)
+            .where(system.c.id.in_(ids[i : i + _IN_CHUNK]))
+            .order_by(system.c.id)
+            .with_for_update()
         )
+        sites.update(site_id for _, site_id in rows)
+    # The insert triggers raise each site's revision: take those rows now, in site order, so
+    # two bulk writers touching the same sites queue here rather than deadlock there.
+    order = sorted(sites)
+    for i in range(0, len(order), _IN_CHUNK):
+        conn.execute(
+            select(site_revision.c.site_id)
+            .where(site_revision.c.site_id.in_(order[i : i + _IN_CHUNK]))
+            .order_by(site_revision.c.site_id)
+            .with_for_update()
+        ).all()
 
 
 def existing_content_keys(keys: Iterable[str], *, conn: Connection) -> set[str]:
@@ -626,22 +643,21 @@ def load_filings(site_code: str | None = None, *, conn: Connection) -> list[Fili
 # ---- kept obligations (derived data; see tables.kept_site) ----------------------------------
 
 
-def site_heads(site_code: str | None = None, *, conn: Connection) -> dict[int, tuple[str, int | None, int | None]]:
-    """Site id -> (code, newest event id, newest system id) of every site (or one): one query.
+def site_revisions(site_code: str | None = None, *, conn: Connection) -> dict[int, tuple[str, int, bool]]:
+    """Site id -> (code, revision, has systems) of every site (or one): one small query.
 
-    A site's kept obligations are current while these two ids are the ones kept with them
-    (events and systems are append-only, so any new record raises one of them).
+    The revision rises with every event, system, filing or detector episode added to the site
+    (triggers, migration 0003): kept results of the site are current while it is the one kept.
     """
+    has_systems = select(system.c.id).where(system.c.site_id == site.c.id).exists()
     stmt = (
-        select(site.c.id, site.c.code, func.max(event.c.id), func.max(system.c.id))
+        select(site.c.id, site.c.code, func.coalesce(site_revision.c.n, -1), has_systems)
         .select_from(site)
-        .outerjoin(system, system.c.site_id == site.c.id)
-        .outerjoin(event, event.c.system_id == system.c.id)
-        .group_by(site.c.id, site.c.code)
+        .outerjoin(site_revision, site_revision.c.site_id == site.c.id)
     )
     if site_code is not None:
         stmt = stmt.where(site.c.code == site_code)
-    return {sid: (code, head_event, head_system) for sid, code, head_event, head_system in conn.execute(stmt)}
+    return {sid: (code, int(n), bool(any_)) for sid, code, n, any_ in conn.execute(stmt)}
 
 
 def system_places(site_code: str | None = None, *, conn: Connection) -> dict[int, tuple[str, str, str]]:
@@ -653,7 +669,7 @@ def system_places(site_code: str | None = None, *, conn: Connection) -> dict[int
 
 
 def load_kept_sites(site_ids: Iterable[int] | None = None, *, conn: Connection) -> dict[int, Any]:
-    """Site id -> its `kept_site` row (as_of, rules_key, head_event_id, head_system_id)."""
+    """Site id -> its `kept_site` row (as_of, fresh_until, rules_key, revision)."""
     stmt = select(kept_site)
     if site_ids is not None:
         stmt = stmt.where(kept_site.c.site_id.in_(sorted(set(site_ids)) or [-1]))
@@ -776,6 +792,21 @@ def load_events_of_kinds(
     return dict(grouped)
 
 
+def content_keys_present(keys: Iterable[str], *, conn: Connection) -> set[str]:
+    """Those of these import content keys that events in the ledger already carry.
+
+    As ``existing_content_keys``, with the statement written for the driver: tens of thousands
+    of keys are looked up by index, and building the SQL is then most of the cost.
+    """
+    wanted = sorted(set(keys))
+    found: set[str] = set()
+    for i in range(0, len(wanted), _IN_CHUNK):
+        chunk = tuple(wanted[i : i + _IN_CHUNK])
+        sql = f"SELECT content_key FROM event WHERE content_key IN ({_marks(conn, len(chunk))})"
+        found.update(k for (k,) in conn.exec_driver_sql(sql, chunk))
+    return found
+
+
 def events_by_chain_hash(hashes: Iterable[str], *, conn: Connection) -> dict[str, tuple[int, int, EventKind]]:
     """Chain hash -> (event id, system id, kind) of the events carrying these hashes (by index)."""
     wanted = sorted(set(hashes))
@@ -810,15 +841,56 @@ def insert_event_rows(columns: Sequence[str], rows: Sequence[Sequence[Any]], *, 
         return
     dialect = conn.dialect
     processors = [event.c[name].type.dialect_impl(dialect).bind_processor(dialect) for name in columns]
-    if any(processors):
-        convert = [(i, p) for i, p in enumerate(processors) if p is not None]
+    convert = [(i, p, {}) for i, p in enumerate(processors) if p is not None]
+    if convert:  # each distinct value once: an import's rows share a few days and one time
         converted = []
         for row in rows:
             out = list(row)
-            for i, p in convert:
-                out[i] = p(out[i])
+            for i, p, done in convert:
+                value = out[i]
+                bound = done.get(value, _UNBOUND)
+                if bound is _UNBOUND:
+                    bound = done[value] = p(value)
+                out[i] = bound
             converted.append(tuple(out))
         rows = converted
-    mark = "?" if dialect.paramstyle == "qmark" else "%s"
-    sql = f"INSERT INTO event ({', '.join(columns)}) VALUES ({', '.join([mark] * len(columns))})"
-    conn.exec_driver_sql(sql, list(rows))
+    conn.exec_driver_sql(f"INSERT INTO event ({', '.join(columns)}) VALUES ({_marks(conn, len(columns))})", list(rows))
+
+
+_UNBOUND = object()
+
+
+def _marks(conn: Connection, n: int) -> str:
+    """``n`` positional parameter markers for ``exec_driver_sql`` on this connection's driver."""
+    return ", ".join(["?" if conn.dialect.paramstyle == "qmark" else "%s"] * n)
+
+
+def load_kept_annual(
+    year: int, basis: str, site_ids: Sequence[int] | None = None, *, conn: Connection
+) -> dict[int, Any]:
+    """Site id -> its kept annual part row for a year and basis (every site, or some)."""
+    stmt = select(kept_annual).where(kept_annual.c.year == year, kept_annual.c.basis == basis)
+    if site_ids is None:
+        return {r.site_id: r for r in conn.execute(stmt)}
+    found: dict[int, Any] = {}
+    ids = sorted(set(site_ids))
+    for i in range(0, len(ids), _IN_CHUNK):
+        chunk = stmt.where(kept_annual.c.site_id.in_(ids[i : i + _IN_CHUNK]))
+        found.update((r.site_id, r) for r in conn.execute(chunk))
+    return found
+
+
+def replace_kept_annual(*, conn: Connection, rows: Sequence[Mapping[str, Any]]) -> None:
+    """Replace sites' kept annual parts (one per site, year and basis); sites locked first."""
+    ids = sorted({r["site_id"] for r in rows})
+    for i in range(0, len(ids), _IN_CHUNK):
+        chunk = ids[i : i + _IN_CHUNK]
+        conn.execute(select(site.c.id).where(site.c.id.in_(chunk)).order_by(site.c.id).with_for_update()).all()
+    for year, basis in sorted({(r["year"], r["basis"]) for r in rows}):
+        mine = sorted({r["site_id"] for r in rows if (r["year"], r["basis"]) == (year, basis)})
+        for i in range(0, len(mine), _IN_CHUNK):
+            conn.execute(kept_annual.delete().where(
+                kept_annual.c.year == year, kept_annual.c.basis == basis,
+                kept_annual.c.site_id.in_(mine[i : i + _IN_CHUNK])))
+    if rows:
+        conn.execute(insert(kept_annual), list(rows))

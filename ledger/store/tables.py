@@ -21,6 +21,7 @@ from sqlalchemy import (
     ForeignKey,
     Index,
     Integer,
+    LargeBinary,
     MetaData,
     String,
     Table,
@@ -209,14 +210,26 @@ filing = Table(
     Column("recorded_at", DateTime(timezone=True), nullable=False),
 )
 
-# --- kept obligations ------------------------------------------------------------------------
-# What `due` computed for a site, kept so that the next `due` reads a few rows per system
-# instead of re-running every rule over every event. Derived data, never a record: it is not
-# exported or restored, and any row may be dropped at any time (the next `due` recomputes).
-# A site's rows are current while its newest event id and newest system id are the ones
-# stored in `kept_site`, the rules and reference data are those of `rules_key`, and the
-# as-of day asked for lies from `as_of` to `fresh_until` in the same year (see
-# services/obligations.py).
+# --- kept results ----------------------------------------------------------------------------
+# `due` and the annual summary keep what they computed per site, so that the next run reads a
+# few rows per site instead of folding every history and running every rule again. Derived
+# data, never a record: not exported or restored, and any row may be dropped at any time (the
+# next run recomputes). A site's kept rows are current while its revision is the one kept.
+
+# A counter per site, raised by triggers (migration 0003) whenever a record that bears on its
+# obligations or summaries is added: an event, a system, a filing, a detector episode (or an
+# episode removed by a new review). Bulk writers lock the rows of the sites they write to, in
+# site order, before writing (repository.lock_systems).
+site_revision = Table(
+    "site_revision",
+    metadata,
+    Column("site_id", Integer, ForeignKey("site.id"), primary_key=True),
+    Column("n", BigInteger, nullable=False, server_default="0"),
+)
+
+# What `due` showed for a site on `as_of`: reused for a later day while the site's revision
+# and `rules_key` are the same and the day lies from `as_of` to `fresh_until` in the same year
+# (see services/obligations.py).
 kept_site = Table(
     "kept_site",
     metadata,
@@ -224,13 +237,12 @@ kept_site = Table(
     Column("as_of", Date, nullable=False),
     Column("fresh_until", Date),  # the earliest due day of an open duty: later, statuses move
     Column("rules_key", String(64), nullable=False),
-    Column("head_event_id", Integer),  # newest event of the site's systems when computed
-    Column("head_system_id", Integer),  # newest system of the site when computed
+    Column("revision", BigInteger, nullable=False),
     Column("computed_at", DateTime(timezone=True), nullable=False),
 )
 
 # The site's unmet obligations that `due` shows (the current period of each periodic series
-# and every unmet one-off duty), as of `kept_site.as_of`; statuses are re-derived per day.
+# and every unmet one-off duty), as of `kept_site.as_of`.
 kept_obligation = Table(
     "kept_obligation",
     metadata,
@@ -258,4 +270,20 @@ kept_finding = Table(
     Column("message", Text, nullable=False),
     Column("severity", String(10), nullable=False),
     Column("field", String(40)),
+)
+
+# One site's part of an annual summary (reporting.AnnualPart) for a year, GWP basis and as-of
+# day; current while the site's revision and `rules_key` are those kept. `body` is a pickle of
+# plain values, dates and Decimals only (read back with a restricted unpickler).
+kept_annual = Table(
+    "kept_annual",
+    metadata,
+    Column("site_id", Integer, ForeignKey("site.id"), primary_key=True),
+    Column("year", Integer, primary_key=True),
+    Column("basis", String(10), primary_key=True),
+    Column("as_of", Date, nullable=False),
+    Column("rules_key", String(64), nullable=False),
+    Column("revision", BigInteger, nullable=False),
+    Column("computed_at", DateTime(timezone=True), nullable=False),
+    Column("body", LargeBinary, nullable=False),
 )
