@@ -351,12 +351,13 @@ def _shown_on(db: Database, as_of: date, site_code: str | None) -> tuple[_Shown,
 
 def _keep(db: Database, sites: list[dict[str, Any]], obligations: list[dict[str, Any]],
           findings: list[dict[str, Any]]) -> None:
-    """Store freshly computed rows for the next `due`; a ledger that cannot be written to
-    (read-only file or role) simply computes them again next time."""
+    """Store freshly computed rows for the next `due`. A ledger that cannot be written to
+    (read-only file or role), or that another writer holds just now, is left as it is: `due`
+    never waits for a lock, and the rows are computed again next time."""
     from sqlalchemy.exc import OperationalError, ProgrammingError
 
     try:
-        with db.write() as conn:
+        with db.write(wait=False) as conn:
             repo.replace_kept(conn=conn, sites=sites, obligations=obligations, findings=findings)
     except (OperationalError, ProgrammingError):
         return

@@ -756,7 +756,8 @@ def _unpack(body: bytes) -> AnnualPart | None:
 
 def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[str, tuple[int, int]], *,
                 year: int, basis: str, as_of: date) -> None:
-    """Keep freshly built parts; a ledger that cannot be written to builds them again next time.
+    """Keep freshly built parts. A ledger that cannot be written to, or that another writer
+    holds just now, is left as it is (no waiting): the parts are built again next time.
 
     Args:
         revisions: site code -> (site id, revision read before the histories were loaded).
@@ -774,7 +775,7 @@ def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[st
         rows.append({"site_id": sid, "year": year, "basis": basis, "as_of": as_of, "rules_key": rules_key(),
                      "revision": revision, "computed_at": now, "body": _pack(part)})
     try:
-        with db.write() as conn:
+        with db.write(wait=False) as conn:
             repo.replace_kept_annual(conn=conn, rows=rows)
     except (OperationalError, ProgrammingError):
         return

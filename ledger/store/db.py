@@ -114,8 +114,10 @@ def make_engine(location: Location) -> Engine:
 
         @event.listens_for(engine, "begin")
         def _on_begin(conn):  # type: ignore[no-untyped-def]
-            immediate = conn.get_execution_options().get("ledger_write", False)
-            conn.exec_driver_sql("BEGIN IMMEDIATE" if immediate else "BEGIN")
+            options = conn.get_execution_options()
+            if options.get("ledger_nowait", False):
+                conn.exec_driver_sql("PRAGMA busy_timeout=0")  # restored by Database.write
+            conn.exec_driver_sql("BEGIN IMMEDIATE" if options.get("ledger_write", False) else "BEGIN")
 
         return engine
     try:
@@ -165,12 +167,23 @@ class Database:
         self._checked = True
 
     @contextmanager
-    def write(self) -> Iterator[Connection]:
-        """One write transaction (BEGIN IMMEDIATE on SQLite); commits or rolls back as a unit."""
+    def write(self, *, wait: bool = True) -> Iterator[Connection]:
+        """One write transaction (BEGIN IMMEDIATE on SQLite); commits or rolls back as a unit.
+
+        Args:
+            wait: False for writes that may be skipped (kept results): rather than queue
+                behind another writer, fail at once with the driver's "locked" error.
+        """
         self.check_schema()
-        with self.engine.connect().execution_options(ledger_write=True) as conn:
-            with conn.begin():
-                yield conn
+        with self.engine.connect().execution_options(ledger_write=True, ledger_nowait=not wait) as conn:
+            try:
+                with conn.begin():
+                    if not wait and not self.location.is_sqlite:
+                        conn.exec_driver_sql("SET LOCAL lock_timeout = '200ms'")
+                    yield conn
+            finally:
+                if not wait and self.location.is_sqlite:
+                    conn.exec_driver_sql(f"PRAGMA busy_timeout={SQLITE_BUSY_TIMEOUT_MS}")
 
     @contextmanager
     def read(self) -> Iterator[Connection]:

@@ -197,3 +197,31 @@ def test_a_body_that_is_not_plain_is_rebuilt(estate: tuple[Database, Any]) -> No
 
     assert _unpack(pickle.dumps(ValueError("x"))) is None
     assert _unpack(b"not a pickle") is None
+
+
+def test_a_busy_ledger_is_not_waited_for(sqlite_location: Location) -> None:
+    """`due` and the summary are reads: with another writer holding the SQLite lock they
+    answer at once and keep nothing (common practice, no source)."""
+    import sqlite3
+    import time
+
+    from ledger.services.reporting import annual_summary
+
+    bench = _bench()
+    cal = bench.calendar_for(date(2026, 12, 1))
+    bench.load_sqlite(sqlite_location.sqlite_path, bench.generate(0.002, cal))
+    db = Database(sqlite_location)
+    other = sqlite3.connect(sqlite_location.sqlite_path, isolation_level=None)
+    other.execute("BEGIN IMMEDIATE")
+    try:
+        started = time.monotonic()
+        assert shown(db, cal.as_of) == from_rules(db, cal.as_of)
+        annual_summary(db, year=cal.year)
+        assert time.monotonic() - started < 20  # the busy timeout is 30 s
+        assert kept_counts(db) == (0, 0)
+    finally:
+        other.execute("ROLLBACK")
+        other.close()
+    shown(db, cal.as_of)
+    assert kept_counts(db)[0] > 0
+    db.close()
