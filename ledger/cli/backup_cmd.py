@@ -58,5 +58,6 @@ def restore(
     from ledger.services.backup import restore_ledger
     from ledger.store.db import locate
 
+    context.resume_collector()  # startup is over; the target is not this run's --db (context.location)
     result = restore_ledger(folder, locate(db))
     typer.echo(f"restored {sum(result.counts.values())} rows; chains verified; heads digest {result.heads_digest}")

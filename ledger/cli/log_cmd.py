@@ -7,11 +7,14 @@ writing, the command prints the event id and any warning, e.g. a lapsed certific
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
 from ledger.cli import context
+
+if TYPE_CHECKING:
+    from ledger.store.db import Database
 
 app = typer.Typer(no_args_is_help=True, help="Record an event on a system (append-only).")
 
@@ -55,18 +58,19 @@ def _log(
         attachments=tuple(attachment_digest(p) for p in attach or ()),
         **fields,
     )
-    logged = log_event(context.open_db(), site_code=site_code, tag=tag, draft=draft)
+    db = context.open_db()  # one engine (and connection) for the write and the look ahead
+    logged = log_event(db, site_code=site_code, tag=tag, draft=draft)
     for w in logged.warnings:
         warn(w.message)
     typer.echo(f"event {logged.event_id} recorded: {kind} on {site_code}/{tag} {draft.performed_on}")
-    _print_next(site_code, tag)
+    _print_next(db, site_code, tag)
 
 
-def _print_next(site_code: str, tag: str) -> None:
+def _print_next(db: Database, site_code: str, tag: str) -> None:
     """Show what the ledger now expects next of the system (the technician's question)."""
     from ledger.services.queries import next_due
 
-    for line in next_due(context.open_db(), site_code=site_code, tag=tag):
+    for line in next_due(db, site_code=site_code, tag=tag):
         typer.echo(f"  next: {line}")
 
 

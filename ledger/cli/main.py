@@ -1,17 +1,33 @@
-"""The `refledger` application: global options and one sub-app per command group."""
+"""The `refledger` application: global options and one sub-app per command group.
+
+Only the command a run names is imported and built (``COMMANDS``, ``ledger.cli.lazy``).
+"""
 
 from __future__ import annotations
 
-from typing import Annotated
+import importlib
+from typing import Annotated, Any
 
 import typer
 
 from ledger import __version__
-from ledger.cli import context
+from ledger.cli import context, lazy
 from ledger.cli.render import LedgerGroup
 
+
+class RootGroup(LedgerGroup):
+    """The root group: every command known by name, built on first use (see ``COMMANDS``)."""
+
+    def __init__(self, **kwargs: Any) -> None:
+        super().__init__(**kwargs)
+        self.commands = lazy.LazyCommands(list(COMMANDS), lambda name: _build(self, name))
+
+    def list_commands(self, ctx):  # type: ignore[no-untyped-def]
+        return list(self.commands)
+
+
 app = typer.Typer(
-    cls=LedgerGroup,
+    cls=RootGroup,
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_show_locals=False,
@@ -48,45 +64,57 @@ def root(
     context.set_db(db)
 
 
-def _register() -> None:
-    from ledger.cli import (
-        backup_cmd,
-        db_cmd,
-        demo_cmd,
-        detector_cmd,
-        due_cmd,
-        import_cmd,
-        log_cmd,
-        people_cmd,
-        refrigerant_cmd,
-        report_cmd,
-        site_cmd,
-        system_cmd,
-        verify_cmd,
+# Every top-level command, in the order `--help` lists them: name -> (module in ledger.cli, the
+# module's sub-app for a command group, or None for a command the module's `register` adds).
+# A run imports and builds only the command it names.
+COMMANDS: dict[str, tuple[str, str | None]] = {
+    "due": ("due_cmd", None),
+    "leak-rate": ("due_cmd", None),
+    "rules": ("due_cmd", None),
+    "verify": ("verify_cmd", None),
+    "import": ("import_cmd", None),
+    "export": ("backup_cmd", None),
+    "restore": ("backup_cmd", None),
+    "demo": ("demo_cmd", None),
+    "site": ("site_cmd", "app"),
+    "system": ("system_cmd", "app"),
+    "tech": ("people_cmd", "tech_app"),
+    "cylinder": ("people_cmd", "cylinder_app"),
+    "log": ("log_cmd", "app"),
+    "report": ("report_cmd", "app"),
+    "refrigerant": ("refrigerant_cmd", "app"),
+    "detector": ("detector_cmd", "app"),
+    "db": ("db_cmd", "app"),
+}
+
+
+def _build(group: RootGroup, name: str) -> Any:
+    """Import the module of command ``name`` and have Typer build its click command."""
+    module_name, sub_app = COMMANDS[name]
+    module = importlib.import_module(f"ledger.cli.{module_name}")
+    holder = typer.Typer()
+    if sub_app is None:
+        module.register(holder)
+    else:
+        holder.add_typer(getattr(module, sub_app), name=name)
+    settings = lazy.BuildSettings(
+        pretty_exceptions_short=app.pretty_exceptions_short,
+        rich_markup_mode=group.rich_markup_mode,
+        suggest_commands=group.suggest_commands,
     )
-
-    app.add_typer(site_cmd.app, name="site")
-    app.add_typer(system_cmd.app, name="system")
-    app.add_typer(people_cmd.tech_app, name="tech")
-    app.add_typer(people_cmd.cylinder_app, name="cylinder")
-    app.add_typer(log_cmd.app, name="log")
-    due_cmd.register(app)
-    app.add_typer(report_cmd.app, name="report")
-    app.add_typer(refrigerant_cmd.app, name="refrigerant")
-    app.add_typer(detector_cmd.app, name="detector")
-    verify_cmd.register(app)
-    import_cmd.register(app)
-    backup_cmd.register(app)
-    demo_cmd.register(app)
-    app.add_typer(db_cmd.app, name="db")
+    return lazy.build_command(holder, name, settings)
 
 
-_register()
+lazy.use_plain_coercion()
 
 
 def main() -> None:
     """Console-script entry point."""
-    app()
+    context.pause_collector()  # until the command first uses the database (see context)
+    try:
+        app()
+    finally:
+        context.resume_collector(freeze=False)  # no-op unless the run never used the database
 
 
 if __name__ == "__main__":
