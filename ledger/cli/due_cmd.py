@@ -31,6 +31,9 @@ def due(
         Path | None, typer.Option("--xlsx", help="Write a spreadsheet to FILE.", metavar="FILE")
     ] = None,
     pdf_file: Annotated[Path | None, typer.Option("--pdf", help="Write a PDF to FILE.", metavar="FILE")] = None,
+    recompute: Annotated[
+        bool, typer.Option("--recompute", help="Ignore kept results: run the rules over every record.")
+    ] = False,
 ) -> None:
     """List open and overdue obligations across the estate, earliest first.
 
@@ -45,7 +48,8 @@ def due(
     if within is not None and within < 0:
         raise typer.BadParameter("must be zero or more days", param_hint="--within")
     day = parse_day(as_of, field="--as-of") if as_of else datetime.now(UTC).date()
-    listing = compute_due(context.open_db(), as_of=day, within_days=within, site_code=site, overdue_only=overdue)
+    listing = compute_due(context.open_db(), as_of=day, within_days=within, site_code=site, overdue_only=overdue,
+                          recompute=recompute)
     if csv_file or xlsx_file or pdf_file:
         from ledger.exports import due as due_export
 

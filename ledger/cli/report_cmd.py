@@ -107,6 +107,9 @@ def annual(
     ] = None,
     pdf: Annotated[Path | None, typer.Option("--pdf", help="Write a PDF to FILE.", metavar="FILE")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the summary as JSON.")] = False,
+    recompute: Annotated[
+        bool, typer.Option("--recompute", help="Ignore kept results: run the rules over every record.")
+    ] = False,
 ) -> None:
     """Annual loss summary: kg added and recovered, leak rates, t CO2e, scope 1 estimates.
 
@@ -115,7 +118,7 @@ def annual(
     from ledger.cli.render import print_json
     from ledger.services.reporting import annual_summary
 
-    summary = annual_summary(context.open_db(), year=year, site_code=site, basis=basis)
+    summary = annual_summary(context.open_db(), year=year, site_code=site, basis=basis, recompute=recompute)
     if xlsx:
         from ledger.exports.xlsx import write_annual_xlsx
 

@@ -258,7 +258,9 @@ def _unmet_current(obligations: list[Obligation]) -> tuple[list[Obligation], lis
     return shown, missed
 
 
-def _shown_on(db: Database, as_of: date, site_code: str | None) -> tuple[_Shown, dict[int, tuple[str, str, str]]]:
+def _shown_on(
+    db: Database, as_of: date, site_code: str | None, recompute: bool = False
+) -> tuple[_Shown, dict[int, tuple[str, str, str]]]:
     """The unmet current obligations and findings of the estate (or one site) on ``as_of``,
     from kept rows where they are current, else from the rules (and kept for next time)."""
     from ledger.rules import compute_all
@@ -270,7 +272,9 @@ def _shown_on(db: Database, as_of: date, site_code: str | None) -> tuple[_Shown,
         heads = repo.site_revisions(site_code, conn=conn)  # read before the histories (PostgreSQL:
         # a record committed in between leaves the kept rows stale, never wrong)
         kept_sites = repo.load_kept_sites(None if site_code is None else list(heads), conn=conn)
-        fresh = {sid for sid, (_, rev, _) in heads.items() if _usable(kept_sites.get(sid), rev, as_of)}
+        fresh = set() if recompute else {
+            sid for sid, (_, rev, _) in heads.items() if _usable(kept_sites.get(sid), rev, as_of)
+        }
         stale = sorted(set(heads) - fresh)
         ob_rows, fin_rows = repo.load_kept(sorted(fresh), conn=conn, everything=site_code is None and not stale)
         places = repo.system_places(site_code, conn=conn)
@@ -370,6 +374,7 @@ def due(
     within_days: int | None = None,
     site_code: str | None = None,
     overdue_only: bool = False,
+    recompute: bool = False,
 ) -> DueList:
     """Open and overdue obligations across the estate (or one site), earliest first.
 
@@ -379,9 +384,11 @@ def due(
             ones always show).
         site_code: only this site.
         overdue_only: only overdue obligations.
+        recompute: ignore kept rows: run the rules over every site's records (and keep the
+            result).
     """
     with repo.gc_paused():
-        shown, places = _shown_on(db, as_of, site_code)
+        shown, places = _shown_on(db, as_of, site_code, recompute)
     labels = {sid: (code, tag) for sid, (code, tag, _) in places.items()}
     rows = []
     for ob, missed in zip(shown.obligations, shown.missed, strict=True):

@@ -641,6 +641,7 @@ def annual_summary(
     site_code: str | None = None,
     basis: str | None = None,
     as_of: date | None = None,
+    recompute: bool = False,
 ) -> dict[str, Any]:
     """The annual loss summary of the estate (or one site).
 
@@ -654,16 +655,16 @@ def annual_summary(
         basis: GWP basis; default ``default_basis`` of the systems in scope.
         as_of: the day obligations are evaluated on; default the year's last day, or today
             for the current year.
+        recompute: ignore kept parts: build every site's part from its records (and keep it).
     """
-
     if not 1900 < year < 2200:
         raise InputError("--year", year, "is not a plausible year")
     with repo.gc_paused():
-        return _annual_summary(db, year=year, site_code=site_code, basis=basis, as_of=as_of)
+        return _annual_summary(db, year=year, site_code=site_code, basis=basis, as_of=as_of, recompute=recompute)
 
 
 def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: str | None,
-                    as_of: date | None) -> dict[str, Any]:
+                    as_of: date | None, recompute: bool) -> dict[str, Any]:
     from ledger.services.detectors import stored_episodes
     from ledger.services.obligations import Evidence, compute, rules_key
 
@@ -684,7 +685,8 @@ def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: st
         for sid, (_, revision, _) in heads.items():
             row = kept.get(sid)
             part = None
-            if row is not None and row.as_of == as_of and row.rules_key == key and row.revision == revision:
+            if (not recompute and row is not None and row.as_of == as_of and row.rules_key == key
+                    and row.revision == revision):
                 part = _unpack(row.body)
             if part is None:
                 stale.append(sid)

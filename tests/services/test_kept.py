@@ -225,3 +225,26 @@ def test_a_busy_ledger_is_not_waited_for(sqlite_location: Location) -> None:
     shown(db, cal.as_of)
     assert kept_counts(db)[0] > 0
     db.close()
+
+
+def test_recompute_ignores_kept_rows(estate: tuple[Database, Any]) -> None:
+    from ledger.services.reporting import annual_summary
+
+    db, cal = estate
+    shown(db, cal.as_of)
+    annual_summary(db, year=cal.year)
+    before = computed_at(db)
+    with db.read() as conn:
+        from ledger.store.tables import kept_annual
+
+        annual_before = dict(conn.execute(select(kept_annual.c.site_id, kept_annual.c.computed_at)).all())
+    listing = due(db, as_of=cal.as_of, recompute=True)
+    got = annual_summary(db, year=cal.year, recompute=True)
+    assert sorted(listing.rows, key=_key) == from_rules(db, cal.as_of)[0]
+    got["generated_at"] = None
+    assert got == from_histories(db, cal.year)
+    after = computed_at(db)
+    assert all(after[k] > before[k] for k in before)
+    with db.read() as conn:
+        annual_after = dict(conn.execute(select(kept_annual.c.site_id, kept_annual.c.computed_at)).all())
+    assert all(annual_after[k] > annual_before[k] for k in annual_before)
