@@ -30,6 +30,7 @@ from ledger.domain.records import (
     EventKind,
     Finding,
     Severity,
+    SystemState,
     Technician,
 )
 from ledger.domain.state import state_of
@@ -173,15 +174,21 @@ def _rows_from_records(label: str, records: Iterable[Sequence[Any]], problems: l
         problems.append(f"{label}: is empty (no header row)")
         return []
     names = [_text(h).lower() for h in header]
+    width = len(names)
+    plain_names = all(names)  # no unnamed column: a row of full width maps cell by cell
     rows = []
     for number, values in enumerate(it, start=2):
-        texts = [_text(v) for v in values]
+        # CSV cells are text already (a workbook's may be numbers, dates or None)
+        texts = [v.strip() if type(v) is str else _text(v) for v in values]
         if not any(texts):
             continue
-        if len(texts) > len(names) and any(texts[len(names) :]):
+        if len(texts) > width and any(texts[width:]):
             problems.append(f"{label} row {number}: has more cells than the header has columns")
             continue
-        cells = {n: (texts[i] if i < len(texts) else "") for i, n in enumerate(names) if n}
+        if plain_names and len(texts) == width:
+            cells = dict(zip(names, texts, strict=True))
+        else:
+            cells = {n: (texts[i] if i < len(texts) else "") for i, n in enumerate(names) if n}
         rows.append(Row(f"{label} row {number}", cells))
     return rows
 
@@ -372,11 +379,21 @@ def parse_import_day(value: str, *, dayfirst: bool) -> date | None:
     return None
 
 
+# Every imported row needs two digests of small JSON bodies (its content key and its chain
+# hash); json.dumps costs several times as much per call as writing them out here, so they are
+# written out, byte for byte as json.dumps(..., ensure_ascii=False) with compact separators
+# writes them (tests/services/test_importing_equivalence.py compares the two).
+_quote = json.encoder.encode_basestring  # a str as json.dumps(..., ensure_ascii=False) writes it
+
+
 def content_key(kind: str, cells: dict[str, str]) -> str:
-    """SHA-256 over a row's normalised cells: the same row imported twice has one key."""
-    body = json.dumps(
-        [kind, sorted((k, v.strip()) for k, v in cells.items() if v.strip())], ensure_ascii=False, separators=(",", ":")
-    )
+    """SHA-256 over a row's normalised cells: the same row imported twice has one key.
+
+    The digest of ``json.dumps([kind, sorted((column, cell.strip()) for each non-empty cell)],
+    ensure_ascii=False, separators=(",", ":"))``.
+    """
+    items = sorted((k, t) for k, v in cells.items() if (t := v.strip()))
+    body = "[" + _quote(kind) + ",[" + ",".join([f"[{_quote(k)},{_quote(t)}]" for k, t in items]) + "]]"
     return hashlib.sha256(body.encode()).hexdigest()
 
 
@@ -410,7 +427,7 @@ def import_files(
         summary.problems = read_problems
         return summary
     try:
-        with db.write() as conn, repo.gc_paused():
+        with db.write() as conn, repo.gc_paused(), repo.roomy_page_cache(conn=conn):
             job = _Job(conn, dayfirst, summary, progress)
             job.run(grouped)
             if job.problems.items:
@@ -445,6 +462,8 @@ class _Job:
     def sites(self, rows: list[Row]) -> None:
         from ledger.services.recording import site_values
 
+        if not rows:
+            return
         existing = {s.code: s for s in repo.list_sites(conn=self.conn)}
         seen: set[str] = set()
         for row in rows:
@@ -485,6 +504,8 @@ class _Job:
 
         from ledger.store.tables import certificate, technician
 
+        if not rows:
+            return
         tech_ids = {r.name: r.id for r in self.conn.execute(select(technician.c.name, technician.c.id))}
         certs = {(r.scheme, r.number) for r in self.conn.execute(select(certificate.c.scheme, certificate.c.number))}
         for row in rows:
@@ -512,6 +533,8 @@ class _Job:
 
     # -- cylinders --
     def cylinders(self, rows: list[Row]) -> None:
+        if not rows:
+            return
         known = {cy.id: cy for cy in repo.list_cylinders(conn=self.conn)}
         for row in rows:
             c = self.cells(row)
@@ -535,6 +558,8 @@ class _Job:
 
     # -- systems --
     def systems(self, rows: list[Row]) -> None:
+        if not rows:
+            return
         sites = {s.code: s for s in repo.list_sites(conn=self.conn)}
         existing = {(s.site_code, s.tag) for s in repo.list_systems(conn=self.conn)}
         techs = self._technicians()
@@ -608,7 +633,10 @@ class _Job:
             self.summary.added["systems"] += 1
 
     def _technicians(self) -> dict[str, tuple[Technician, dict[str, int]]]:
-        return {t.name: repo.get_technician(t.name, conn=self.conn) for t in repo.list_technicians(conn=self.conn)}
+        """Name -> (technician, certificate number -> certificate row id), as ``get_technician``
+        gives them, in two queries."""
+        cert_ids = repo.certificate_ids(conn=self.conn)
+        return {t.name: (t, cert_ids.get(t.id, {})) for t in repo.list_technicians(conn=self.conn)}
 
     @staticmethod
     def _certificate_key(techs: dict[str, tuple[Technician, dict[str, int]]], name: str, on: date) -> str | None:
@@ -634,80 +662,116 @@ class _Job:
 
         if not rows:
             return
-        systems = {(s.site_code, s.tag): s for s in repo.list_systems(conn=self.conn)}
-        sites = {s.code: s for s in repo.list_sites(conn=self.conn)}
-        cylinders = {cy.id: cy for cy in repo.list_cylinders(conn=self.conn)}
+        conn = self.conn
+        systems = repo.system_ids_by_key(conn=conn)
+        sites = {s.code: s for s in repo.list_sites(conn=conn)}
+        cylinders = {cy.id: cy for cy in repo.list_cylinders(conn=conn)}
         cylinder_ids = self._cylinder_ids()
         techs = self._technicians()
-        touched = {
-            systems[k].id for k in {(r.cells.get("site", ""), r.cells.get("tag", "")) for r in rows} if k in systems
-        }
-        # Lock the touched chains first, then read them: their heads are then the last events
-        # loaded (one query, not one per system), and no other writer can extend them meanwhile.
-        repo.lock_systems(touched, conn=self.conn)
-        history: dict[int, list[Event]] = defaultdict(list)
-        for sid, evs in repo.load_event_outlines(touched, conn=self.conn).items():
-            history[sid].extend(evs)
+        named = {(r.cells.get("site", ""), r.cells.get("tag", "")) for r in rows}
+        touched = {systems[k] for k in named if k in systems}
+        # Lock the touched chains first, then read them: their heads are then the newest events,
+        # and no other writer can extend them meanwhile.
+        repo.lock_systems(touched, conn=conn)
+        heads = repo.chain_heads(touched, conn=conn)
+        # What validate_event needs of a system's state on a day is its refrigerant and whether
+        # it was retired by then (tests/services/test_importing_equivalence.py holds it to that), and
+        # only these kinds decide those: the state folded from them alone is the same. They are
+        # a few events per system, found by index, where the whole history is thousands.
+        folds: dict[int, list[Event]] = defaultdict(list)
+        folds.update(repo.load_events_of_kinds(touched, _FOLD_KINDS, conn=conn))
         # A row's key holds its site and tag, so a key already in the ledger is on that system:
         # looking the input's keys up in their index reads far less than the touched systems' rows.
         row_keys = [content_key("events", r.cells) for r in rows]
-        keys = repo.existing_content_keys(row_keys, conn=self.conn)
-        heads: dict[int, str] = {sid: evs[-1].chain_hash or chain.GENESIS for sid, evs in history.items() if evs}
-        # chain hash -> (event id, system id, kind); negative ids are rows of this input
-        by_hash = _HashIndex(history)
-        voided_ids = {e.voids_id for evs in history.values() for e in evs if e.voids_id is not None}
-        pending: list[dict[str, Any]] = []
-        total = len(rows)
+        keys = repo.content_keys_present(row_keys, conn=conn)
+        # chain hash -> (event id, system id, kind): the events of the touched systems that void
+        # rows name (looked up by their hashes), and this input's rows (negative ids)
+        by_hash = self._void_targets(rows, touched)
+        voided_ids = {e.voids_id for evs in folds.values() for e in evs if e.voids_id is not None}
+        if by_hash:
+            voided_ids.update(
+                vid for sid, vid in repo.voiding_events([v[0] for v in by_hash.values()], conn=conn) if sid in touched
+            )
         today_by_site = {code: site_today(s.timezone) for code, s in sites.items()}
+        # Per system: the newest day among the events that count for its state, and the state
+        # they fold to (its state on that day and every day after); dropped when a row folds in.
+        settled: dict[int, tuple[date | None, SystemState]] = {}
+        placed: dict[int, date | None] = {}
+        people: dict[tuple[str, date], tuple[int | None, int | None, str | None]] = {}
+        days: dict[str, date] = {}  # "on" cells read so far
+        now_text = _utc_text(self.now)
+        pending: list[tuple[Any, ...]] = []
+        problems = self.problems.items
+        warnings = self.summary.warnings
+        total = len(rows)
         next_temp_id = -1
         for number, row in enumerate(rows, start=1):
             if self.progress and number % 1000 == 0:
                 self.progress(number, total)
+            cells = row.cells
             c = self.cells(row)
+            # In a clean row (no cell too long, none with a NUL) reading a text cell cannot fail,
+            # so the cells are read directly (None when the column is absent); the typed ones
+            # go through c whenever they are not empty, as does every cell of any other row.
+            joined = "".join(cells.values())
+            clean = "\x00" not in joined and (len(joined) <= MAX_CELL or max(map(len, cells.values())) <= MAX_CELL)
+            text = cells.get if clean else c.text
             site_code, tag = c.text("site", required=True), c.text("tag", required=True)
-            kind_text = c.choice("kind", sorted(k.value for k in IMPORT_KINDS), required=True)
-            on = c.day("on", required=True)
-            sys_ = systems.get((site_code, tag))
-            if site_code and tag and sys_ is None:
+            kind = _IMPORTED.get(cells.get("kind", "")) if clean else None
+            if kind is None:
+                kind_text = c.choice("kind", _KIND_CHOICES, required=True)
+                kind = None if kind_text is None else _KINDS[kind_text]
+            on = days.get(cells.get("on", "")) if clean else None
+            if on is None:
+                on = c.day("on", required=True)
+                if clean and on is not None:
+                    days[cells["on"]] = on
+            sid = systems.get((site_code, tag))
+            if site_code and tag and sid is None:
                 c.fail("tag", f"{site_code}/{tag} is not a system in the ledger or the input")
-            if c.bad or sys_ is None or on is None or kind_text is None:
+            if c.bad or sid is None or on is None or kind is None:
                 continue
             key = row_keys[number - 1]
             if key in keys:
                 self.summary.skipped["events"] += 1
                 continue
-            kind = EventKind(kind_text)
-            recorded_at = c.moment("recorded_at", now=self.now) or self.now
+            recorded_at = c.moment("recorded_at", now=self.now) if cells.get("recorded_at") else None
+            recorded_text = now_text if recorded_at is None else _utc_text(recorded_at)
+            recorded_at = recorded_at or self.now
             voids_id = None
-            target_hash = (c.text("voids") or "").lower() or None
+            target_hash = (text("voids") or "").lower() or None
             if kind is EventKind.VOID:
-                voids_id = self._void_target(c, target_hash, sys_.id, by_hash, voided_ids)
+                voids_id = self._void_target(c, target_hash, sid, by_hash, voided_ids)
                 if c.bad:
                     continue
             elif target_hash:
                 c.fail("voids", "applies only to kind void")
-            attachments = c.text("attachments").split()
+            attachments = (text("attachments") or "").split()
             if any(len(a) != HASH_LENGTH or any(ch not in "0123456789abcdef" for ch in a) for a in attachments):
                 c.fail("attachments", "must be SHA-256 digests (64 hex digits) separated by spaces")
+            # an empty typed cell that is not required reads as None (or no) without a problem
+            charge_needed = kind in (EventKind.RETROFIT, EventKind.CHARGE_REVISED)
             draft = EventDraft(
                 kind=kind,
                 performed_on=on,
-                mass_mg=c.mass("mass", allow_zero=kind is EventKind.RETIRE),
-                refrigerant=c.refrigerant("refrigerant", required=kind is EventKind.RETROFIT),
-                charge_mg=c.mass("charge", required=kind in (EventKind.RETROFIT, EventKind.CHARGE_REVISED)),
-                result=c.text("result") or None,
-                location=c.text("where") or None,
-                method=c.text("method") or None,
-                destination=c.text("destination") or None,
-                cylinder_code=c.text("cylinder") or None,
-                cylinder_before_mg=c.mass("before"),
-                cylinder_after_mg=c.mass("after"),
-                technician=c.text("tech") or None,
-                recorded_by=c.text("by") or c.text("tech") or None,
-                note=c.text("note"),
-                reclaimed=c.flag("reclaimed"),
+                mass_mg=c.mass("mass", allow_zero=kind is EventKind.RETIRE) if cells.get("mass") else None,
+                refrigerant=c.refrigerant("refrigerant", required=kind is EventKind.RETROFIT)
+                if cells.get("refrigerant") or kind is EventKind.RETROFIT
+                else None,
+                charge_mg=c.mass("charge", required=charge_needed) if cells.get("charge") or charge_needed else None,
+                result=text("result") or None,
+                location=text("where") or None,
+                method=text("method") or None,
+                destination=text("destination") or None,
+                cylinder_code=text("cylinder") or None,
+                cylinder_before_mg=c.mass("before") if cells.get("before") else None,
+                cylinder_after_mg=c.mass("after") if cells.get("after") else None,
+                technician=text("tech") or None,
+                recorded_by=text("by") or text("tech") or None,
+                note=text("note") or "",
+                reclaimed=c.flag("reclaimed") if cells.get("reclaimed") else False,
                 voids_id=voids_id,
-                reason=c.text("reason") or None,
+                reason=text("reason") or None,
             )
             if draft.technician and draft.technician not in techs:
                 c.fail("tech", "is not a technician in the ledger or the input")
@@ -717,10 +781,18 @@ class _Job:
             if c.bad:
                 continue
             mass, weight_findings = cylinder_mass_mg(draft)
-            draft = replace(draft, mass_mg=mass)
-            state = state_of(history[sys_.id], on)
+            if mass != draft.mass_mg:
+                draft = replace(draft, mass_mg=mass)
+            fold = settled.get(sid)
+            if fold is None:
+                counted = folds[sid]
+                newest = max((e.performed_on for e in counted), default=None)
+                fold = settled[sid] = (newest, state_of(counted, date.max))
+            state = fold[1] if fold[0] is None or on >= fold[0] else state_of(folds[sid], on)
+            if sid not in placed:
+                placed[sid] = placed_on(folds[sid])  # placing in service is never imported nor voided
             tech = techs[draft.technician][0] if draft.technician else None
-            findings = weight_findings + validate_event(
+            findings = validate_event(
                 draft,
                 state,
                 today=today_by_site[site_code],
@@ -730,74 +802,89 @@ class _Job:
                 cylinder=cylinder,
                 cylinder_matches=None if cylinder is None else cylinder.refrigerant == state.refrigerant,
                 technician=tech,
-                placed_on=placed_on(history[sys_.id]),
+                placed_on=placed[sid],
             )
-            errors = [f for f in findings if f.severity is Severity.ERROR]
-            for f in errors:
-                column = _column_for(f)
-                c.fail(column, f.message.split(": ", 1)[-1])
-            if errors:
-                continue
-            self.summary.warnings.extend(
-                f"{row.source}: {f.message}" for f in findings if f.severity is Severity.WARNING
+            if weight_findings:
+                findings = weight_findings + findings
+            if findings:
+                errors = [f for f in findings if f.severity is Severity.ERROR]
+                for f in errors:
+                    column = _column_for(f)
+                    c.fail(column, f.message.split(": ", 1)[-1])
+                if errors:
+                    continue
+                warnings.extend(f"{row.source}: {f.message}" for f in findings if f.severity is Severity.WARNING)
+            tech_name = draft.technician or ""
+            who = people.get((tech_name, on))
+            if who is None:
+                who = people[(tech_name, on)] = (
+                    *self._tech_ids(techs, tech_name, on),
+                    self._certificate_key(techs, tech_name, on),
+                )
+            tech_id, cert_id, cert_key = who
+            refrigerant = draft.refrigerant if kind is EventKind.RETROFIT else None
+            attached = " ".join(attachments)
+            reclaimed = draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED)
+            prev = heads.get(sid, chain.GENESIS)
+            # chain.canonical's fields with their natural keys, as plain JSON values
+            chain_hash = _chain_link(
+                prev,
+                {
+                    "system": f"{site_code}/{tag}",
+                    "kind": kind.value,
+                    "performed_on": on.isoformat(),
+                    "recorded_at": recorded_text,
+                    "mass_mg": draft.mass_mg,
+                    "refrigerant": refrigerant,
+                    "charge_mg": draft.charge_mg,
+                    "result": draft.result,
+                    "location": draft.location,
+                    "method": draft.method,
+                    "destination": draft.destination,
+                    "cylinder": draft.cylinder_code,
+                    "cylinder_before_mg": draft.cylinder_before_mg,
+                    "cylinder_after_mg": draft.cylinder_after_mg,
+                    "technician": draft.technician,
+                    "certificate": cert_key,
+                    "recorded_by": draft.recorded_by,
+                    "note": draft.note,
+                    "voids": target_hash if kind is EventKind.VOID else None,
+                    "reason": draft.reason,
+                    "attachments": attached,
+                    "reclaimed": int(reclaimed),
+                    "v": chain.CHAIN_VERSION,
+                },
             )
-            tech_id, cert_id = self._tech_ids(techs, draft.technician or "", on)
-            values = {
-                "system_id": sys_.id,
-                "kind": kind.value,
-                "performed_on": on,
-                "mass_mg": draft.mass_mg,
-                "refrigerant": draft.refrigerant if kind is EventKind.RETROFIT else None,
-                "charge_mg": draft.charge_mg,
-                "result": draft.result,
-                "location": draft.location,
-                "method": draft.method,
-                "destination": draft.destination,
-                "cylinder_id": cylinder_ids.get(draft.cylinder_code or ""),
-                "cylinder_before_mg": draft.cylinder_before_mg,
-                "cylinder_after_mg": draft.cylinder_after_mg,
-                "technician_id": tech_id,
-                "certificate_id": cert_id,
-                "recorded_by": draft.recorded_by,
-                "note": draft.note,
-                "attachments": " ".join(attachments),
-                "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
-                "content_key": key,
-                "voids_id": voids_id,
-                "reason": draft.reason,
-                "recorded_at": recorded_at,
-            }
-            if sys_.id not in heads:  # a system with no event yet
-                heads[sys_.id] = chain.GENESIS
-            natural = {
-                "system": f"{site_code}/{tag}",
-                "technician": draft.technician,
-                "certificate": self._certificate_key(techs, draft.technician or "", on),
-                "cylinder": draft.cylinder_code,
-                "voids": target_hash if kind is EventKind.VOID else None,
-            }
-            values["prev_hash"] = heads[sys_.id]
-            values["chain_hash"] = heads[sys_.id] = chain.link(heads[sys_.id], {**values, **natural})
-            pending.append(values)
-            keys.add(key)
-            by_hash.add(values["chain_hash"], (next_temp_id, sys_.id, kind))
-            if voids_id is not None:
-                voided_ids.add(voids_id)
-            history[sys_.id].append(
-                Event(
-                    id=next_temp_id,
-                    system_id=sys_.id,
-                    kind=kind,
-                    performed_on=on,
-                    mass_mg=draft.mass_mg,
-                    refrigerant=values["refrigerant"],
-                    charge_mg=draft.charge_mg,
-                    result=draft.result,
-                    voids_id=voids_id,
+            heads[sid] = chain_hash
+            pending.append(
+                (  # in _EVENT_COLUMNS order
+                    sid, kind.value, on, recorded_at, draft.mass_mg, refrigerant, draft.charge_mg, draft.result,
+                    draft.location, draft.method, draft.destination, cylinder_ids.get(draft.cylinder_code or ""),
+                    draft.cylinder_before_mg, draft.cylinder_after_mg, tech_id, cert_id, draft.recorded_by,
+                    draft.note, attached, reclaimed, key, voids_id, draft.reason, prev, chain_hash,
                 )
             )
+            keys.add(key)
+            by_hash[chain_hash] = (next_temp_id, sid, kind)
+            if voids_id is not None:
+                voided_ids.add(voids_id)
+            if kind in _FOLD_KINDS:
+                folds[sid].append(
+                    Event(
+                        id=next_temp_id,
+                        system_id=sid,
+                        kind=kind,
+                        performed_on=on,
+                        mass_mg=draft.mass_mg,
+                        refrigerant=refrigerant,
+                        charge_mg=draft.charge_mg,
+                        result=draft.result,
+                        voids_id=voids_id,
+                    )
+                )
+                settled.pop(sid, None)
             next_temp_id -= 1
-        if self.problems.items or not pending:
+        if problems or not pending:
             return
         self._write_events(pending)
         self.summary.added["events"] += len(pending)
@@ -811,12 +898,23 @@ class _Job:
 
         return {r.code: r.id for r in self.conn.execute(select(cylinder.c.code, cylinder.c.id))}
 
+    def _void_targets(self, rows: list[Row], touched: set[int]) -> dict[str, tuple[int, int, EventKind]]:
+        """Chain hash -> (event id, system id, kind) of the events in the touched systems that
+        the input's void rows name (a void must name an event of its own system)."""
+        named = {
+            text.lower() for r in rows if r.cells.get("kind") == "void" and (text := r.cells.get("voids", ""))
+        }
+        if not named:
+            return {}
+        found = repo.events_by_chain_hash(named, conn=self.conn)
+        return {h: entry for h, entry in found.items() if entry[1] in touched}
+
     def _void_target(
         self,
         c: _Cells,
         target_hash: str | None,
         system_id: int,
-        by_hash: _HashIndex,
+        by_hash: dict[str, tuple[int, int, EventKind]],
         voided_ids: set[int],
     ) -> int | None:
         """The (possibly provisional, negative) id of the event a void row names; else a problem."""
@@ -838,56 +936,65 @@ class _Job:
             c.fail("voids", "names an event that is already voided")
         return event_id
 
-    def _write_events(self, pending: list[dict[str, Any]]) -> None:
+    def _write_events(self, pending: list[tuple[Any, ...]]) -> None:
         """Insert in input order; a void of a row of this input gets that row's real id."""
-        from sqlalchemy import insert, select
+        from sqlalchemy import select
 
         from ledger.store.tables import event as event_table
 
-        hash_of = {-(i + 1): v["chain_hash"] for i, v in enumerate(pending)}
-        batch: list[dict[str, Any]] = []
+        voids_at, hash_at = _EVENT_COLUMNS.index("voids_id"), _EVENT_COLUMNS.index("chain_hash")
+        batch: list[tuple[Any, ...]] = []
         for values in pending:
-            target = values["voids_id"]
+            target = values[voids_at]
             if target is not None and target < 0:
-                if batch:
-                    self.conn.execute(insert(event_table), batch)
-                    batch = []
-                values["voids_id"] = self.conn.execute(
-                    select(event_table.c.id).where(event_table.c.chain_hash == hash_of[target])
+                repo.insert_event_rows(_EVENT_COLUMNS, batch, conn=self.conn)
+                batch = []
+                real = self.conn.execute(
+                    select(event_table.c.id).where(event_table.c.chain_hash == pending[-target - 1][hash_at])
                 ).scalar_one()
+                values = (*values[:voids_at], real, *values[voids_at + 1 :])
             batch.append(values)
-        if batch:
-            self.conn.execute(insert(event_table), batch)
+        repo.insert_event_rows(_EVENT_COLUMNS, batch, conn=self.conn)
 
 
-class _HashIndex:
-    """Chain hash -> (event id, system id, kind) over the loaded events and this input's rows.
+# The columns an imported event row is written with, in the order _Job.events builds them.
+_EVENT_COLUMNS = (
+    "system_id", "kind", "performed_on", "recorded_at", "mass_mg", "refrigerant", "charge_mg", "result",
+    "location", "method", "destination", "cylinder_id", "cylinder_before_mg", "cylinder_after_mg",
+    "technician_id", "certificate_id", "recorded_by", "note", "attachments", "reclaimed", "content_key",
+    "voids_id", "reason", "prev_hash", "chain_hash",
+)
+# The kinds that decide a system's refrigerant and retirement (see _Job.events).
+_FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RETIRE, EventKind.VOID})
+_KINDS = {k.value: k for k in EventKind}
+_KIND_CHOICES = sorted(k.value for k in IMPORT_KINDS)
+_IMPORTED = {k.value: k for k in IMPORT_KINDS}
+# chain.canonical's JSON object: its keys in sorted order, each with what precedes its value
+_CANONICAL = tuple(
+    (("{" if i == 0 else ",") + _quote(name) + ":", name)
+    for i, name in enumerate(sorted((*chain.CANONICAL_FIELDS, "v")))
+)
 
-    Only void rows look events up, so the index of the loaded events (a million at estate
-    scale) is built on the first lookup; rows accepted before it are kept in order meanwhile.
-    """
 
-    def __init__(self, history: dict[int, list[Event]]) -> None:
-        # Rows of this input are appended to the history without a chain hash (theirs come
-        # with add()), so indexing the events that carry one indexes the loaded events.
-        self._history = history
-        self._index: dict[str, tuple[int, int, EventKind]] | None = None
-        self._added: list[tuple[str, tuple[int, int, EventKind]]] = []
+def _utc_text(moment: datetime) -> str:
+    """A recording time as chain.canonical writes it."""
+    return moment.astimezone(UTC).isoformat(timespec="microseconds")
 
-    def add(self, chain_hash: str, entry: tuple[int, int, EventKind]) -> None:
-        if self._index is None:
-            self._added.append((chain_hash, entry))
-        else:
-            self._index[chain_hash] = entry
 
-    def get(self, chain_hash: str) -> tuple[int, int, EventKind] | None:
-        if self._index is None:
-            self._index = {
-                e.chain_hash: (e.id, sid, e.kind) for sid, evs in self._history.items() for e in evs if e.chain_hash
-            }
-            self._index.update(self._added)
-            self._added = []
-        return self._index.get(chain_hash)
+def _chain_link(prev_hash: str, body: dict[str, Any]) -> str:
+    """``chain.link`` of a body that holds ``chain.CANONICAL_FIELDS`` and ``v`` (the chain
+    version) as the plain values ``chain.canonical`` makes of them (text, integers, None)."""
+    text = "".join(
+        [
+            opener + ("null" if (v := body[name]) is None else _quote(v) if type(v) is str else _json_value(v))
+            for opener, name in _CANONICAL
+        ]
+    )
+    return hashlib.sha256(f"{prev_hash}\n{text}}}".encode()).hexdigest()
+
+
+def _json_value(value: Any) -> str:
+    return str(value) if type(value) is int else json.dumps(value, ensure_ascii=False)
 
 
 def _column_for(f: Finding) -> str:
