@@ -190,3 +190,135 @@ def test_put_text_guards_every_formula_prefix() -> None:
         assert cell.value == text
         assert cell.data_type == "s"
         assert cell.quotePrefix is (text != "plain")
+
+
+def test_number_widths_match_formatting_every_value() -> None:
+    """Widths come from the largest and smallest number only; that is the longest display text."""
+    import random
+    from decimal import Decimal
+
+    from ledger.exports.common import INT, KG, NUMBER, PERCENT, TONNES, fmt
+    from ledger.exports.xlsx import _number_width
+
+    rng = random.Random(7)
+    cases: list[list[Any]] = [
+        [Decimal("0"), Decimal("-0"), Decimal("0.000")],
+        [Decimal("-0.0004"), Decimal("0.0004"), 0],
+        [-0.0, 0.0, 1],
+        [Decimal("999.9996"), Decimal("-999.9994"), 12, 3.5],
+        [Decimal("1234567.8915"), Decimal("-0.05"), Decimal("99.95")],
+        [7],
+        [],
+    ]
+    for _ in range(200):
+        cases.append([
+            rng.choice([Decimal(rng.randint(-10**9, 10**9)).scaleb(-rng.randint(0, 7)),
+                        rng.uniform(-1e6, 1e6), rng.randint(-10**6, 10**6), Decimal("-0"), 0])
+            for _ in range(rng.randint(1, 12))
+        ])
+    for values in cases:
+        for kind in (KG, TONNES, PERCENT, INT, NUMBER):
+            assert _number_width(values, kind) == max((len(fmt(v, kind)) for v in values), default=0), \
+                (values, kind)
+
+
+def _expected_width(sheet: Any, j: int) -> float:
+    from ledger.exports.common import fmt
+
+    col = sheet.columns[j]
+    if col.width is not None:
+        return col.width
+    content = max((len(fmt(v, col.kind)) for v in sheet.frame[col.key]), default=0)
+    longest_word = max((len(w) for w in col.header.split()), default=4)
+    return min(max(content, longest_word, 6) + 2, 60)
+
+
+def test_annual_workbook_looks_and_widths(tmp_path: Path) -> None:
+    from ledger.exports.frames import annual_sheets
+
+    s = sample_summary()
+    wb = openpyxl.load_workbook(write_annual_xlsx(tmp_path / "annual.xlsx", s))
+    for sheet in annual_sheets(s):
+        ws = wb[sheet.name]
+        for j, col in enumerate(sheet.columns):
+            letter = openpyxl.utils.get_column_letter(j + 1)
+            assert ws.column_dimensions[letter].width == _expected_width(sheet, j), (sheet.name, col.key)
+            head = ws.cell(1, j + 1)
+            assert head.value == col.header and head.font.bold and head.fill.fgColor.rgb.endswith("E7EAEE")
+            assert head.border.bottom.style == "thin" and head.alignment.wrap_text
+        assert ws.row_dimensions[1].height in (15, 30, 45, 60)
+        assert ws.print_title_rows == "$1:$1" and ws.page_setup.orientation == "landscape"
+        assert ws.sheet_properties.pageSetUpPr.fitToPage
+    systems = wb["systems"]
+    headers = [c.value for c in systems[1]]
+    formats = {h: {c.number_format for (c,) in systems.iter_rows(min_row=2, max_row=systems.max_row - 1,
+                                                                 min_col=headers.index(h) + 1,
+                                                                 max_col=headers.index(h) + 1)
+                   if c.value is not None}
+               for h in ("added (kg)", "leak rate (% of full charge)", "leak checks done", "retired")}
+    assert formats == {"added (kg)": {"#,##0.000"}, "leak rate (% of full charge)": {"0.0"},
+                       "leak checks done": {"0"}, "retired": {"yyyy-mm-dd"}}
+    assert systems.cell(2, headers.index("description") + 1).alignment.wrap_text  # a wide column wraps
+    total = systems.cell(systems.max_row, headers.index("added (kg)") + 1)
+    assert total.font.bold and total.border.top.style == "thin" and total.number_format == "#,##0.000"
+    # a marked (missed) obligation: tinted, edged on the left, its state in bold
+    obligations = wb["obligations"]
+    row = [r[5] for r in _rows(obligations)[1:]].index("missed") + 2
+    assert obligations.cell(row, 1).border.left.style == "thick"
+    assert obligations.cell(row, 6).font.bold and not obligations.cell(row, 5).font.bold
+    assert all(obligations.cell(row, j).fill.fgColor.rgb.endswith("F4E6CF") for j in range(1, 12))
+    # the file states each sheet's used range, as a plain workbook's does (read-only readers go by it)
+    ro = openpyxl.load_workbook(tmp_path / "annual.xlsx", read_only=True)
+    for name in wb.sheetnames:
+        assert ro[name].calculate_dimension() == wb[name].dimensions, name
+    ro.close()
+    notes = wb["notes"]
+    assert notes["A1"].font.sz == 14 and notes["A1"].font.bold
+    assert notes["A3"].font.bold and notes["A3"].alignment.wrap_text and notes["B3"].alignment.wrap_text
+    assert notes.column_dimensions["A"].width == 34 and notes.column_dimensions["B"].width == 100
+
+
+def _dump(path: Path) -> list[Any]:
+    """Every cell's value and look and every sheet's settings, to compare two files."""
+    wb = openpyxl.load_workbook(path)
+    out: list[Any] = [wb.sheetnames]
+    for ws in wb.worksheets:
+        out.append((ws.title, ws.freeze_panes, ws.auto_filter.ref, ws.print_title_rows,
+                    sorted((k, d.width) for k, d in ws.column_dimensions.items()),
+                    sorted((k, d.height) for k, d in ws.row_dimensions.items() if d.height)))
+        for row in ws.iter_rows():
+            for c in row:
+                if c.value is None and not c.has_style:
+                    continue
+                out.append((c.coordinate, c.value, c.data_type, c.number_format, c.quotePrefix,
+                            repr(c.font), repr(c.fill), repr(c.border), repr(c.alignment)))
+    return out
+
+
+def test_streamed_and_plain_sheets_write_the_same_cells(tmp_path: Path) -> None:
+    """write_table/write_notes give the same cells on a plain sheet, openpyxl's own write-only
+    sheet and the streaming sheet the writers use."""
+    from openpyxl import Workbook
+
+    from ledger.exports.frames import annual_sheets, logbook_sheets
+    from ledger.exports.xlsx import annual_notes, write_notes, write_table
+
+    s, book = sample_summary(), sample_logbook()
+    for sheets, notes, ours in (
+        ({x.name: x for x in annual_sheets(s)}, annual_notes(s), write_annual_xlsx(tmp_path / "a.xlsx", s)),
+        ({x.name: x for x in logbook_sheets(book)}, None, write_logbook_xlsx(tmp_path / "l.xlsx", book)),
+    ):
+        expected = _dump(ours)
+        for write_only in (False, True):
+            wb = Workbook(write_only=write_only)
+            if not write_only:
+                wb.remove(wb.active)
+            for name in expected[0][:-1]:
+                write_table(wb.create_sheet(name), sheets[name])
+            source = openpyxl.load_workbook(ours)["notes"]
+            title = source["A1"].value
+            items = notes or [(r[0], r[1]) for r in source.iter_rows(min_row=3, values_only=True)]
+            write_notes(wb.create_sheet("notes"), title, items)
+            other = tmp_path / f"other-{write_only}.xlsx"
+            wb.save(other)
+            assert _dump(other) == expected, write_only
