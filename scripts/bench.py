@@ -1196,7 +1196,7 @@ def bench_scale(scale: float, backends: Sequence[str], only: Sequence[str], work
             results.append(row)
             if name in DB_FREE:
                 done_db_free.add(name)
-            _log(f"  {name:8s} {backend:10s} {row['seconds']:9.3f} s  floor {row['floor_seconds']:8.3f} s"
+            _log(f"  {name:13s} {backend:10s} {row['seconds']:9.3f} s  floor {row['floor_seconds']:8.3f} s"
                  f"  x{row['ratio']}  (goal {_goal(GOALS[name])})  {row['peak_rss_mb']:.0f} MB", quiet)
         if keep_db:
             _log(f"  kept {url}", quiet)
@@ -1318,25 +1318,25 @@ def print_table(results: list[dict[str, Any]], markdown: bool = False) -> None:
             for name, backend, cells in rows:
                 print(f"| {name} | {backend} | " + " | ".join(cells) + " |")
         return
-    head = (f"{'scale':>5} {'measurement':11} {'backend':10} {'seconds':>9} {'floor s':>9} "
+    head = (f"{'scale':>5} {'measurement':13} {'backend':10} {'seconds':>9} {'floor s':>9} "
             f"{'ratio':>7} {'goal':>5} {'peak MB':>8}  events")
     print(head)
     print("-" * len(head))
     for r in results:
         if r["seconds"] is None:
-            print(f"{r['scale']:>5} {r['name']:11} {r['backend']:10} {'pending':>9}")
+            print(f"{r['scale']:>5} {r['name']:13} {r['backend']:10} {'pending':>9}")
             continue
         flag = "" if r["goal"] is None or (r["ratio"] is not None and r["ratio"] <= r["goal"]) else " *"
-        print(f"{r['scale']:>5} {r['name']:11} {r['backend']:10} {r['seconds']:9.3f} "
+        print(f"{r['scale']:>5} {r['name']:13} {r['backend']:10} {r['seconds']:9.3f} "
               f"{r['floor_seconds']:9.3f} {r['ratio']:7.2f} {_goal(r['goal']):>5} {r['peak_rss_mb']:8.0f}"
               f"  {r['events']}{flag}")
     scales, rows = _scaling(results)
     if len(scales) > 1:
         print()
         print("scaling: seconds per million events (flat = linear cost); log-add and help in seconds")
-        print(f"{'measurement':11} {'backend':10} " + " ".join(f"{'S=' + str(s):>10}" for s in scales))
+        print(f"{'measurement':13} {'backend':10} " + " ".join(f"{'S=' + str(s):>10}" for s in scales))
         for name, backend, cells in rows:
-            print(f"{name:11} {backend:10} " + " ".join(f"{c:>10}" for c in cells))
+            print(f"{name:13} {backend:10} " + " ".join(f"{c:>10}" for c in cells))
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -24,7 +24,6 @@ __all__ = [
     "CHEM_CLASSES",
     "EU_ANNEX_MARKS",
     "Component",
-    "data_digest",
     "GwpFigure",
     "Reference",
     "Refrigerant",
@@ -329,17 +328,6 @@ def load_reference() -> Reference:
             _read("components.csv"), _read("blends.csv"), _read("blend_components.csv")
         )
     )
-
-
-@functools.cache
-def data_digest() -> str:
-    """SHA-256 of the packaged reference files: kept results computed with other data are stale."""
-    import hashlib
-
-    digest = hashlib.sha256()
-    for name in ("components.csv", "blends.csv", "blend_components.csv"):
-        digest.update(_read(name).encode())
-    return digest.hexdigest()
 
 
 def _read(filename: str) -> str:

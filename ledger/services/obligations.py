@@ -182,15 +182,28 @@ def load_evidence(
 KEEP_FORMAT = "1"  # bump when what is kept, or how it is read back, changes
 
 
+# The code kept results depend on: a change to any of these files makes every kept row stale,
+# so nobody has to remember to bump a version for a kept row to follow a rule change.
+_KEPT_SOURCES = ("domain", "rules", "reference", "units.py", "services/obligations.py", "services/reporting.py")
+
+
 @functools.cache
 def rules_key() -> str:
-    """A digest of everything besides the records that the kept rows depend on."""
-    from ledger import __version__
-    from ledger.reference import data_digest
-    from ledger.rules import REGIMES
+    """A digest of everything besides the records that the kept rows depend on: the format of
+    what is kept, the tool version, and the source of the rules, the domain records, the
+    reference data (CSV files included) and the two services that build kept rows."""
+    from pathlib import Path
 
-    parts = [KEEP_FORMAT, __version__, data_digest(), *(f"{c}={m.REGIME_VERSION}" for c, m in REGIMES.items())]
-    return hashlib.sha256("|".join(parts).encode()).hexdigest()
+    from ledger import __version__
+
+    root = Path(__file__).resolve().parents[1]
+    digest = hashlib.sha256(f"{KEEP_FORMAT}|{__version__}".encode())
+    for name in _KEPT_SOURCES:
+        path = root / name
+        files = sorted(p for p in path.rglob("*") if p.suffix in (".py", ".csv")) if path.is_dir() else [path]
+        for f in files:
+            digest.update(f.relative_to(root).as_posix().encode() + b"\0" + f.read_bytes() + b"\0")
+    return digest.hexdigest()
 
 
 @functools.cache

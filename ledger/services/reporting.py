@@ -665,8 +665,7 @@ def annual_summary(
 
 def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: str | None,
                     as_of: date | None, recompute: bool) -> dict[str, Any]:
-    from ledger.services.detectors import stored_episodes
-    from ledger.services.obligations import Evidence, compute, rules_key
+    from ledger.services.obligations import rules_key
 
     reference = load_reference()
     as_of = as_of or min(date(year, 12, 31), today_utc())
@@ -693,12 +692,16 @@ def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: st
             else:
                 parts.append(part)
         histories = repo.load_histories(conn=conn, site_ids=stale) if stale else []
+        from ledger.services.detectors import stored_episodes  # only for sites built anew
+
         zones = {h.system.id: h.site.timezone for h in histories}
         everything = site_code is None and len(stale) == len(heads)
         episodes = stored_episodes(conn, None if everything else list(zones), zones) if zones else {}
         codes = {sites[sid].code for sid in stale}
         filings = [f for f in repo.load_filings(site_code, conn=conn) if f.site_code in codes]
     if histories:
+        from ledger.services.obligations import Evidence, compute
+
         obligations, _ = compute(histories, as_of, Evidence(episodes, filings))
         fresh = _parts_of(histories, obligations, reference, year=year, basis=chosen)
         parts.extend(fresh)
