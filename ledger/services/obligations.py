@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import functools
 import hashlib
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import UTC, date, datetime
 from itertools import groupby
@@ -132,14 +133,26 @@ def compute(
     obligations, findings = compute_all(histories, load_reference(), as_of)
     if evidence is None:
         return obligations, findings
-    for h in histories:
-        eps = evidence.episodes.get(h.system.id)
-        if not eps:
-            continue
-        obligations.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
-        findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
+    episode_obs, episode_findings = _episode_evidence(histories, evidence.episodes, as_of)
+    obligations.extend(episode_obs)
+    findings.extend(episode_findings)
     obligations = apply_filings(obligations, [f for f in evidence.filings if f.filed_on <= as_of])
     obligations.sort(key=lambda o: (o.due_on, o.site_code or "", o.system_id or 0, o.kind.value))
+    return obligations, findings
+
+
+def _episode_evidence(
+    histories: Sequence[SystemHistory], episodes: dict[int, list[StoredEpisode]], as_of: date
+) -> tuple[list[Obligation], list[Finding]]:
+    """Site-policy leak checks opened by stored detector episodes, and findings about repairs
+    the readings put in doubt, for those of these systems that have episodes."""
+    obligations: list[Obligation] = []
+    findings: list[Finding] = []
+    for h in histories:
+        eps = episodes.get(h.system.id)
+        if eps:
+            obligations.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
+            findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
     return obligations, findings
 
 
@@ -335,9 +348,6 @@ def _shown_on(
         keep_obs.extend(_keep_rows(sid, shown, missed))
         keep_fins.extend({"site_id": sid, "source": f.source, "message": f.message, "severity": f.severity.value,
                           "field": f.field} for f in found)
-    for sid in stale:  # a site without systems
-        if code_of[sid] not in per_site:
-            per_site[code_of[sid]] = _Shown()
     if keep_sites:
         _keep(db, keep_sites, keep_obs, keep_fins)
 
@@ -349,11 +359,8 @@ def _shown_on(
         shown.findings.extend(part.findings)
 
     # Detector episodes and filings: applied on every run (they change without new events).
-    episode_obs: list[Obligation] = []
-    for h in with_episodes:
-        eps = episodes[h.system.id]
-        episode_obs.extend(episode_obligations(h.system.id, h.site.code, eps, h.events, as_of))
-        shown.findings.extend(repair_findings(f"{h.site.code}/{h.system.tag}", eps, h.events))
+    episode_obs, episode_findings = _episode_evidence(with_episodes, episodes, as_of)
+    shown.findings.extend(episode_findings)
     ep_shown, ep_missed = _unmet_current(episode_obs)
     shown.obligations.extend(ep_shown)
     shown.missed.extend(ep_missed)
@@ -368,14 +375,20 @@ def _shown_on(
 
 def _keep(db: Database, sites: list[dict[str, Any]], obligations: list[dict[str, Any]],
           findings: list[dict[str, Any]]) -> None:
-    """Store freshly computed rows for the next `due`. A ledger that cannot be written to
-    (read-only file or role), or that another writer holds just now, is left as it is: `due`
-    never waits for a lock, and the rows are computed again next time."""
+    """Store freshly computed rows for the next `due` (see `keep_if_free`)."""
+    keep_if_free(db, lambda conn: repo.replace_kept(conn=conn, sites=sites, obligations=obligations,
+                                                     findings=findings))
+
+
+def keep_if_free(db: Database, write: Callable[[Any], None]) -> None:
+    """Run a write of kept results in its own transaction, unless the ledger cannot take it
+    now: a read-only file or role, or another writer holding it just now. Kept results are
+    never waited for; they are computed again next time."""
     from sqlalchemy.exc import OperationalError, ProgrammingError
 
     try:
         with db.write(wait=False) as conn:
-            repo.replace_kept(conn=conn, sites=sites, obligations=obligations, findings=findings)
+            write(conn)
     except (OperationalError, ProgrammingError):
         return
 

@@ -111,7 +111,13 @@ def today_utc() -> date:
 
 
 def default_basis(histories: Sequence[SystemHistory]) -> str:
-    """The GWP basis a summary uses when none is asked for.
+    """The GWP basis a summary uses when none is asked for (`default_basis_of_sites` of the
+    histories' sites)."""
+    return default_basis_of_sites(list({h.site.code: h.site for h in histories}.values()))
+
+
+def default_basis_of_sites(sites: Sequence[Site]) -> str:
+    """The GWP basis a summary of these sites uses when none is asked for.
 
     The GWP basis of each site's first regime; when the sites disagree (an estate with EU and
     US sites) or a site has no regime, ``eu`` (see FALLBACK_BASIS).
@@ -119,7 +125,7 @@ def default_basis(histories: Sequence[SystemHistory]) -> str:
     from ledger.rules import REGIMES
 
     found = set()
-    for site in {h.site.code: h.site for h in histories}.values():
+    for site in sites:
         if not site.regimes or site.regimes[0] not in REGIMES:
             return FALLBACK_BASIS
         found.add(REGIMES[site.regimes[0]].GWP_BASIS)
@@ -371,12 +377,22 @@ def annual_part(
             **_check_counts(by_system.get(h.system.id, []), done),
         })
 
+    grouped: dict[str, list[em.Flow]] = defaultdict(list)
+    screened: dict[tuple[str, str], list[em.Flow]] = defaultdict(list)
+    for f in all_flows:
+        grouped[f.refrigerant].append(f)
+        screened[(f.refrigerant, categories[f.system_id].value)].append(f)
+    by_refrigerant = {}
+    for name, flows in grouped.items():
+        by_refrigerant[name] = _totals(flows, gwp)
+        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in flows})
+
     site = histories[0].site if histories else None
     code = site.code if site else ""
     ids = list(sys_totals)
     site_row = None
     if ids or facility:
-        t = _totals(all_flows, gwp)
+        t = _merge_totals(list(by_refrigerant.values()))
         full_mg = sum(sys_totals[i]["full_charge_mg"] for i in ids)
         obs = [o for i in ids for o in by_system.get(i, [])] + facility
         site_row = {
@@ -391,15 +407,6 @@ def annual_part(
         }
     obligation_rows = [_obligation_row(o, labels, event_days) for o in in_year]
     obligation_rows.sort(key=_row_order)
-    grouped: dict[str, list[em.Flow]] = defaultdict(list)
-    screened: dict[tuple[str, str], list[em.Flow]] = defaultdict(list)
-    for f in all_flows:
-        grouped[f.refrigerant].append(f)
-        screened[(f.refrigerant, categories[f.system_id].value)].append(f)
-    by_refrigerant = {}
-    for name, flows in grouped.items():
-        by_refrigerant[name] = _totals(flows, gwp)
-        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in flows})
     return AnnualPart(
         site_code=code,
         systems=systems,
@@ -711,18 +718,6 @@ def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: st
                            generated_at=utc_now())
 
 
-def default_basis_of_sites(sites: Sequence[Site]) -> str:
-    """`default_basis` of these sites."""
-    from ledger.rules import REGIMES
-
-    found = set()
-    for site in sites:
-        if not site.regimes or site.regimes[0] not in REGIMES:
-            return FALLBACK_BASIS
-        found.add(REGIMES[site.regimes[0]].GWP_BASIS)
-    return found.pop() if len(found) == 1 else FALLBACK_BASIS
-
-
 # --- kept annual parts ------------------------------------------------------------------------
 
 _PLAIN = frozenset({("decimal", "Decimal"), ("datetime", "date"), ("datetime", "datetime")})
@@ -737,26 +732,19 @@ class _PlainUnpickler(pickle.Unpickler):
         return super().find_class(module, name)
 
 
+_PART_FIELDS = tuple(f.name for f in fields(AnnualPart))
+
+
 def _pack(part: AnnualPart) -> bytes:
-    return pickle.dumps(
-        (part.site_code, part.systems, part.site_row, part.by_refrigerant, part.by_screening, part.estate_counts,
-         part.met_late, part.chronic, part.full_charge_mg, part.monthly_mg, part.yearly_mg, part.obligation_rows,
-         part.notes, part.heads),
-        protocol=pickle.HIGHEST_PROTOCOL,
-    )
+    return pickle.dumps(tuple(getattr(part, name) for name in _PART_FIELDS), protocol=pickle.HIGHEST_PROTOCOL)
 
 
 def _unpack(body: bytes) -> AnnualPart | None:
     """A kept part, or None when the body cannot be read (then the site is computed again)."""
     try:
-        (code, systems, site_row, by_refrigerant, by_screening, counts, met_late, chronic, full_mg, monthly,
-         yearly, obligation_rows, notes, heads) = _PlainUnpickler(io.BytesIO(body)).load()
+        return AnnualPart(*_PlainUnpickler(io.BytesIO(body)).load())
     except (pickle.UnpicklingError, ValueError, TypeError, EOFError):
         return None
-    return AnnualPart(
-        code, systems, site_row, by_refrigerant, by_screening, counts, met_late, chronic, full_mg,
-        monthly, yearly, obligation_rows, notes, heads,
-    )
 
 
 def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[str, tuple[int, int]], *,
@@ -767,9 +755,7 @@ def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[st
     Args:
         revisions: site code -> (site id, revision read before the histories were loaded).
     """
-    from sqlalchemy.exc import OperationalError, ProgrammingError
-
-    from ledger.services.obligations import rules_key
+    from ledger.services.obligations import keep_if_free, rules_key
 
     now = datetime.now(UTC)
     rows = []
@@ -779,11 +765,7 @@ def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[st
         sid, revision = revisions[part.site_code]
         rows.append({"site_id": sid, "year": year, "basis": basis, "as_of": as_of, "rules_key": rules_key(),
                      "revision": revision, "computed_at": now, "body": _pack(part)})
-    try:
-        with db.write(wait=False) as conn:
-            repo.replace_kept_annual(conn=conn, rows=rows)
-    except (OperationalError, ProgrammingError):
-        return
+    keep_if_free(db, lambda conn: repo.replace_kept_annual(conn=conn, rows=rows))
 
 
 def _parts_of(histories: Sequence[SystemHistory], obligations: Sequence[Obligation], reference: Reference, *,

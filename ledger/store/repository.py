@@ -652,6 +652,16 @@ def load_kept(site_ids: Sequence[int], *, conn: Connection, everything: bool = F
     return ob_rows, fin_rows
 
 
+def _lock_sites(site_ids: Iterable[int], *, conn: Connection) -> list[int]:
+    """Lock these sites' rows (PostgreSQL: FOR UPDATE, in id order) and return the ids sorted:
+    two writers replacing the same sites' kept rows then queue instead of both inserting."""
+    ids = sorted(set(site_ids))
+    for i in range(0, len(ids), _IN_CHUNK):
+        chunk = ids[i : i + _IN_CHUNK]
+        conn.execute(select(site.c.id).where(site.c.id.in_(chunk)).order_by(site.c.id).with_for_update()).all()
+    return ids
+
+
 def replace_kept(
     *,
     conn: Connection,
@@ -662,10 +672,9 @@ def replace_kept(
     """Replace the kept obligations of some sites (rows as `kept_site`, `kept_obligation` and
     `kept_finding` take them). The sites' rows are locked first, so two writers keeping the
     same site one after the other cannot leave both sets behind."""
-    ids = sorted({s["site_id"] for s in sites})
+    ids = _lock_sites({s["site_id"] for s in sites}, conn=conn)
     for i in range(0, len(ids), _IN_CHUNK):
         chunk = ids[i : i + _IN_CHUNK]
-        conn.execute(select(site.c.id).where(site.c.id.in_(chunk)).order_by(site.c.id).with_for_update()).all()
         for table in (kept_obligation, kept_finding, kept_site):
             conn.execute(table.delete().where(table.c.site_id.in_(chunk)))
     if sites:
@@ -876,10 +885,7 @@ def load_kept_annual(
 
 def replace_kept_annual(*, conn: Connection, rows: Sequence[Mapping[str, Any]]) -> None:
     """Replace sites' kept annual parts (one per site, year and basis); sites locked first."""
-    ids = sorted({r["site_id"] for r in rows})
-    for i in range(0, len(ids), _IN_CHUNK):
-        chunk = ids[i : i + _IN_CHUNK]
-        conn.execute(select(site.c.id).where(site.c.id.in_(chunk)).order_by(site.c.id).with_for_update()).all()
+    _lock_sites({r["site_id"] for r in rows}, conn=conn)
     for year, basis in sorted({(r["year"], r["basis"]) for r in rows}):
         mine = sorted({r["site_id"] for r in rows if (r["year"], r["basis"]) == (year, basis)})
         for i in range(0, len(mine), _IN_CHUNK):
