@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import functools
 import hashlib
+import json
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import UTC, date, datetime
@@ -187,12 +188,18 @@ def load_evidence(
 #   was open then (`fresh_until`): until then no status and no wording can change;
 # * no event of the site was dated after the day they were computed for.
 #
+# * the site's inputs are those kept: the chain head of each of its systems and its site and
+#   system rows as they are now (`site_inputs`), so an event added or removed behind the
+#   triggers' back, or a system fact changed in place, makes the rows stale;
+# * the kept rows still match the digest kept with them (`kept_content`): a kept row removed
+#   or altered makes the site computed again, never silently absent.
+#
 # Under those conditions the rows shown are the same (tests/services/test_kept.py holds the
 # two paths to that): nothing new happened, nothing open fell due, a periodic series' first
 # unmet period stays the first and later periods collapse into it. Otherwise the site is
 # computed again (and kept again). Detector episodes and filings are applied on every run.
 
-KEEP_FORMAT = "1"  # bump when what is kept, or how it is read back, changes
+KEEP_FORMAT = "2"  # bump when what is kept, or how it is read back, changes
 
 
 # The code kept results depend on: a change to any of these files makes every kept row stale,
@@ -225,6 +232,81 @@ def rule_dates() -> tuple[date, ...]:
     from ledger.rules import REGIMES
 
     return tuple(sorted({c.value for m in REGIMES.values() for c in m.CONSTANTS if isinstance(c.value, date)}))
+
+
+_KEPT_SITE_FIELDS = ("as_of", "fresh_until", "rules_key", "revision", "inputs")
+_KEPT_ROW_SKIP = frozenset({"id"})
+
+
+def _canon(values: Any) -> str:
+    from ledger.store.chain import _plain
+
+    return json.dumps(values, sort_keys=True, separators=(",", ":"), default=lambda v: str(_plain(v)))
+
+
+def _row_dict(row: Any) -> dict[str, Any]:
+    mapping = row if isinstance(row, dict) else row._mapping
+    return {k: mapping[k] for k in mapping.keys() if k not in _KEPT_ROW_SKIP}
+
+
+def kept_content(site_row: Any, obligations: Sequence[Any], findings: Sequence[Any]) -> str:
+    """The digest kept with a site's kept rows: its `kept_site` fields and every obligation and
+    finding row (in any order). A row removed, added or altered changes it.
+
+    Args:
+        site_row: the `kept_site` row or the dict written for it.
+        obligations, findings: that site's rows (rows or dicts; ``id`` is ignored).
+    """
+    get = site_row.get if isinstance(site_row, dict) else lambda k: getattr(site_row, k)
+    head = _canon([get(k) for k in _KEPT_SITE_FIELDS])
+    rows = sorted(_canon(_row_dict(r)) for r in obligations) + ["|"] + sorted(_canon(_row_dict(r)) for r in findings)
+    return hashlib.sha256("\n".join([head, *rows]).encode()).hexdigest()
+
+
+def site_inputs(conn: Any, site_ids: Sequence[int]) -> dict[int, str]:
+    """Site id -> a digest of what its kept results were computed from besides the rules: the
+    site row, each system row and each system's chain head as they are now."""
+    from sqlalchemy import select
+
+    from ledger.store.tables import site as site_table
+    from ledger.store.tables import system as system_table
+
+    ids = sorted(set(site_ids))
+    parts: dict[int, list[str]] = {sid: [] for sid in ids}
+    systems: list[Any] = []
+    for i in range(0, len(ids), 10_000):
+        chunk = ids[i : i + 10_000]
+        for r in conn.execute(select(site_table).where(site_table.c.id.in_(chunk))).mappings():
+            parts[r["id"]].append(_canon(dict(r)))
+        systems.extend(conn.execute(select(system_table).where(system_table.c.site_id.in_(chunk))
+                                    .order_by(system_table.c.id)).mappings())
+    heads = repo.chain_heads([r["id"] for r in systems], conn=conn)
+    for r in systems:
+        parts[r["site_id"]].append(_canon([dict(r), heads.get(r["id"])]))
+    return {sid: hashlib.sha256("\n".join(p).encode()).hexdigest() for sid, p in parts.items()}
+
+
+def kept_mismatches(conn: Any) -> list[str]:
+    """One sentence per site whose kept `due` rows no longer match the digest kept with them."""
+    from sqlalchemy import select
+
+    from ledger.store.tables import kept_finding, kept_obligation, kept_site, site
+
+    codes = dict(conn.execute(select(site.c.id, site.c.code)).all())
+    obs: dict[int, list[Any]] = {}
+    fins: dict[int, list[Any]] = {}
+    for r in conn.execute(select(kept_obligation)):
+        obs.setdefault(r.site_id, []).append(r)
+    for r in conn.execute(select(kept_finding)):
+        fins.setdefault(r.site_id, []).append(r)
+    out = []
+    for row in conn.execute(select(kept_site).order_by(kept_site.c.site_id)):
+        if row.content != kept_content(row, obs.pop(row.site_id, []), fins.pop(row.site_id, [])):
+            out.append(f"site {codes.get(row.site_id, row.site_id)}: kept `due` rows were removed or altered "
+                       "(`due` computes the site again)")
+    for sid in sorted(set(obs) | set(fins)):
+        out.append(f"site {codes.get(sid, sid)}: kept `due` rows without their site row (ignored by `due`)")
+    return out
 
 
 def _usable(kept: Any, revision: int, as_of: date) -> bool:
@@ -298,11 +380,17 @@ def _shown_on(
         heads = repo.site_revisions(site_code, conn=conn)  # read before the histories (PostgreSQL:
         # a record committed in between leaves the kept rows stale, never wrong)
         kept_sites = repo.load_kept_sites(None if site_code is None else list(heads), conn=conn)
-        fresh = set() if recompute else {
-            sid for sid, (_, rev, _) in heads.items() if _usable(kept_sites.get(sid), rev, as_of)
+        inputs = site_inputs(conn, list(heads))
+        usable = set() if recompute else {
+            sid for sid, (_, rev, _) in heads.items()
+            if _usable(kept_sites.get(sid), rev, as_of) and kept_sites[sid].inputs == inputs[sid]
         }
+        ob_rows, fin_rows = repo.load_kept(sorted(usable), conn=conn,
+                                           everything=site_code is None and len(usable) == len(heads))
+        fresh = _intact(usable, kept_sites, ob_rows, fin_rows)
+        ob_rows = [r for r in ob_rows if r.site_id in fresh]
+        fin_rows = [r for r in fin_rows if r.site_id in fresh]
         stale = sorted(set(heads) - fresh)
-        ob_rows, fin_rows = repo.load_kept(sorted(fresh), conn=conn, everything=site_code is None and not stale)
         places = repo.system_places(site_code, conn=conn)
         histories = repo.load_histories(conn=conn, site_ids=stale) if stale else []
         zones = {sid: tz for sid, (_, _, tz) in places.items()}
@@ -343,11 +431,15 @@ def _shown_on(
             continue  # records dated after the day asked for: good for that day only
         sid = site_of_code[code]
         open_due = [ob.due_on for ob in shown if ob.status is ObligationStatus.OPEN]
-        keep_sites.append({"site_id": sid, "as_of": as_of, "fresh_until": min(open_due, default=None),
-                           "rules_key": rules_key(), "revision": heads[sid][1], "computed_at": now})
-        keep_obs.extend(_keep_rows(sid, shown, missed))
-        keep_fins.extend({"site_id": sid, "source": f.source, "message": f.message, "severity": f.severity.value,
-                          "field": f.field} for f in found)
+        site_row = {"site_id": sid, "as_of": as_of, "fresh_until": min(open_due, default=None),
+                    "rules_key": rules_key(), "revision": heads[sid][1], "computed_at": now, "inputs": inputs[sid]}
+        ob_dicts = _keep_rows(sid, shown, missed)
+        fin_dicts = [{"site_id": sid, "source": f.source, "message": f.message, "severity": f.severity.value,
+                      "field": f.field} for f in found]
+        site_row["content"] = kept_content(site_row, ob_dicts, fin_dicts)
+        keep_sites.append(site_row)
+        keep_obs.extend(ob_dicts)
+        keep_fins.extend(fin_dicts)
     if keep_sites:
         _keep(db, keep_sites, keep_obs, keep_fins)
 
@@ -371,6 +463,20 @@ def _shown_on(
         shown.missed = [shown.missed[i] for i in keep_idx]
     shown.findings = list(dict.fromkeys(shown.findings))
     return shown, places
+
+
+def _intact(candidates: set[int], kept_sites: dict[int, Any], ob_rows: Sequence[Any],
+            fin_rows: Sequence[Any]) -> set[int]:
+    """Those candidate sites whose kept rows match the digest kept with them."""
+    obs: dict[int, list[Any]] = {sid: [] for sid in candidates}
+    fins: dict[int, list[Any]] = {sid: [] for sid in candidates}
+    for r in ob_rows:
+        if r.site_id in obs:
+            obs[r.site_id].append(r)
+    for r in fin_rows:
+        if r.site_id in fins:
+            fins[r.site_id].append(r)
+    return {sid for sid in candidates if kept_sites[sid].content == kept_content(kept_sites[sid], obs[sid], fins[sid])}
 
 
 def _keep(db: Database, sites: list[dict[str, Any]], obligations: list[dict[str, Any]],

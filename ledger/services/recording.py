@@ -208,6 +208,7 @@ def set_system(db: Database, *, site_code: str, tag: str, defrost_every_hours: f
     """Record static facts about a system that are not events (e.g. its defrost interval)."""
     from sqlalchemy import update
 
+    from ledger.store.records import seal
     from ledger.store.tables import system as system_table
 
     if defrost_every_hours is not None and not (0 < defrost_every_hours <= 24 * 7):
@@ -217,6 +218,7 @@ def set_system(db: Database, *, site_code: str, tag: str, defrost_every_hours: f
         conn.execute(
             update(system_table).where(system_table.c.id == sys_.id).values(defrost_every_hours=defrost_every_hours)
         )
+        seal("system", [sys_.id], conn=conn)
         return replace(sys_, defrost_every_hours=defrost_every_hours)
 
 

@@ -294,7 +294,7 @@ class AnnualPart:
     yearly_mg: dict[str, dict[int, int]]  # refrigerant -> year -> service additions (to the year's end)
     obligation_rows: list[dict[str, Any]]
     notes: list[str]
-    heads: list[tuple[int, str | None]]  # (system id, chain head) of every system of the site
+    heads: list[tuple[str, str | None]]  # ("SITE/TAG", chain head) of every system of the site
 
 
 def annual_part(
@@ -421,7 +421,7 @@ def annual_part(
         yearly_mg={r: dict(y) for r, y in yearly_mg.items()},
         obligation_rows=obligation_rows,
         notes=list(dict.fromkeys(gwp.notes)),
-        heads=[(h.system.id, chain_head_of(h.events)) for h in histories],
+        heads=[(f"{h.site.code}/{h.system.tag}", chain_head_of(h.events)) for h in histories],
     )
 
 
@@ -622,17 +622,12 @@ def method_json(m: em.MethodResult) -> dict[str, Any]:
     }
 
 
-def chain_digest(histories: Sequence[SystemHistory]) -> dict[str, Any]:
-    """A digest of every system's chain head, so an estate report can be tied to the ledger.
+def _digest_of_heads(heads: Sequence[tuple[str, str | None]]) -> dict[str, Any]:
+    """The chain digest of a report: `integrity.heads_digest`, the one `verify` prints."""
+    from ledger.services.integrity import heads_digest
 
-    SHA-256 over the lines ``<system id>:<chain head>`` in system-id order.
-    """
-    return _digest_of_heads(sorted((h.system.id, chain_head_of(h.events)) for h in histories))
-
-
-def _digest_of_heads(heads: Sequence[tuple[int, str | None]]) -> dict[str, Any]:
-    text = "".join(f"{sid}:{head or ''}\n" for sid, head in heads)
-    return {"systems": len(heads), "digest": hashlib.sha256(text.encode()).hexdigest()}
+    found = {name: head for name, head in heads if head is not None}
+    return {"systems": len(found), "digest": heads_digest(found)}
 
 
 def chain_head_of(events: Sequence[Event]) -> str | None:
@@ -672,7 +667,7 @@ def annual_summary(
 
 def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: str | None,
                     as_of: date | None, recompute: bool) -> dict[str, Any]:
-    from ledger.services.obligations import rules_key
+    from ledger.services.obligations import rules_key, site_inputs
 
     reference = load_reference()
     as_of = as_of or min(date(year, 12, 31), today_utc())
@@ -688,11 +683,12 @@ def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: st
         kept = repo.load_kept_annual(year, chosen, None if site_code is None else list(heads), conn=conn)
         parts: list[AnnualPart] = []
         stale: list[int] = []
+        inputs = site_inputs(conn, list(heads))
         for sid, (_, revision, _) in heads.items():
             row = kept.get(sid)
             part = None
             if (not recompute and row is not None and row.as_of == as_of and row.rules_key == key
-                    and row.revision == revision):
+                    and row.revision == revision and row.inputs == inputs[sid] and row.content == _annual_content(row)):
                 part = _unpack(row.body)
             if part is None:
                 stale.append(sid)
@@ -712,10 +708,15 @@ def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: st
         obligations, _ = compute(histories, as_of, Evidence(episodes, filings))
         fresh = _parts_of(histories, obligations, reference, year=year, basis=chosen)
         parts.extend(fresh)
-        revisions = {code: (sid, rev) for sid, (code, rev, _) in heads.items()}
+        revisions = {code: (sid, rev, inputs[sid]) for sid, (code, rev, _) in heads.items()}
         _keep_parts(db, fresh, revisions, year=year, basis=chosen, as_of=as_of)
-    return assemble_annual(parts, reference, year=year, basis=chosen, as_of=as_of, site_code=site_code,
-                           generated_at=utc_now())
+    summary = assemble_annual(parts, reference, year=year, basis=chosen, as_of=as_of, site_code=site_code,
+                              generated_at=utc_now())
+    from ledger.services.integrity import report_check
+
+    summary["integrity"] = report_check(db, site_code=site_code)
+    summary["chain"] = {"systems": summary["integrity"]["systems"], "digest": summary["integrity"]["digest"]}
+    return summary
 
 
 # --- kept annual parts ------------------------------------------------------------------------
@@ -753,7 +754,8 @@ def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[st
     holds just now, is left as it is (no waiting): the parts are built again next time.
 
     Args:
-        revisions: site code -> (site id, revision read before the histories were loaded).
+        revisions: site code -> (site id, revision and inputs digest read before the histories
+            were loaded).
     """
     from ledger.services.obligations import keep_if_free, rules_key
 
@@ -762,10 +764,35 @@ def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[st
     for part in parts:
         if part.site_code not in revisions:
             continue
-        sid, revision = revisions[part.site_code]
-        rows.append({"site_id": sid, "year": year, "basis": basis, "as_of": as_of, "rules_key": rules_key(),
-                     "revision": revision, "computed_at": now, "body": _pack(part)})
+        sid, revision, inputs = revisions[part.site_code]
+        row = {"site_id": sid, "year": year, "basis": basis, "as_of": as_of, "rules_key": rules_key(),
+               "revision": revision, "computed_at": now, "body": _pack(part), "inputs": inputs}
+        row["content"] = _annual_content(row)
+        rows.append(row)
     keep_if_free(db, lambda conn: repo.replace_kept_annual(conn=conn, rows=rows))
+
+
+_ANNUAL_FIELDS = ("site_id", "year", "basis", "as_of", "rules_key", "revision", "inputs")
+
+
+def _annual_content(row: Any) -> str:
+    """The digest kept with a kept annual part: its key, inputs and body."""
+    get = row.get if isinstance(row, dict) else lambda k: getattr(row, k)
+    head = "|".join(str(get(k)) for k in _ANNUAL_FIELDS)
+    return hashlib.sha256(head.encode() + b"\0" + bytes(get("body"))).hexdigest()
+
+
+def kept_annual_mismatches(conn: Any) -> list[str]:
+    """One sentence per kept annual part that no longer matches the digest kept with it."""
+    from sqlalchemy import select
+
+    from ledger.store.tables import kept_annual, site
+
+    codes = dict(conn.execute(select(site.c.id, site.c.code)).all())
+    return [f"site {codes.get(r.site_id, r.site_id)}: kept annual part {r.year}/{r.basis} was altered "
+            "(the summary builds it again)"
+            for r in conn.execute(select(kept_annual).order_by(kept_annual.c.site_id, kept_annual.c.year))
+            if r.content != _annual_content(r)]
 
 
 def _parts_of(histories: Sequence[SystemHistory], obligations: Sequence[Obligation], reference: Reference, *,
@@ -976,6 +1003,19 @@ def logbook_data(
     }
 
 
+def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[str, Any]:
+    """A site's report check narrowed to one system's logbook: its own chain's problems and the
+    site's record and guard problems, not its neighbours' chains."""
+    others = tuple(f"{n}: " for n in names if n != name) + tuple(f"checkpoint, {n}: " for n in names if n != name)
+    problems = [p for p in check["problems"] if not p.startswith(others)]
+    heads = {name: check["heads"][name]} if name in check["heads"] else {}
+    cover = check["checkpoint"]
+    if cover is not None:
+        cover = {**cover, "covers": int(name in check["covered_names"]), "of": 1}
+    return {**check, "problems": problems, "verified": not problems, "heads": heads, "systems": len(heads),
+            "digest": heads_digest(heads), "checkpoint": cover}
+
+
 def _period(history: SystemHistory, from_on: date | None, to_on: date | None) -> date:
     from ledger.services.recording import site_today
 
@@ -1021,9 +1061,18 @@ def _logbooks(
     to_day = _period(histories[0], from_on, to_on)
     obligations, findings = compute(histories, to_day, evidence)
     now = utc_now()
-    return [
+    from ledger.services.integrity import report_check
+
+    site_check = report_check(db, site_code=histories[0].site.code,
+                              system_ids=[histories[0].system.id] if tag is not None else None)
+    names = {f"{h.site.code}/{h.system.tag}" for h in histories}
+    checks = {h.system.id: _one_system(site_check, f"{h.site.code}/{h.system.tag}", names) for h in histories}
+    books = [
         logbook_data(h, reference, from_on=from_on, to_on=to_day, obligations=obligations,
                      cylinders=cylinders, generated_at=now,
                      findings=[f for f in findings if f.source.startswith(f"{h.site.code}/{h.system.tag}")])
         for h in histories
     ]
+    for h, book in zip(histories, books, strict=True):
+        book["integrity"] = checks[h.system.id]
+    return books

@@ -33,6 +33,7 @@ from ledger.domain.records import (
 )
 from ledger.errors import Conflict, NotFound
 from ledger.store import chain
+from ledger.store.records import seal
 from ledger.store.tables import (
     certificate,
     company,
@@ -94,7 +95,9 @@ def insert_site(*, conn: Connection, values: Mapping[str, Any]) -> int:
     """Add a site; a duplicate code is a Conflict."""
     if conn.execute(select(site.c.id).where(site.c.code == values["code"])).first():
         raise Conflict(f"site: {values['code']!r} already exists")
-    return conn.execute(insert(site).values(**values, created_at=now_utc())).inserted_primary_key[0]
+    site_id = conn.execute(insert(site).values(**values, created_at=now_utc())).inserted_primary_key[0]
+    seal("site", [site_id], conn=conn)
+    return site_id
 
 
 def get_site(code: str, *, conn: Connection) -> Site:
@@ -139,7 +142,9 @@ def insert_system(*, conn: Connection, site_id: int, values: Mapping[str, Any]) 
     if exists:
         raise Conflict(f"system: {values['tag']!r} already exists at this site")
     stmt = insert(system).values(**values, site_id=site_id, created_at=now_utc())
-    return conn.execute(stmt).inserted_primary_key[0]
+    system_id = conn.execute(stmt).inserted_primary_key[0]
+    seal("system", [system_id], conn=conn)
+    return system_id
 
 
 def get_system(site_code: str, tag: str, *, conn: Connection) -> tuple[Site, System]:
@@ -168,7 +173,9 @@ def company_id(name: str, *, conn: Connection) -> int:
     found = conn.execute(select(company.c.id).where(company.c.name == name)).scalar()
     if found is not None:
         return found
-    return conn.execute(insert(company).values(name=name)).inserted_primary_key[0]
+    cid = conn.execute(insert(company).values(name=name)).inserted_primary_key[0]
+    seal("company", [cid], conn=conn)
+    return cid
 
 
 def insert_technician(
@@ -181,6 +188,7 @@ def insert_technician(
     tid = conn.execute(insert(technician).values(name=name, company_id=cid, created_at=now_utc())).inserted_primary_key[
         0
     ]
+    seal("technician", [tid], conn=conn)
     for cert in certificates:
         add_certificate(conn=conn, technician_id=tid, cert=cert)
     return tid
@@ -201,7 +209,9 @@ def add_certificate(*, conn: Connection, technician_id: int, cert: Certificate) 
         valid_from=cert.valid_from,
         valid_to=cert.valid_to,
     )
-    return conn.execute(stmt).inserted_primary_key[0]
+    cert_id = conn.execute(stmt).inserted_primary_key[0]
+    seal("certificate", [cert_id], conn=conn)
+    return cert_id
 
 
 def get_technician(name: str, *, conn: Connection) -> tuple[Technician, dict[str, int]]:
@@ -246,7 +256,9 @@ def insert_cylinder(*, conn: Connection, values: Mapping[str, Any]) -> int:
     if conn.execute(select(cylinder.c.id).where(cylinder.c.code == values["code"])).first():
         raise Conflict(f"cylinder: {values['code']!r} already exists")
     stmt = insert(cylinder).values(**values, created_at=now_utc())
-    return conn.execute(stmt).inserted_primary_key[0]
+    cylinder_id = conn.execute(stmt).inserted_primary_key[0]
+    seal("cylinder", [cylinder_id], conn=conn)
+    return cylinder_id
 
 
 def get_cylinder(code: str, *, conn: Connection) -> tuple[int, Cylinder]:
@@ -582,7 +594,9 @@ def count_events(*, conn: Connection) -> int:
 def insert_filing(*, conn: Connection, site_id: int, values: Mapping[str, Any]) -> int:
     """Record that a report was filed (append-only)."""
     stmt = insert(filing).values(**values, site_id=site_id, recorded_at=now_utc())
-    return conn.execute(stmt).inserted_primary_key[0]
+    filing_id = conn.execute(stmt).inserted_primary_key[0]
+    seal("filing", [filing_id], conn=conn)
+    return filing_id
 
 
 def load_filings(site_code: str | None = None, *, conn: Connection) -> list[Filing]:

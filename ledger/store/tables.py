@@ -239,6 +239,8 @@ kept_site = Table(
     Column("rules_key", String(64), nullable=False),
     Column("revision", BigInteger, nullable=False),
     Column("computed_at", DateTime(timezone=True), nullable=False),
+    Column("inputs", String(64)),  # digest of what the rows were computed from (obligations.site_inputs)
+    Column("content", String(64)),  # digest of this row and the site's kept rows (obligations.kept_content)
 )
 
 # The site's unmet obligations that `due` shows (the current period of each periodic series
@@ -286,4 +288,36 @@ kept_annual = Table(
     Column("revision", BigInteger, nullable=False),
     Column("computed_at", DateTime(timezone=True), nullable=False),
     Column("body", LargeBinary, nullable=False),
+    Column("inputs", String(64)),  # as kept_site.inputs
+    Column("content", String(64)),  # digest of this row's other columns (reporting._annual_content)
+)
+
+# --- integrity beyond the events ---------------------------------------------------------------
+
+# Every version of every record row (site, system, company, technician, certificate, cylinder,
+# detector channel, filing), hashed into one chain (store/records.py). Append-only (triggers).
+record_version = Table(
+    "record_version",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("table_name", String(40), nullable=False),
+    Column("row_id", Integer, nullable=False),
+    Column("body", Text, nullable=False),  # canonical JSON: table, key, at, fields, v
+    Column("recorded_at", DateTime(timezone=True), nullable=False),
+    Column("prev_hash", String(64), nullable=False),
+    Column("chain_hash", String(64), nullable=False, unique=True),
+    Index("ix_record_version_table_name_row_id", "table_name", "row_id"),
+)
+
+# Signed statements of every chain head (services/checkpoints.py). Append-only (triggers); a
+# copy given to an auditor outside the database is what makes them worth having.
+checkpoint = Table(
+    "checkpoint",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("made_at", DateTime(timezone=True), nullable=False),
+    Column("statement", Text, nullable=False),  # canonical JSON, the signed bytes
+    Column("signature", String(128), nullable=False),  # Ed25519, hex
+    Column("key_id", String(16), nullable=False),
+    Column("public_key", String(64), nullable=False),  # raw Ed25519 public key, hex
 )
