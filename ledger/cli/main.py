@@ -72,6 +72,8 @@ COMMANDS: dict[str, tuple[str, str | None]] = {
     "leak-rate": ("due_cmd", None),
     "rules": ("due_cmd", None),
     "verify": ("verify_cmd", None),
+    "checkpoint": ("verify_cmd", None),
+    "key": ("verify_cmd", "key_app"),
     "import": ("import_cmd", None),
     "export": ("backup_cmd", None),
     "restore": ("backup_cmd", None),

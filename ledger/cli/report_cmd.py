@@ -8,6 +8,7 @@ from typing import Annotated
 import typer
 
 from ledger.cli import context
+from ledger.cli.render import EXIT_FINDINGS
 
 app = typer.Typer(
     no_args_is_help=True,
@@ -38,8 +39,15 @@ def logbook(
         Path | None, typer.Option("--xlsx", help="Write a spreadsheet to FILE.", metavar="FILE")
     ] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the logbook as JSON.")] = False,
+    allow_broken: Annotated[
+        bool, typer.Option("--allow-broken", help="Write the report even when its chains do not verify "
+                                                  "(marked NOT VERIFIED; the exit code is still 1).")
+    ] = False,
 ) -> None:
     """A system's logbook: header, every event (voided ones marked), obligations, chain head.
+
+    The chains are recomputed first: a break prints NOT VERIFIED and exits 1 without writing
+    (with --allow-broken the report is written, marked, and the exit code is still 1).
 
     Example: refledger report logbook DE-HAM/LT-RACK --from 2025-01-01 --pdf lt-rack.pdf
     """
@@ -64,6 +72,7 @@ def logbook(
         from ledger.services.samples import file_stem
 
         books = reporting.site_logbooks(db, site_code=site, from_on=first, to_on=last)
+        broken = _gate([b["integrity"] for b in books], allow_broken)
         if json_out:
             print_json(books)
         for book in books:
@@ -73,12 +82,14 @@ def logbook(
                 typer.echo(f"wrote {path}", err=json_out)
         if not books:
             typer.echo(f"site {site} has no systems", err=True)
+        _finish(broken)
         return
     if not (pdf or xlsx or json_out):
         raise LedgerError("--pdf/--xlsx/--json: choose an output (--pdf FILE, --xlsx FILE or --json)")
     assert ref is not None
     site_code, tag = parse_system_ref(ref)
     book = reporting.logbook(db, site_code=site_code, tag=tag, from_on=first, to_on=last)
+    broken = _gate([book["integrity"]], allow_broken)
     if pdf:
         from ledger.exports.pdf import write_logbook_pdf
 
@@ -91,6 +102,36 @@ def logbook(
         print_json(book)
     else:
         typer.echo(f"chain head {book['chain_head'] or '-'}")
+        _echo_integrity(book["integrity"])
+    _finish(broken)
+
+
+def _gate(checks: list[dict], allow_broken: bool) -> bool:  # type: ignore[type-arg]
+    """Print NOT VERIFIED lines for every check that failed; refuse (exit 1) unless allowed.
+
+    Returns:
+        Whether any check failed (the report is then written marked, and the run exits 1).
+    """
+    broken = [p for c in checks for p in c["problems"]]
+    for p in dict.fromkeys(broken):
+        typer.echo(f"NOT VERIFIED: {p}", err=True)
+    if broken and not allow_broken:
+        typer.echo("report not written: its chains do not verify (--allow-broken writes it marked)", err=True)
+        raise typer.Exit(code=EXIT_FINDINGS)
+    return bool(broken)
+
+
+def _finish(broken: bool) -> None:
+    if broken:
+        raise typer.Exit(code=EXIT_FINDINGS)
+
+
+def _echo_integrity(check: dict) -> None:  # type: ignore[type-arg]
+    from ledger.exports.common import report_lines
+
+    for line in report_lines(check):
+        if not line.startswith("NOT VERIFIED"):
+            typer.echo(line)
 
 
 @app.command("annual")
@@ -110,8 +151,14 @@ def annual(
     recompute: Annotated[
         bool, typer.Option("--recompute", help="Ignore kept results: run the rules over every record.")
     ] = False,
+    allow_broken: Annotated[
+        bool, typer.Option("--allow-broken", help="Write the report even when its chains do not verify "
+                                                  "(marked NOT VERIFIED; the exit code is still 1).")
+    ] = False,
 ) -> None:
     """Annual loss summary: kg added and recovered, leak rates, t CO2e, scope 1 estimates.
+
+    The chains are recomputed first, as for the logbook (NOT VERIFIED, exit 1, --allow-broken).
 
     Example: refledger report annual --year 2025 --basis ar5 --xlsx losses-2025.xlsx
     """
@@ -119,6 +166,7 @@ def annual(
     from ledger.services.reporting import annual_summary
 
     summary = annual_summary(context.open_db(), year=year, site_code=site, basis=basis, recompute=recompute)
+    broken = _gate([summary["integrity"]], allow_broken)
     if xlsx:
         from ledger.exports.xlsx import write_annual_xlsx
 
@@ -129,9 +177,9 @@ def annual(
         typer.echo(f"wrote {write_annual_pdf(pdf, summary)}", err=json_out)
     if json_out:
         print_json(summary)
-        return
-    if not (xlsx or pdf):
+    elif not (xlsx or pdf):
         _print_annual(summary)
+    _finish(broken)
 
 
 def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
@@ -160,6 +208,8 @@ def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
         [[m["label"], fmt(m["emissions_kg"], KG), fmt(m["co2e_t"], TONNES), m["formula"]]
          for m in summary["scope1"]],
     )
+    typer.echo(f"chain digest {summary['chain']['digest']} ({summary['chain']['systems']} systems)")
+    _echo_integrity(summary["integrity"])
     typer.echo(CAUTION)
 
 

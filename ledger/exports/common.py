@@ -9,6 +9,7 @@ import math
 from dataclasses import dataclass
 from datetime import date, datetime
 from decimal import ROUND_HALF_UP, Decimal
+from collections.abc import Mapping
 from typing import Any
 
 # The note every report carries (design §8): PDFs print it, spreadsheets put it on their notes
@@ -27,6 +28,9 @@ FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
 TEXT = "text"  # free text (user-supplied text is guarded against formula injection)
 DATE = "date"  # a calendar day
 DATETIME = "datetime"  # an aware UTC time, shown as ISO text
+# An event entered more than this many days after the day it records is marked as entered late
+# on logbooks (common practice, no source: a week covers a technician's paperwork round).
+LATE_ENTRY_DAYS = 7
 KG = "kg"  # mass in kg, three decimals shown (the gram)
 TONNES = "t"  # t CO2e, three decimals shown
 PERCENT = "percent"  # a percentage as a number (23.5 means 23.5 %), one decimal shown
@@ -168,3 +172,34 @@ ART6_MAP: tuple[tuple[str, str, str], ...] = (
     ("(g)", "recovery and disposal measures at final decommissioning",
      "event 'taken out of service': date, quantity (kg), recovered gas to, note"),
 )
+
+
+def report_lines(check: Mapping[str, Any]) -> list[str]:
+    """The integrity lines every report prints (``integrity.report_check`` output): NOT VERIFIED first when anything failed, then
+    the chain digest and the checkpoint that covers the report (or that none does yet)."""
+    lines = [f"NOT VERIFIED: {p}" for p in check["problems"]]
+    if check["verified"]:
+        lines.append(f"Verified now: {check['systems']} chain(s) recomputed, records and guards intact.")
+    cp = check["checkpoint"]
+    if cp is None or not cp["covers"]:
+        lines.append("No signed checkpoint covers this report yet (see `refledger checkpoint`).")
+    else:
+        lines.append(f"Covered by checkpoint {cp['id']} of {cp['made_at'][:19].replace('T', ' ')} UTC "
+                     f"(key {cp['key_id']}, Merkle root {cp['merkle_root'][:16]}...): "
+                     f"{cp['covers']} of {cp['of']} system chain(s) as they were then.")
+    return lines
+
+
+def recorded_text(e: Mapping[str, Any]) -> str:
+    """Who entered an event, when (UTC) and its hash prefix; an entry made more than
+    ``LATE_ENTRY_DAYS`` after the day it records says how many days later (back-dating shows)."""
+    at = e.get("recorded_at")
+    parts = [e.get("recorded_by") or "-"]
+    if at is not None:
+        parts.append(fmt(at, DATETIME))
+        on = e.get("on") or e.get("performed_on")
+        if on is not None and (at.date() - on).days > LATE_ENTRY_DAYS:
+            parts.append(f"entered {(at.date() - on).days} days after")
+    if e.get("chain_hash"):
+        parts.append(f"#{short_hash(e['chain_hash'], 10)}")
+    return ", ".join(parts)

@@ -314,7 +314,7 @@ def logbook_sheets(book: Mapping[str, Any]) -> list[Sheet]:
     fact_cols = (Column("item", "item", TEXT, width=30), Column("value", "value", TEXT, width=70))
     events = [
         {**e, "void_text": void_text(e), "attachments": " ".join(e["attachments"]),
-         "dim": e["voided"] or e["kind"] == "void"}
+         "dim": e["voided"]}
         for e in book["events"]
     ]
     sheets = [

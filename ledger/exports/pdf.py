@@ -60,6 +60,8 @@ from ledger.exports.common import (
     TONNES,
     VOIDED_INK,
     fmt,
+    recorded_text,
+    report_lines,
     short_hash,
 )
 from ledger.exports.frames import void_text
@@ -561,6 +563,7 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
 
     story.append(CondPageBreak(120))
     story += _annual_notes(summary, st)
+    story += _integrity_paragraphs(summary, st)
     digest = summary["chain"]["digest"]
     return _build(
         Path(path), story,
@@ -568,7 +571,7 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
         running=f"Annual refrigerant loss summary {year} - {scope} - GWP basis {basis}",
         footer=(f"refledger {summary['version']} - generated {fmt(summary['generated_at'], DATETIME)}"
                 " - local regulation and the competent authority govern (see caution)"),
-        footer_mono=f"chain digest {digest} ({summary['chain']['systems']} systems)",
+        footer_mono=_unverified_mark(summary) + f"chain digest {digest} ({summary['chain']['systems']} systems)",
     )
 
 
@@ -668,6 +671,7 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
     story.append(_p(f"System logbook {ref}", st.title))
     story.append(_p(f"{system['description'] or system['application']} - {site['name']} "
                     f"({site['country']}) - period {period}", st.subtitle))
+    story += _not_verified(book, st)
     voided = sum(1 for e in events if e["voided"])
     pending = [o for o in book["obligations"] if o["state"] in ("missed", "open")]
     missed = [o for o in pending if o["state"] == "missed"]
@@ -733,20 +737,24 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
                       if note_cell else "")
             note_cell = _markup(f"{struck}<i>{escape(correction)}</i>", st.cell)
         rows.append([e["on"], str(e["id"]), label, qty, "; ".join(gas), "; ".join(outcome),
-                     "; ".join(who), note_cell])
+                     "; ".join(who), note_cell, recorded_text(e)])
     story.append(table(
-        [Col("date", DATE, 0.72), Col("#", weight=0.35), Col("kind", weight=1.15),
-         Col("kg", KG, 0.6), Col("gas, cylinder, reclaimed", weight=1.9),
-         Col("result, location, method, destination", weight=1.8),
-         Col("technician, company, certificate", weight=2.0), Col("note, correction", weight=2.2)],
-        rows, st, dimmed=[e["voided"] or e["kind"] == "void" for e in events],
+        [Col("date", DATE, 0.72), Col("#", weight=0.35), Col("kind", weight=1.05),
+         Col("kg", KG, 0.55), Col("gas, cylinder, reclaimed", weight=1.6),
+         Col("result, location, method, destination", weight=1.5),
+         Col("technician, company, certificate", weight=1.7), Col("note, correction", weight=1.9),
+         Col("recorded by, at (UTC), hash", weight=1.55)],
+        rows, st, dimmed=[e["voided"] for e in events],
     ))
     voids = [e for e in events if e["voided"]]
     if voids:
         story.append(Spacer(1, 4))
         story.append(_p("Struck-through rows are voided events: they stay in the record and count in "
-                        "no figure; the correction's event number and reason stand beside them.",
-                        st.small))
+                        "no figure; the correction's event number and reason stand beside them, and the "
+                        "correction itself is an ordinary row.", st.small))
+    story.append(_p("The last column shows who entered each event into the ledger, when (UTC) and the "
+                    "first digits of its chain hash; an entry made well after the day it records says "
+                    "how many days later.", st.small))
 
     if book.get("findings"):
         story.append(CondPageBreak(80))
@@ -796,6 +804,7 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
     story.append(_p(f"Chain head: {book['chain_head'] or '(no events)'} - the hash of the system's last "
                     f"recorded event ({book['events_total']} events). `refledger verify` recomputes "
                     "the chain; a matching head ties this paper to the ledger.", st.body))
+    story += _integrity_paragraphs(book, st)
     story.append(Spacer(1, 6))
     story.append(_caution_box(st))
     return _build(
@@ -804,8 +813,30 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
         running=f"System logbook {ref} - {period}",
         footer=(f"refledger {book['version']} - generated {fmt(book['generated_at'], DATETIME)}"
                 " - local regulation and the competent authority govern (see caution)"),
-        footer_mono=f"chain head {book['chain_head'] or '-'}",
+        footer_mono=_unverified_mark(book) + f"chain head {book['chain_head'] or '-'}",
     )
+
+
+def _not_verified(report: Mapping[str, Any], st: _Styles) -> list[Flowable]:
+    """A prominent block on the first page when the report's chains did not verify."""
+    check = report.get("integrity")
+    if not check or check["verified"]:
+        return []
+    lines = "<br/>".join(escape(f"NOT VERIFIED: {p}") for p in check["problems"][:8])
+    return [Spacer(1, 4), _markup(f'<font color="#b00020"><b>{lines}</b></font>', st.lead), Spacer(1, 4)]
+
+
+def _integrity_paragraphs(report: Mapping[str, Any], st: _Styles) -> list[Flowable]:
+    """The integrity lines (verification now, covering checkpoint) as paragraphs."""
+    check = report.get("integrity")
+    if not check:
+        return []
+    return [_p(line, st.body) for line in report_lines(check)]
+
+
+def _unverified_mark(report: Mapping[str, Any]) -> str:
+    check = report.get("integrity")
+    return "NOT VERIFIED - " if check and not check["verified"] else ""
 
 
 # --- generic list (due list) ------------------------------------------------------------------

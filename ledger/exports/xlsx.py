@@ -43,6 +43,7 @@ from ledger.exports.common import (
     fmt,
     is_blank,
     needs_guard,
+    report_lines,
     to_number,
 )
 from ledger.exports.frames import Sheet, annual_sheets, logbook_sheets
@@ -472,6 +473,12 @@ def _add_sheets(wb: Workbook, sheets: Sequence[Sheet]) -> None:
         write_table(_new_sheet(wb, sheet.name), sheet)
 
 
+def _integrity_notes(report: Mapping[str, Any]) -> list[tuple[str, str]]:
+    """The integrity lines of a report (NOT VERIFIED first) as notes rows."""
+    check = report.get("integrity")
+    return [("integrity", line) for line in report_lines(check)] if check else []
+
+
 def annual_notes(summary: Mapping[str, Any]) -> list[tuple[str, str]]:
     """The notes of an annual summary: scope, basis, conventions, methods, sources, caution."""
     scope = f"site {summary['site_filter']}" if summary.get("site_filter") else "whole estate"
@@ -482,6 +489,7 @@ def annual_notes(summary: Mapping[str, Any]) -> list[tuple[str, str]]:
          "for saturated HFCs, Annex II values for olefins); ar4/ar5/ar6 are the IPCC tables"),
         ("obligations evaluated on", fmt(summary["as_of"], DATE)),
         ("chain digest", f"{summary['chain']['digest']} over {summary['chain']['systems']} systems"),
+        *_integrity_notes(summary),
         ("generated", fmt(summary["generated_at"], DATETIME)),
         ("tool version", f"refledger {summary['version']}"),
     ]
@@ -530,7 +538,8 @@ def logbook_notes(book: Mapping[str, Any]) -> list[tuple[str, str]]:
         ("chain head", f"{book['chain_head'] or ''} (hash of the system's last recorded event; "
          f"{book['events_total']} events in the chain)"),
         ("voided events", "stay listed, struck through, with the correction's event and reason "
-         "beside them; they do not count in any figure"),
+         "beside them; they do not count in any figure; the correction is an ordinary row"),
+        *_integrity_notes(book),
         ("added for", "derived from the record: 'installation' on the in-service or retrofit day, "
          "'leak' while a found leak is open or on a day with a repair or a leak found, else "
          "'servicing'"),

@@ -423,18 +423,3 @@ def report_check(db: Database, *, site_code: str | None = None, system_ids: list
     return {"verified": not problems, "problems": problems, "digest": v.digest, "systems": v.systems,
             "heads": v.heads, "records_head": v.records_head, "checkpoint": cover, "covered_names": covered}
 
-
-def report_lines(check: Mapping[str, Any]) -> list[str]:
-    """The integrity lines every report prints: NOT VERIFIED first when anything failed, then
-    the chain digest and the checkpoint that covers the report (or that none does yet)."""
-    lines = [f"NOT VERIFIED: {p}" for p in check["problems"]]
-    if check["verified"]:
-        lines.append(f"Verified now: {check['systems']} chain(s) recomputed, records and guards intact.")
-    cp = check["checkpoint"]
-    if cp is None or not cp["covers"]:
-        lines.append("No signed checkpoint covers this report yet (see `refledger checkpoint`).")
-    else:
-        lines.append(f"Covered by checkpoint {cp['id']} of {cp['made_at'][:19].replace('T', ' ')} UTC "
-                     f"(key {cp['key_id']}, Merkle root {cp['merkle_root'][:16]}...): "
-                     f"{cp['covers']} of {cp['of']} system chain(s) as they were then.")
-    return lines

@@ -1006,6 +1006,8 @@ def logbook_data(
 def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[str, Any]:
     """A site's report check narrowed to one system's logbook: its own chain's problems and the
     site's record and guard problems, not its neighbours' chains."""
+    from ledger.services.integrity import heads_digest
+
     others = tuple(f"{n}: " for n in names if n != name) + tuple(f"checkpoint, {n}: " for n in names if n != name)
     problems = [p for p in check["problems"] if not p.startswith(others)]
     heads = {name: check["heads"][name]} if name in check["heads"] else {}
