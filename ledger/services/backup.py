@@ -36,6 +36,8 @@ TABLE_ORDER = (
     "detector_episode",
     "report_run",
     "filing",
+    "record_version",
+    "checkpoint",
 )
 
 
@@ -173,10 +175,7 @@ def restore_ledger(folder: Path, location: Location) -> BackupResult:
                     )
         checked = verify(db)
         if not checked.ok:
-            first = checked.breaks[0]
-            raise LedgerError(
-                f"restore: chain of {first.site}/{first.system} does not verify at event {first.event_id}"
-            )
+            raise LedgerError(f"restore: the restored ledger does not verify: {checked.problems()[0]}")
         if checked.digest != manifest["chain_heads_digest"]:
             raise LedgerError("restore: chain heads differ from the manifest's digest")
         return BackupResult(folder, counts, checked.digest)
