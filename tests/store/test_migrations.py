@@ -73,3 +73,47 @@ def test_commands_refuse_a_database_behind_the_head(tmp_path) -> None:  # type: 
     with pytest.raises(SchemaOutOfDate, match="refledger db upgrade"):
         with Database(loc).read():
             pass
+
+
+def test_upgrade_to_0006_chains_every_existing_record(location: Location) -> None:
+    """Records written before the record chain existed get their first version, and the
+    versions are the ones the ledger itself writes (same canonical form)."""
+    from datetime import date
+
+    from sqlalchemy import func, select
+
+    from ledger.services.integrity import verify
+    from ledger.services.recording import add_cylinder, add_site, add_system, add_technician
+    from ledger.store.tables import record_version
+    from ledger.units import parse_mass_mg
+
+    db = Database(location)
+    add_site(db, code="S", name="Site", country="DE")
+    add_technician(db, name="Ines Okafor", certificate="C-1", scheme="Scheme X", company="Cold Co",
+                   valid_from=date(2020, 1, 1))
+    add_cylinder(db, code="CY-1", refrigerant="R-134a", kind="virgin", tare_mg=parse_mass_mg("12 kg"))
+    add_system(db, site_code="S", tag="T", refrigerant="R-134a", charge_mg=parse_mass_mg("5 kg"),
+               application="comfort-cooling", in_service_on=date(2024, 1, 1), hermetic=True)
+    with db.read() as conn:
+        written = [r.body for r in conn.execute(select(record_version).order_by(record_version.c.id))]
+    db.close()
+    command.downgrade(alembic_config(location), "0003")
+    command.upgrade(alembic_config(location), "head")
+    db = Database(location)
+    with db.read() as conn:
+        rebuilt = [r.body for r in conn.execute(select(record_version).order_by(record_version.c.id))]
+        assert conn.execute(select(func.count()).select_from(record_version)).scalar_one() == 6
+
+    def without_time(body: str) -> str:
+        import json
+
+        doc = json.loads(body)
+        doc.pop("at")
+        return json.dumps(doc, sort_keys=True)
+
+    # the same six versions (site, company, technician, certificate, cylinder, system), in
+    # the migration's table order rather than the order they were written
+    assert sorted(map(without_time, rebuilt)) == sorted(map(without_time, written))
+    result = verify(db)
+    assert result.ok, result.problems()
+    db.close()
