@@ -6,10 +6,10 @@ Imports only the standard library, so the CLI can print ``CAUTION`` without load
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from datetime import date, datetime
 from decimal import ROUND_HALF_UP, Decimal
-from collections.abc import Mapping
 from typing import Any
 
 # The note every report carries (design §8): PDFs print it, spreadsheets put it on their notes
@@ -175,8 +175,9 @@ ART6_MAP: tuple[tuple[str, str, str], ...] = (
 
 
 def report_lines(check: Mapping[str, Any]) -> list[str]:
-    """The integrity lines every report prints (``integrity.report_check`` output): NOT VERIFIED first when anything failed, then
-    the chain digest and the checkpoint that covers the report (or that none does yet)."""
+    """The integrity lines every report prints from ``integrity.report_check`` output: NOT
+    VERIFIED first when anything failed, then the verification and the checkpoint that covers
+    the report (or that none does yet)."""
     lines = [f"NOT VERIFIED: {p}" for p in check["problems"]]
     if check["verified"]:
         lines.append(f"Verified now: {check['systems']} chain(s) recomputed, records and guards intact.")

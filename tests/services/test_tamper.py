@@ -25,6 +25,7 @@ from ledger.store.db import Database
 from ledger.store.repository import events_with_keys
 from ledger.store.tables import event, kept_obligation, kept_site
 from ledger.units import parse_mass_mg
+from tests.services.test_integrity import _drop_triggers as _drop_event_guards
 
 TECH = "Ines Okafor"  # invented demo name
 
@@ -43,15 +44,6 @@ def _ledger(db: Database) -> list[int]:
                                    mass_mg=parse_mass_mg(f"{day} kg"), technician=TECH)).event_id
         for day in (1, 2, 3, 4)
     ]
-
-
-def _drop_event_guards(db: Database) -> None:
-    with db.engine.begin() as conn:
-        if conn.dialect.name == "sqlite":
-            conn.execute(text("DROP TRIGGER event_no_update"))
-            conn.execute(text("DROP TRIGGER event_no_delete"))
-        else:
-            conn.execute(text("DROP TRIGGER event_append_only ON event"))
 
 
 def _checkpoint(db: Database, tmp_path: Path):  # type: ignore[no-untyped-def]
