@@ -91,3 +91,28 @@ def test_an_altered_checkpoint_file_fails(db, tmp_path: Path) -> None:  # type: 
     found = cp.load_checkpoint(db, str(tmp_path / "cp.json"))
     check = cp.check_signature(found, cp.load_public_key(key.public_path))
     assert not check.ok and "does not verify" in check.problems[0]
+
+
+def test_a_checkpoint_still_holds_after_a_move_to_another_database(db, tmp_path: Path) -> None:  # type: ignore[no-untyped-def]
+    from datetime import date
+
+    from ledger.services.backup import export_ledger, restore_ledger
+    from ledger.services.integrity import verify
+    from ledger.services.recording import add_site, add_system
+    from ledger.store.db import Database, locate
+    from ledger.units import parse_mass_mg
+
+    add_site(db, code="S", name="S", country="DE")
+    add_system(db, site_code="S", tag="A", refrigerant="R-134a", charge_mg=parse_mass_mg("5 kg"),
+               application="other", in_service_on=date(2024, 1, 1))
+    key = cp.new_key(tmp_path / "k")
+    cp.make_checkpoint(db, key_path=key.private_path, out=tmp_path / "cp.json")
+    export_ledger(db, tmp_path / "move")
+    target = locate(str(tmp_path / "moved.db"))
+    restore_ledger(tmp_path / "move", target)
+    moved = Database(target)
+    found = cp.load_checkpoint(moved, "1")
+    assert cp.check_signature(found, cp.load_public_key(key.public_path)).ok
+    result = verify(moved, checkpoint=found.statement)
+    assert result.ok, result.problems()
+    moved.close()
