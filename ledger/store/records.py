@@ -168,22 +168,19 @@ def _referenced(table: Table) -> dict[str, str]:
 
 def newest_fields(conn: Connection, table_name: str, row_ids: Sequence[int] | None = None) -> dict[int, dict[str, Any]]:
     """Row id -> the fields of its newest version (every row of the table, or some)."""
-    newest = (
-        select(func.max(record_version.c.id))
-        .where(record_version.c.table_name == table_name)
-        .group_by(record_version.c.row_id)
-    )
-    stmt = select(record_version.c.row_id, record_version.c.body).where(record_version.c.id.in_(newest))
-    out: dict[int, dict[str, Any]] = {}
+
+    def newest(where: Any) -> Any:
+        inner = (select(func.max(record_version.c.id)).where(record_version.c.table_name == table_name, where)
+                 .group_by(record_version.c.row_id))
+        return select(record_version.c.row_id, record_version.c.body).where(record_version.c.id.in_(inner))
+
     if row_ids is None:
-        rows: Iterable[Any] = conn.execute(stmt)
+        rows: list[Any] = list(conn.execute(newest(True)))
     else:
         wanted = sorted(set(row_ids))
         rows = [r for i in range(0, len(wanted), _IN_CHUNK)
-                for r in conn.execute(stmt.where(record_version.c.row_id.in_(wanted[i : i + _IN_CHUNK])))]
-    for row_id, body in rows:
-        out[row_id] = json.loads(body)["fields"]
-    return out
+                for r in conn.execute(newest(record_version.c.row_id.in_(wanted[i : i + _IN_CHUNK])))]
+    return {row_id: json.loads(body)["fields"] for row_id, body in rows}
 
 
 def head(conn: Connection) -> str:
