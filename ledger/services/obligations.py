@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import functools
 import hashlib
-import json
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import UTC, date, datetime
@@ -239,9 +238,12 @@ _KEPT_ROW_SKIP = frozenset({"id"})
 
 
 def _canon(values: Any) -> str:
-    from ledger.store.chain import _plain
-
-    return json.dumps(values, sort_keys=True, separators=(",", ":"), default=lambda v: str(_plain(v)))
+    """A stable text of plain values (dicts by sorted key); both sides of every comparison are
+    built from the same column types, so ``repr`` of dates and numbers is stable enough and
+    several times cheaper than JSON here."""
+    if isinstance(values, dict):
+        return repr(sorted(values.items()))
+    return repr([sorted(v.items()) if isinstance(v, dict) else v for v in values])
 
 
 def _row_dict(row: Any) -> dict[str, Any]:
