@@ -91,7 +91,7 @@ def verify(
                    f"{state}; heads digest {result.digest}")
         if found is not None and signed is not None:
             where = f"checkpoint {found.id}" if found.id is not None else f"checkpoint file {checkpoint_ref}"
-            verdict = "holds" if ok else "does NOT hold"
+            verdict = "holds" if signed.ok and not result.checkpoint_breaks else "does NOT hold"
             typer.echo(f"{where} of {found.made_at} (key {found.key_id}, signature checked against "
                        f"{signed.key_source}): {verdict}")
             if signed.ok and public_key is None:
