@@ -56,6 +56,10 @@ def test_key_checkpoint_and_verify_against_it(sqlite_location: Location, tmp_pat
     got = json.loads(bad.output)
     assert [b["what"] for b in got["checkpoint"]["breaks"]] == ["removed"]
     assert "trigger event_no_delete on table event is missing" in got["guards"]
+    # the logbook of that system refuses too: the repair duty the deleted event opened cannot vanish quietly
+    book = run(sqlite_location, "report", "logbook", "S/A", "--json")
+    assert book.exit_code == 1
+    assert "NOT VERIFIED: checkpoint, S/A: removed: the checkpoint covers 4 events, the chain now holds 3" in book.output
 
 
 def test_report_refuses_a_broken_chain_unless_allowed(sqlite_location: Location, tmp_path: Path) -> None:
@@ -88,3 +92,13 @@ def test_logbook_pdf_shows_who_entered_each_event_and_its_hash(sqlite_location: 
     assert book["integrity"]["verified"] is True
     assert book["integrity"]["digest"] == json.loads(run(sqlite_location, "verify", "--site", "S", "--json")
                                                      .output)["heads_digest"]
+
+
+def test_annual_summary_prints_the_digest_verify_prints(sqlite_location: Location) -> None:
+    _ledger(sqlite_location)
+    annual = run(sqlite_location, "report", "annual", "--year", "2024", "--json")
+    assert annual.exit_code == 0, annual.output
+    summary = json.loads(annual.output)
+    verified = json.loads(run(sqlite_location, "verify", "--json").output)
+    assert summary["chain"]["digest"] == verified["heads_digest"]
+    assert summary["integrity"]["verified"] and summary["integrity"]["checkpoint"] is None
