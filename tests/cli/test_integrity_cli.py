@@ -59,7 +59,8 @@ def test_key_checkpoint_and_verify_against_it(sqlite_location: Location, tmp_pat
     # the logbook of that system refuses too: the repair duty the deleted event opened cannot vanish quietly
     book = run(sqlite_location, "report", "logbook", "S/A", "--json")
     assert book.exit_code == 1
-    assert "NOT VERIFIED: checkpoint, S/A: removed: the checkpoint covers 4 events, the chain now holds 3" in book.output
+    want = "NOT VERIFIED: checkpoint, S/A: removed: the checkpoint covers 4 events, the chain now holds 3"
+    assert want in book.output
 
 
 def test_report_refuses_a_broken_chain_unless_allowed(sqlite_location: Location, tmp_path: Path) -> None:
