@@ -7,7 +7,8 @@
 * Signatures made by our code are verified with the `cryptography` package's own
   Ed25519PublicKey.verify, not with our wrapper.
 * Merkle tree: the shape of RFC 6962 section 2.1 (leaf = H(0x00 || d), node = H(0x01 || l || r),
-  split at the largest power of two smaller than n), computed here with hashlib by hand.
+  split at the largest power of two smaller than n), from memory (the RFC text was not read
+  here), computed with hashlib by hand.
 """
 
 from __future__ import annotations
