@@ -61,7 +61,7 @@ from ledger.rules.common import (
 REGIME = "gb"
 REGIME_VERSION = "gb-1"  # bump when a rule or constant here changes
 TITLE = "Great Britain: F-gas Regulation (EU) 517/2014 as retained, and HCFC leak checks"
-GWP_BASIS = "eu"
+GWP_BASIS = "gb"  # Reg. (EU) 517/2014 values as retained (docs/refrigerants.md)
 
 _FGAS = "Reg. (EU) 517/2014 as retained in GB"
 _ODS = "GB ozone-depleting substances rules (gov.uk leak-check guidance)"

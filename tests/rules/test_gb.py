@@ -174,7 +174,7 @@ def test_retired_hcfc_system_owes_nothing_after_retirement():
 
 
 def test_constants():
-    assert gb.GWP_BASIS == "eu"
+    assert gb.GWP_BASIS == "gb"
     names = {c.name for c in gb.CONSTANTS}
     assert "HCFC/CFC leak-check threshold, hermetically sealed" in names
     assert all(c.basis.citation for c in gb.CONSTANTS)

@@ -260,9 +260,10 @@ def test_annual_summary_from_the_database(db: Database) -> None:
     assert e["added_kg"] == Decimal("6.5")  # the voided 65 kg is not counted
     assert e["recovered_kg"] == Decimal(9)
     assert e["recovered_to"] == {"destruction": Decimal(7), "reclaim": Decimal(2)}
-    # R-448A EU GWP 1 387 (517/2014 Annex IV figure, reference notes) before rounding: 1386.6
+    # R-448A under the 2024/573 basis (Annex II olefins 0.501 / 1.37, reference notes
+    # "Checked in December 2026"): 1385.9961; t CO2e shown to the gram (6 places).
     gwp = REF.gwp("R-448A", "eu").value
-    assert e["co2e_t"] == Decimal("6.5") * gwp / 1000
+    assert e["co2e_t"] == (Decimal("6.5") * gwp / 1000).quantize(Decimal("0.000001"))
     smb = s["scope1"][1]
     # hand-worked simplified balance: PS 6.5 + (CD 8 - RD 7) = 7.5 kg
     assert smb["emissions_kg"] == Decimal("7.5")
