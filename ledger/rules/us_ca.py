@@ -289,15 +289,18 @@ def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLik
 def first_record_year(histories: Sequence[SystemHistory]) -> int | None:
     """The first calendar year the ledger holds a record of these systems.
 
-    Placements in service count only where nothing else was recorded: a system placed in
-    service long before its records were moved into the ledger does not make the ledger
-    answer for reports of years it holds nothing about.
+    A system's placement in service, and what was recorded with it on the same day (a
+    detection system fitted at installation), count only where nothing else was recorded: a
+    system placed in service long before its records were moved into the ledger does not
+    make the ledger answer for reports of years it holds nothing about.
     """
+    placed_on = {(h.system.id, e.performed_on) for h in histories for e in h.events
+                 if e.kind is EventKind.IN_SERVICE}
     others = [e.performed_on.year for h in histories for e in h.events
-              if e.kind is not EventKind.IN_SERVICE]
+              if (h.system.id, e.performed_on) not in placed_on]
     if others:
         return min(others)
-    placed = [e.performed_on.year for h in histories for e in h.events]
+    placed = [day.year for _, day in placed_on]
     return min(placed) if placed else None
 
 
