@@ -71,6 +71,7 @@ COMMANDS: dict[str, tuple[str, str | None]] = {
     "due": ("due_cmd", None),
     "leak-rate": ("due_cmd", None),
     "rules": ("due_cmd", None),
+    "exposure": ("exposure_cmd", None),
     "verify": ("verify_cmd", None),
     "import": ("import_cmd", None),
     "export": ("backup_cmd", None),

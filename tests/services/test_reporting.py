@@ -130,8 +130,16 @@ def test_annual_totals_reconcile_with_events(histories: list[SystemHistory], yea
     smb = s["scope1"][1]
     assert smb["method"] == em.SIMPLIFIED_MATERIAL_BALANCE
     assert smb["inputs"].get("ps_kg", Decimal(0)) == s["estate"]["service_added_kg"]
-    # the material balance is the sum of the systems' net losses
-    assert s["scope1"][0]["emissions_kg"] == s["estate"]["net_loss_kg"]  # whole mg: exact
+    # the material balance, per refrigerant, adds up to the systems' net losses (HCFC parts
+    # included); the scope 1 total counts only Kyoto-gas parts of 0 or more, the rest is
+    # flagged (US EPA 2014 guidance / GHG Protocol: negative balances are not netted)
+    mb = s["scope1"][0]
+    parts = [p["emissions_kg"] for p in mb["by_refrigerant"] + mb["outside_scope1"]]
+    assert sum(parts, Decimal(0)) == s["estate"]["net_loss_kg"]  # whole mg: exact
+    assert mb["emissions_kg"] == sum((p["emissions_kg"] for p in mb["by_refrigerant"]
+                                      if p["emissions_kg"] >= 0), Decimal(0))
+    negative = [p for p in mb["by_refrigerant"] if p["emissions_kg"] < 0]
+    assert len([f for f in mb["flags"] if "negative balance" in f]) == len(negative)
 
 
 def test_chronic_leaker_and_obligations_counted() -> None:
