@@ -530,11 +530,11 @@ def _result(
 ) -> MethodResult:
     kyoto = [p for p in parts if p.refrigerant not in ods]
     outside = tuple(p for p in parts if p.refrigerant in ods)
-    flags = [f"{p.refrigerant}{'' if p.category is None else f' ({p.category})'}: negative balance "
+    flags = [f"{label}: {p.refrigerant}{'' if p.category is None else f' ({p.category})'}: negative balance "
              f"{p.emissions_kg.normalize():f} kg; not netted against the other refrigerants "
              "(check for missing additions or recoveries counted twice)"
              for p in kyoto if p.emissions_kg < 0]
-    flags += [f"{p.refrigerant}: ozone-depleting (HCFC/CFC), reported outside scope 1: "
+    flags += [f"{label}: {p.refrigerant}: ozone-depleting (HCFC/CFC), reported outside scope 1: "
               f"{p.emissions_kg.normalize():f} kg" for p in outside]
     counted = [p for p in kyoto if p.emissions_kg >= 0]
     with localcontext(_EXACT):
