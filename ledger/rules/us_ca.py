@@ -31,7 +31,6 @@ from ledger.domain.records import (
     Finding,
     Obligation,
     ObligationKind,
-    ObligationStatus,
     SystemHistory,
     SystemState,
     Tier,
