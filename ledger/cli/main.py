@@ -71,6 +71,7 @@ COMMANDS: dict[str, tuple[str, str | None]] = {
     "due": ("due_cmd", None),
     "leak-rate": ("due_cmd", None),
     "rules": ("due_cmd", None),
+    "exposure": ("exposure_cmd", None),
     "verify": ("verify_cmd", None),
     "checkpoint": ("verify_cmd", None),
     "key": ("verify_cmd", "key_app"),

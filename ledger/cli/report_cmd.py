@@ -210,6 +210,15 @@ def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
     )
     typer.echo(f"chain digest {summary['chain']['digest']} ({summary['chain']['systems']} systems)")
     _echo_integrity(summary["integrity"])
+    rec = summary["scope1_recommended"]
+    typer.echo(f"scope 1, recommended method: {rec['method']} ({rec['why']})")
+    for flag in dict.fromkeys(f for m in summary["scope1"] for f in m["flags"]):
+        typer.echo(f"scope 1, flagged: {flag}")
+    if e["prohibited_top_ups"]:
+        typer.echo(f"{e['prohibited_top_ups']} top-up(s) a servicing prohibition forbade, "
+                   f"{fmt(e['prohibited_top_up_kg'], KG)} kg:")
+        for t in summary["prohibited_top_ups"]:
+            typer.echo(f"  {t['system']}: {t['warning']}")
     typer.echo(CAUTION)
 
 

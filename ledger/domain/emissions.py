@@ -189,6 +189,7 @@ class Flow:
     charge_revised_mg: int = 0  # net change of the full charge by charge-revised events
     operating_mg_days: int = 0  # sum over days in service of that day's full charge
     in_service_days: int = 0
+    pn_mg: int = 0  # PN: charged into new units (initial fill by cylinder weights, else CN)
 
     @property
     def service_added_mg(self) -> int:
@@ -222,6 +223,7 @@ class _FlowBuilder:
     charge_revised_mg: int = 0
     operating_mg_days: int = 0
     in_service_days: int = 0
+    pn_mg: int = 0
 
     def freeze(self) -> Flow:
         return Flow(
@@ -241,6 +243,7 @@ class _FlowBuilder:
             charge_revised_mg=self.charge_revised_mg,
             operating_mg_days=self.operating_mg_days,
             in_service_days=self.in_service_days,
+            pn_mg=self.pn_mg,
         )
 
 
@@ -326,7 +329,13 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
     if in_service:
         f = flow(refrigerant)
         f.charge_start_mg = f.last_charge_mg = charge
-    recovered_today: dict[tuple[date, str], int] = {}
+    # Recovered from a unit since its last addition: counted in RD when the unit is retired
+    # or retrofitted later (the whole charge is often recovered a day or more before).
+    recovered_since_add: dict[str, int] = {}
+    # (day, full charge, replaced): a new unit's PN is its full charge until an initial fill
+    # weighed out of a cylinder (before / after weights) is recorded on its in-service or
+    # retrofit day; a fill typed as a mass may be a trim of a factory pre-charge.
+    pending_pn: dict[str, tuple[date, int, bool]] = {}
     for e in events:
         if e.performed_on < start:
             continue
@@ -340,16 +349,20 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
                 charge = e.charge_mg or 0
                 f = flow(refrigerant)
                 f.new_charge_mg += charge
+                f.pn_mg += charge
+                pending_pn[f.refrigerant] = (on, charge, False)
                 f.last_charge_mg = charge
             case EventKind.RETROFIT:
                 close(on)
                 old = flow(refrigerant)
                 old.retired_charge_mg += charge
-                old.retired_recovered_mg += recovered_today.get((on, old.refrigerant), 0)
+                old.retired_recovered_mg += recovered_since_add.pop(old.refrigerant, 0)
                 refrigerant, charged_on = e.refrigerant or refrigerant, on
                 charge = e.charge_mg or charge
                 new = flow(refrigerant)
                 new.new_charge_mg += charge
+                new.pn_mg += charge
+                pending_pn[new.refrigerant] = (on, charge, False)
                 new.last_charge_mg = charge
             case EventKind.CHARGE_REVISED:
                 close(on)
@@ -360,8 +373,16 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
             case EventKind.ADD:
                 f = flow(refrigerant)
                 f.added_mg += e.mass_mg or 0
+                recovered_since_add.pop(f.refrigerant, None)
                 if on == charged_on:
                     f.initial_fill_mg += e.mass_mg or 0
+                    pending = pending_pn.get(f.refrigerant)
+                    weighed = e.cylinder_before_mg is not None and e.cylinder_after_mg is not None
+                    if weighed and pending is not None and pending[0] == on:
+                        if not pending[2]:
+                            f.pn_mg -= pending[1]
+                            pending_pn[f.refrigerant] = (on, pending[1], True)
+                        f.pn_mg += e.mass_mg or 0
             case EventKind.RECOVER | EventKind.RETIRE:
                 f = flow(refrigerant)
                 mass = e.mass_mg or 0
@@ -369,15 +390,14 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
                 if mass:
                     where = e.destination or "unknown"
                     f.recovered_to[where] = f.recovered_to.get(where, 0) + mass
-                key = (on, f.refrigerant)
                 if e.kind is EventKind.RETIRE:
                     close(on)
                     f.retired_charge_mg += charge
-                    f.retired_recovered_mg += recovered_today.get(key, 0) + mass
+                    f.retired_recovered_mg += recovered_since_add.pop(f.refrigerant, 0) + mass
                     f.last_charge_mg = charge
                     in_service = False
                 else:
-                    recovered_today[key] = recovered_today.get(key, 0) + mass
+                    recovered_since_add[f.refrigerant] = recovered_since_add.get(f.refrigerant, 0) + mass
             case _:
                 pass
     if in_service:
@@ -479,9 +499,13 @@ class MethodResult:
     source: str
     assumptions: tuple[str, ...]
     parts: tuple[MethodPart, ...]
-    emissions_kg: Decimal
+    emissions_kg: Decimal  # scope 1 total: Kyoto-gas parts with a balance of 0 or more
     co2e_t: Decimal
     factors: tuple[ScreeningFactors, ...] = ()
+    # HCFC/CFC parts: the GHG Protocol covers Kyoto gases only, so they are reported beside
+    # scope 1, never in it.
+    outside_scope1: tuple[MethodPart, ...] = ()
+    flags: tuple[str, ...] = ()  # e.g. a negative balance, which is shown and not netted
 
     def inputs_kg(self) -> dict[str, Decimal]:
         """Each input summed over refrigerants (kg)."""
@@ -502,12 +526,22 @@ ASSUMPTIONS_COMMON = (
 def _result(
     method: str, label: str, formula: str, source: str, assumptions: Sequence[str],
     parts: Sequence[MethodPart], factors: Sequence[ScreeningFactors] = (),
+    ods: frozenset[str] = frozenset(),
 ) -> MethodResult:
+    kyoto = [p for p in parts if p.refrigerant not in ods]
+    outside = tuple(p for p in parts if p.refrigerant in ods)
+    flags = [f"{label}: {p.refrigerant}{'' if p.category is None else f' ({p.category})'}: negative balance "
+             f"{p.emissions_kg.normalize():f} kg; not netted against the other refrigerants "
+             "(check for missing additions or recoveries counted twice)"
+             for p in kyoto if p.emissions_kg < 0]
+    flags += [f"{label}: {p.refrigerant}: ozone-depleting (HCFC/CFC), reported outside scope 1: "
+              f"{p.emissions_kg.normalize():f} kg" for p in outside]
+    counted = [p for p in kyoto if p.emissions_kg >= 0]
     with localcontext(_EXACT):
-        emissions = sum((p.emissions_kg for p in parts), Decimal(0))
-        tonnes = sum((p.co2e_t for p in parts), Decimal(0))
-    return MethodResult(method, label, formula, source, tuple(assumptions), tuple(parts), emissions,
-                        tonnes, tuple(factors))
+        emissions = sum((p.emissions_kg for p in counted), Decimal(0))
+        tonnes = sum((p.co2e_t for p in counted), Decimal(0))
+    return MethodResult(method, label, formula, source, tuple(assumptions), tuple(kyoto), emissions,
+                        tonnes, tuple(factors), outside, tuple(flags))
 
 
 def _by_refrigerant(flows: Iterable[Flow]) -> dict[str, list[Flow]]:
@@ -517,7 +551,8 @@ def _by_refrigerant(flows: Iterable[Flow]) -> dict[str, list[Flow]]:
     return grouped
 
 
-def material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal]) -> MethodResult:
+def material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal],
+                     ods: frozenset[str] = frozenset()) -> MethodResult:
     """Material-balance estimate over flows, per refrigerant.
 
     Args:
@@ -548,15 +583,17 @@ def material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal]) -> Metho
             "a revision of a full charge moves the balance by the revision",
         ),
         parts,
+        ods=ods,
     )
 
 
-def simplified_material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal]) -> MethodResult:
+def simplified_material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal],
+                                ods: frozenset[str] = frozenset()) -> MethodResult:
     """Simplified material-balance estimate over flows, per refrigerant."""
     parts = []
     for name, group in _by_refrigerant(flows).items():
         cn = kg(sum(f.new_charge_mg for f in group))
-        pn = cn
+        pn = kg(sum(f.pn_mg for f in group))
         ps = kg(sum(f.service_added_mg for f in group))
         cd = kg(sum(f.retired_charge_mg for f in group))
         rd = kg(sum(f.retired_recovered_mg for f in group))
@@ -570,18 +607,22 @@ def simplified_material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal
         "E = (PN - CN) + PS + (CD - RD)",
         f"{GUIDANCE}, section 2.4",
         ASSUMPTIONS_COMMON + (
-            "PN (bought to charge new units) = CN (their full charge); a retrofit charges new "
-            "units of the new gas and retires the old gas",
+            "PN (bought to charge new units) = the initial fill weighed out of cylinders on the "
+            "in-service or retrofit day, else CN (their full charge); a retrofit "
+            "charges new units of the new gas and retires the old gas",
             "PS = additions other than initial charges",
-            "RD = recovered on the day a unit was retired or retrofitted",
+            "RD = recovered from a unit since its last addition, up to the day it was retired "
+            "or retrofitted (the charge is often recovered a day or more before)",
             "recovery from units that stay in service is not an input of this method",
         ),
         parts,
+        ods=ods,
     )
 
 
 def screening(
-    flows: Iterable[Flow], gwp: Mapping[str, Decimal], categories: Mapping[int, ScreeningCategory]
+    flows: Iterable[Flow], gwp: Mapping[str, Decimal], categories: Mapping[int, ScreeningCategory],
+    ods: frozenset[str] = frozenset(),
 ) -> MethodResult:
     """Screening estimate with Table 7.9 factors, per refrigerant and equipment row.
 
@@ -618,15 +659,44 @@ def screening(
         ),
         parts,
         [used[c] for c in sorted(used, key=lambda c: c.value)],
+        ods=ods,
     )
 
 
 def scope1(
-    flows: Sequence[Flow], gwp: Mapping[str, Decimal], categories: Mapping[int, ScreeningCategory]
+    flows: Sequence[Flow], gwp: Mapping[str, Decimal], categories: Mapping[int, ScreeningCategory],
+    ods: frozenset[str] = frozenset(),
 ) -> tuple[MethodResult, MethodResult, MethodResult]:
-    """All three estimates over the same flows (material balance, simplified, screening)."""
+    """All three estimates over the same flows (material balance, simplified, screening).
+
+    Args:
+        ods: refrigerants holding an HCFC or CFC; their estimates are reported outside scope 1
+            (GHG Protocol: Kyoto gases only).
+    """
     return (
-        material_balance(flows, gwp),
-        simplified_material_balance(flows, gwp),
-        screening(flows, gwp, categories),
+        material_balance(flows, gwp, ods),
+        simplified_material_balance(flows, gwp, ods),
+        screening(flows, gwp, categories, ods),
     )
+
+
+def recommended_method(flows: Sequence[Flow]) -> tuple[str, str]:
+    """Which method suits the data the ledger holds, and why (US EPA 2014 guidance, ch. 2).
+
+    The material balance needs the change of refrigerant held in stock (cylinders), which the
+    ledger does not track; the simplified material balance needs what was charged into new
+    units, added in service and recovered from retired units, which the ledger records; the
+    screening method is for when such records are missing.
+    """
+    recorded = any(f.added_mg or f.recovered_mg or f.new_charge_mg or f.retired_charge_mg
+                   for f in flows)
+    if recorded:
+        return (SIMPLIFIED_MATERIAL_BALANCE,
+                "the ledger records every charge of new units, each top-up and the recovery from "
+                "retired or retrofitted units, but not the stock of refrigerant in cylinders, "
+                "which the material balance needs: the simplified material balance (US EPA 2014, "
+                "section 2.4) uses exactly the records held")
+    return (SCREENING,
+            "no charges, top-ups or recoveries are recorded in the period: only the screening "
+            "method (US EPA 2014, section 2.1.1) can estimate emissions, from full charges and "
+            "default factors")

@@ -638,6 +638,14 @@ def _annual_notes(summary: Mapping[str, Any], st: _Styles) -> list[Flowable]:
         out.append(_markup(f"<b>Scope 1, {escape(m['label'].lower())}</b>: {escape(m['formula'])}. "
                            f"Source: {escape(m['source'])}. Assumptions: "
                            f"{escape('; '.join(m['assumptions']))}.", st.body))
+    rec = summary.get("scope1_recommended")
+    if rec:
+        out.append(_markup(f"<b>Scope 1, recommended method</b>: {escape(rec['method'])}: "
+                           f"{escape(rec['why'])}.", st.body))
+    for flag in dict.fromkeys(f for m in summary["scope1"] for f in m.get("flags", ())):
+        out.append(_markup(f"<b>Scope 1, flagged</b>: {escape(flag)}.", st.body))
+    for top_up in summary.get("prohibited_top_ups", ()):
+        out.append(_markup(f"<b>Servicing</b>: {escape(top_up['warning'])}.", st.body))
     for n in summary["notes"]:
         out.append(_markup(f"<b>GWP</b>: {escape(n)}", st.body))
     out.append(Spacer(1, 6))

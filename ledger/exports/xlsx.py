@@ -485,8 +485,9 @@ def annual_notes(summary: Mapping[str, Any]) -> list[tuple[str, str]]:
     items = [
         ("report", f"Annual refrigerant loss summary {summary['year']} ({scope})"),
         ("period", f"{fmt(summary['period']['from'], DATE)} to {fmt(summary['period']['to'], DATE)}"),
-        ("GWP basis", f"{summary['basis']}: 100-year GWPs; 'eu' is the EU F-gas convention (AR4 "
-         "for saturated HFCs, Annex II values for olefins); ar4/ar5/ar6 are the IPCC tables"),
+        ("GWP basis", f"{summary['basis']}: 100-year GWPs; 'eu' is the EU F-gas convention of "
+         "Reg. (EU) 2024/573 (Annex I/II values), 'gb' that of 517/2014 as retained in GB; "
+         "ar4/ar5/ar6 are the IPCC tables"),
         ("obligations evaluated on", fmt(summary["as_of"], DATE)),
         ("chain digest", f"{summary['chain']['digest']} over {summary['chain']['systems']} systems"),
         *_integrity_notes(summary),
@@ -503,6 +504,12 @@ def annual_notes(summary: Mapping[str, Any]) -> list[tuple[str, str]]:
                 f"k {f['k_percent']} %, x {f['x_percent']} %/yr, y {f['y_percent']} %, "
                 f"z {f['z_percent']} %. Source: {f['source']} [{f['confidence']}]",
             ))
+    rec = summary.get("scope1_recommended")
+    if rec:
+        items.append(("scope 1: recommended method", f"{rec['method']}: {rec['why']}"))
+    items += [("scope 1: flagged", f) for f in dict.fromkeys(
+        f for m in summary["scope1"] for f in m.get("flags", ()))]
+    items += [("servicing prohibited", t["warning"]) for t in summary.get("prohibited_top_ups", ())]
     items += [("GWP note", n) for n in summary["notes"]]
     items.append(("caution", CAUTION))
     return items

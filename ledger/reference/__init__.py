@@ -34,8 +34,11 @@ __all__ = [
 ]
 
 BASES: tuple[str, ...] = (
-    "eu",  # EU F-gas convention: AR4 for saturated HFCs/PFCs (Annex I), Annex II values for
-    #        olefins, the 517/2014 Annex IV figures for non-fluorinated gases (propane 3, ...)
+    "eu",  # EU F-gas convention of Reg. (EU) 2024/573: Annex I values (AR4 for saturated
+    #        HFCs, PFC-116 12 400), Annex II values for olefins (R-1234yf 0.501, R-1234ze(E)
+    #        1.37), the 517/2014 Annex IV figures for non-fluorinated gases (propane 3, ...)
+    "gb",  # Reg. (EU) 517/2014 as retained in Great Britain: Annex I (AR4), its Annex II
+    #        olefin values (R-1234yf 4, R-1234ze(E) 7, from memory), Annex IV for the rest
     "ar4",  # IPCC AR4 WG1 Table 2.14, 100-year (California RMP; US AIM Act too, from memory)
     "ar5",  # IPCC AR5 WG1 Table 8.A.1, 100-year, without climate-carbon feedback
     "ar6",  # IPCC AR6 WG1 Table 7.SM.7, 100-year

@@ -838,10 +838,13 @@ def periodic_check_obligations(
             f"repair the leak found{where} by the {what} of {leak.performed_on.isoformat()} "
             f"({a.repair_rule or f'within {a.repair_days} days'})")
 
-    # Follow-up checks after repairs.
+    # Follow-up checks after repairs: only for equipment that must be leak-checked (2024/573
+    # Art 4(5) "für die gemäß Artikel 5 Absatz 1 eine Dichtheitskontrolle vorgeschrieben ist";
+    # 517/2014 Art 3(3) "Cuando un aparato deba someterse a control de fugas"). The repair duty
+    # above covers every in-scope system.
     for repair in (e for e in events if e.kind is EventKind.REPAIR):
         a = assessment_at(repair.performed_on)
-        if a is None or not a.in_scope or a.follow_up_basis is None:
+        if a is None or not a.in_scope or a.follow_up_basis is None or a.cadence is None:
             continue
         earliest = repair.performed_on + timedelta(days=follow_up_earliest_days)
         due = add_months(repair.performed_on, 1)

@@ -2,16 +2,18 @@
 
 Implements, for each system (see docs/rules/eu.md for sources, marks and what is left out):
 
-* Art 5(1) periodic leak checks. Two tests, the shorter interval wins: the Annex I part of
-  the charge in t CO2e (5 / 50 / 500 t -> every 12 / 6 / 3 months) and the Annex II section 1
-  part (unsaturated HFCs/HCFOs) in kg (1 / 10 / 100 kg -> 12 / 6 / 3 months, from memory). A
+* Art 5 periodic leak checks (thresholds and exemptions in Art 5(1), intervals in a later
+  paragraph of Art 5 whose number was not read). Two tests, the shorter interval wins: the
+  Annex I part of the charge in t CO2e (5 / 50 / 500 t -> every 12 / 6 / 3 months) and the
+  Annex II section 1 part (unsaturated HFCs/HCFOs) in kg (1 / 10 / 100 kg -> 12 / 6 / 3
+  months, secondary source). A
   fitted leak detection system doubles the interval. Hermetically sealed equipment is exempt
   under 10 t CO2e (Annex I) or 2 kg (Annex II s.1); in residential buildings under 3 kg.
 * Art 6 leak detection system where the charge is >= 500 t CO2e or >= 100 kg Annex II s.1,
   and its own check every 12 months (from memory, carried over from 517/2014).
 * Art 4(5) repair of a found leak (the law says "without undue delay"; we show 14 days as a
-  site-policy deadline) and a follow-up check at least 24 h after and within one month of
-  each repair.
+  site-policy deadline) and, for equipment that must be leak-checked under Art 5(1), a
+  follow-up check at least 24 h after and within one month of each repair.
 
 The regulation applies from 11 March 2024; duties falling due earlier are left to the law of
 that time (Reg. (EU) 517/2014). Each constant's basis names the source it was read from and
@@ -59,7 +61,7 @@ from ledger.rules.common import (
 )
 
 REGIME = "eu"
-REGIME_VERSION = "eu-1"  # bump when a rule or constant here changes
+REGIME_VERSION = "eu-2"  # bump when a rule or constant here changes
 TITLE = "Regulation (EU) 2024/573 on fluorinated greenhouse gases"
 GWP_BASIS = "eu"
 
@@ -70,11 +72,13 @@ B_APPLIES = Basis(f"{_REG} (date of application)", Confidence.SECONDARY,
 B_SCOPE = Basis(f"{_REG} Art 5(1)", Confidence.CHECKED,
                 "leak checks cover Annex I gases from 5 t CO2e and Annex II section 1 gases "
                 "from 1 kg; other substances are outside this regulation's leak-check duty")
-B_TIERS = Basis(f"{_REG} Art 5(1)", Confidence.SECONDARY,
+B_TIERS = Basis(f"{_REG} Art 5", Confidence.SECONDARY,
                 "CO2e tiers, intervals and their doubling with a leak detection system from the "
-                "German Environment Agency FAQ; the article wording is not yet checked")
-B_ANNEX_II = Basis(f"{_REG} Art 5(1)", Confidence.MEMORY,
-                   "Annex II section 1 kg tiers and intervals from memory")
+                "German Environment Agency FAQ and trade guidance; thresholds are in Art 5(1), "
+                "the intervals in a later paragraph of Art 5 whose number was not read")
+B_ANNEX_II = Basis(f"{_REG} Art 5", Confidence.SECONDARY,
+                   "Annex II section 1: \"ab 1 kg alle 12 Monate … ab 10 kg alle 6 … ab 100 kg "
+                   "alle 3\", doubled with a leak detection system (bfs-kaelte-klima.de)")
 B_HERMETIC = Basis(f"{_REG} Art 5(1)", Confidence.CHECKED,
                    "hermetically sealed and labelled equipment")
 B_RESIDENTIAL = Basis(f"{_REG} Art 5(1)", Confidence.CHECKED,
@@ -89,9 +93,10 @@ B_DETECTION_CHECK = Basis(f"{_REG} Art 6", Confidence.MEMORY,
 B_REPAIR = Basis(f"{_REG} Art 4(5)", Confidence.POLICY,
                  "the law says 'without undue delay'; the 14 days shown are a site-policy "
                  "deadline, not a legal one")
-B_FOLLOW_UP = Basis(f"{_REG} Art 4(5)", Confidence.SECONDARY,
-                    "at least 24 h of operation after and within one month of the repair "
-                    "(trade press quoting the article)")
+B_FOLLOW_UP = Basis(f"{_REG} Art 4(5)", Confidence.CHECKED,
+                    "for equipment that must be leak-checked under Art 5(1): \"frühestens nach "
+                    "Ablauf einer Betriebszeit von 24 Stunden, spätestens jedoch innerhalb eines "
+                    "Monats nach der Reparatur\" (German text quoted by Landesinnung Kälte-Klima)")
 
 APPLIES_FROM = date(2024, 3, 11)  # earlier windows belong to 517/2014 (regime gb's text)
 

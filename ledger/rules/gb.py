@@ -6,14 +6,15 @@ Implements, for each system (see docs/rules/gb.md for sources, marks and what is
   mixtures containing them) of 5 t CO2e or more is checked every 12 months, from 50 t every 6,
   from 500 t every 3; a leak detection system doubles each interval. CO2e = charge kg x the
   mixture's GWP (Annex IV method: all components counted) / 1000. Hermetically sealed and
-  labelled equipment under 10 t CO2e is exempt (Art 4(2)).
+  labelled equipment under 10 t CO2e is exempt (Art 4(1), second subparagraph).
 * Art 5: a leak detection system from 500 t CO2e, checked every 12 months.
-* Art 3(2), 3(3): repair without undue delay (14 days shown, site policy) and a check within
-  one month after the repair (an immediate re-check counts).
+* Art 3(3): repair without undue delay (14 days shown, site policy) and, for equipment that
+  must be leak-checked, a check within one month after the repair (an immediate re-check
+  counts).
 * Ozone-depleting (HCFC/CFC) equipment, by kg of the ozone-depleting part: from 3 kg (6 kg if
   hermetically sealed) every 12 months, from 30 kg every 6, from 300 kg every 3; repair within
-  14 days; re-test within one month (gov.uk guidance). A mixture tested both ways takes the
-  shorter interval.
+  14 days; re-test within one month (gov.uk guidance; Reg. (EC) 1005/2009 Art 23(2) as
+  retained). A mixture tested both ways takes the shorter interval.
 
 517/2014 applied from 1 January 2015; duties falling due earlier are not listed.
 """
@@ -59,36 +60,42 @@ from ledger.rules.common import (
 )
 
 REGIME = "gb"
-REGIME_VERSION = "gb-1"  # bump when a rule or constant here changes
+REGIME_VERSION = "gb-2"  # bump when a rule or constant here changes
 TITLE = "Great Britain: F-gas Regulation (EU) 517/2014 as retained, and HCFC leak checks"
-GWP_BASIS = "eu"
+GWP_BASIS = "gb"  # Reg. (EU) 517/2014 values as retained (docs/refrigerants.md)
 
 _FGAS = "Reg. (EU) 517/2014 as retained in GB"
-_ODS = "GB ozone-depleting substances rules (gov.uk leak-check guidance)"
+_ODS = "Reg. (EC) 1005/2009 Art 23(2) as retained in GB (gov.uk ODS leak-check guidance)"
 
-B_APPLIES = Basis(f"{_FGAS} Art 27", Confidence.MEMORY, "applies from 1 January 2015 (from memory)")
+B_APPLIES = Basis(f"{_FGAS} Art 27", Confidence.SECONDARY,
+                  "applies from 1 January 2015 (IHK Rostock: \"Seit dem 01.01.2015 gilt die "
+                  "Verordnung (EU) Nr. 517/2014\")")
 B_SCOPE = Basis(f"{_FGAS} Art 4(1)", Confidence.CHECKED,
                 "fluorinated greenhouse gases of Annex I, or mixtures containing them, from "
                 "5 t CO2e")
 B_TIERS = Basis(f"{_FGAS} Art 4(3)", Confidence.CHECKED,
                 "5 / 50 / 500 t CO2e: every 12 / 6 / 3 months, 24 / 12 / 6 with a leak "
                 "detection system")
-B_HERMETIC = Basis(f"{_FGAS} Art 4(2)", Confidence.CHECKED,
-                   "hermetically sealed and labelled equipment under 10 t CO2e (paragraph number "
-                   "from memory)")
+B_HERMETIC = Basis(f"{_FGAS} Art 4(1)", Confidence.CHECKED,
+                   "hermetically sealed and labelled equipment under 10 t CO2e (gov.uk); the "
+                   "exemption is the second subparagraph of Art 4(1), Art 4(2) being the "
+                   "equipment list (inferred from Art 5(1)'s wording)")
 B_DETECTION = Basis(f"{_FGAS} Art 5(1)", Confidence.CHECKED, "from 500 t CO2e")
 B_DETECTION_CHECK = Basis(f"{_FGAS} Art 5(3)", Confidence.CHECKED,
-                          "checked at least every 12 months (paragraph number from memory)")
-B_REPAIR = Basis(f"{_FGAS} Art 3(2)", Confidence.POLICY,
+                          "\"mindestens einmal alle 12 Monate kontrolliert\" (gesetze.legal)")
+B_REPAIR = Basis(f"{_FGAS} Art 3(3)", Confidence.POLICY,
                  "the law says 'without undue delay'; the 14 days shown are a site-policy "
                  "deadline, not a legal one")
 B_FOLLOW_UP = Basis(f"{_FGAS} Art 3(3)", Confidence.CHECKED,
-                    "checked within one month after the repair")
-B_ODS_TIERS = Basis(_ODS, Confidence.SECONDARY,
+                    "where the equipment must be leak-checked: \"en el plazo de un mes tras la "
+                    "reparación\" (517/2014 Art 3(3), Spanish text)")
+B_ODS_TIERS = Basis(_ODS, Confidence.CHECKED,
                     "HCFC/CFC equipment: 3 kg (6 kg hermetically sealed) / 30 kg / 300 kg: every "
-                    "12 / 6 / 3 months")
-B_ODS_REPAIR = Basis(_ODS, Confidence.SECONDARY, "repair within 14 days")
-B_ODS_FOLLOW_UP = Basis(_ODS, Confidence.SECONDARY, "re-test within one month of the repair")
+                    "12 / 6 / 3 months (gov.uk: \"12 months if … 3kg or more … 6 months … 30kg "
+                    "… 3 months … 300kg\")")
+B_ODS_REPAIR = Basis(_ODS, Confidence.CHECKED, "\"repair it within 14 days\" (gov.uk)")
+B_ODS_FOLLOW_UP = Basis(_ODS, Confidence.CHECKED,
+                        "\"repeat the test within one month\" (gov.uk)")
 
 APPLIES_FROM = date(2015, 1, 1)
 

@@ -57,15 +57,16 @@ from ledger.rules.common import (
 )
 
 REGIME = "us-82f"
-REGIME_VERSION = "us-82f-1"  # bump when a rule or constant here changes
+REGIME_VERSION = "us-82f-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 82 Subpart F: ozone-depleting refrigerants, appliances of 50 lb and up"
 GWP_BASIS = "ar4"
 
 ODS_CLASSES = frozenset({"HCFC", "CFC"})  # class II / class I refrigerants
 
-B_APPLIES = Basis("40 CFR 82.157(a)", Confidence.SECONDARY,
-                  "applies since 10 April 2020 to appliances with 50 lb or more of an "
-                  "ozone-depleting refrigerant")
+B_APPLIES = Basis("40 CFR 82.157(a)", Confidence.CHECKED,
+                  "\"As of April 10, 2020, this section applies only to appliances with a full "
+                  "charge of 50 or more pounds of any class I or class II refrigerant\" (eCFR "
+                  "text; 85 FR 14150)")
 B_THRESHOLDS = Basis("40 CFR 82.157(c)(2)", Confidence.CHECKED,
                      "20 % commercial refrigeration, 30 % industrial process refrigeration, "
                      "10 % comfort cooling and other appliances")

@@ -14,8 +14,9 @@ marks and what is left out:
   of 1 500 lb or more: at installation for systems installed from 2026, by 1 January 2027 for
   systems installed 2017-2025 (secondary / from memory).
 
-Citations are to the Subpart and the 2024 final rule (89 FR 82682) because the section
-numbers were not checked.
+Citations name the sections a secondary source gives (leak repair 40 CFR 84.106, with
+inspections in 84.106(g), records 84.106(l) and reports 84.106(m); automatic leak detection
+84.108); the section texts themselves were not read (docs/rules/us-84c.md).
 """
 
 from __future__ import annotations
@@ -64,11 +65,13 @@ from ledger.rules.common import (
 from ledger.rules.us_82f import is_ods
 
 REGIME = "us-84c"
-REGIME_VERSION = "us-84c-1"  # bump when a rule or constant here changes
+REGIME_VERSION = "us-84c-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 84 Subpart C: HFC refrigerants above GWP 53, appliances of 15 lb and up"
 GWP_BASIS = "ar4"
 
 _SUBPART = "40 CFR 84 Subpart C (89 FR 82682)"
+_REPAIR = "40 CFR 84.106"  # leak repair; section per Hixson (EH&S consultancy), Apr 2025
+_ALD = "40 CFR 84.108"  # automatic leak detection; same source
 
 B_SCOPE = Basis(_SUBPART, Confidence.SECONDARY,
                 "from 1 January 2026, appliances with 15 lb or more of a refrigerant with GWP "
@@ -78,19 +81,27 @@ B_GWP = Basis(_SUBPART, Confidence.MEMORY, "GWP values of the AIM Act framework 
 B_THRESHOLDS = Basis(_SUBPART, Confidence.SECONDARY,
                      "20 % commercial refrigeration, 30 % industrial process refrigeration, "
                      "10 % comfort cooling, transport and other")
-B_REPAIR = Basis(_SUBPART, Confidence.MEMORY, "repair within 30 days, as in 40 CFR 82.157(d)")
-B_INITIAL = Basis(_SUBPART, Confidence.MEMORY,
-                  "initial verification test after the repair, as in 40 CFR 82.157(e)")
-B_FOLLOW_UP = Basis(_SUBPART, Confidence.MEMORY,
-                    "follow-up verification test within 10 days, as in 40 CFR 82.157(e)")
-B_INSPECTION = Basis(_SUBPART, Confidence.MEMORY,
-                     "leak inspections after an exceedance, as in 40 CFR 82.157(g)")
-B_REPORT = Basis(_SUBPART, Confidence.MEMORY,
-                 "125 % of the full charge added in a calendar year: report by 1 March")
-B_DETECTION = Basis(_SUBPART, Confidence.MEMORY,
+B_REPAIR = Basis(_REPAIR, Confidence.SECONDARY,
+                 "\"Repair within 30 days (120 days if an industrial process shutdown is "
+                 "required)\" (Hixson, citing 84.106)")
+B_INITIAL = Basis(_REPAIR, Confidence.SECONDARY,
+                  "\"Verification test on each repair must be within 30 days\" (Hixson)")
+B_FOLLOW_UP = Basis(_REPAIR, Confidence.SECONDARY,
+                    "\"Follow-up verification test must be performed within 10 days of initial "
+                    "verification test\" (Hixson)")
+B_INSPECTION = Basis(f"{_REPAIR}(g)", Confidence.MEMORY,
+                     "leak inspections after an exceedance, as in 40 CFR 82.157(g); the 500 lb "
+                     "and 12-month figures were not found for Part 84")
+B_REPORT = Basis(f"{_REPAIR}(m)", Confidence.MEMORY,
+                 "125 % of the full charge added in a calendar year: report by 1 March (not "
+                 "found in a source for Part 84)")
+B_DETECTION_SIZE = Basis(_ALD, Confidence.SECONDARY,
+                         "automatic leak detection for commercial / industrial process "
+                         "refrigeration \"with a charge of 1,500 pounds or more\" (HVACInsider)")
+B_DETECTION = Basis(_ALD, Confidence.MEMORY,
                     "automatic leak detection for commercial / industrial process refrigeration "
-                    "of 1 500 lb or more: at installation from 2026, by 1 January 2027 for "
-                    "systems installed 2017-2025 (secondary source, dates from memory)")
+                    "of 1 500 lb or more (secondary): at installation from 2026, by 1 January "
+                    "2027 for systems installed 2017-2025 (dates from memory)")
 
 APPLIES_FROM = date(2026, 1, 1)
 GWP_ABOVE = Decimal(53)
@@ -122,7 +133,7 @@ CONSTANTS: tuple[Constant, ...] = (
              B_INSPECTION),
     Constant("chronic-leak report from", REPORT_PERCENT, "% of full charge per calendar year",
              B_REPORT),
-    Constant("automatic leak detection from", DETECTION_LB, "lb", B_DETECTION),
+    Constant("automatic leak detection from", DETECTION_LB, "lb", B_DETECTION_SIZE),
     Constant("automatic leak detection: systems installed from", DETECTION_INSTALLED_FROM,
              "date", B_DETECTION),
     Constant("automatic leak detection: systems installed before 2026, by",

@@ -3,12 +3,18 @@
 Implements, for systems holding more than 50 lb of a refrigerant with GWP 150 or more (AR4),
 see docs/rules/us-ca.md for sources, marks and what is left out:
 
-* 95385 leak inspections by system size: 2 000 lb or more quarterly with an automatic leak
-  detection system, monthly without; 200 to under 2 000 lb quarterly; over 50 to under 200 lb
-  annually. Read as one inspection per calendar month / quarter / year, due on its last day.
+* 95385 leak inspections by system size: 2 000 lb or more monthly (95385(a)(1)(A), which
+  names year-round systems inside an enclosed building; outdoor systems fall under (a)(3),
+  not read), waived where an automatic leak detection system is used ((a)(1)(B)); 200 to
+  under 2 000 lb quarterly, also waived with automatic leak detection (95385(b)); over 50 to
+  under 200 lb annually (95385(c)). Read as one inspection per calendar month / quarter /
+  year, due on its last day. (Until us-ca-2 a quarterly duty was listed for 2 000 lb or more
+  with automatic leak detection; no such duty was found in the text, so it is gone.)
 * 95386 repair within 14 days of finding a leak (the 45-day extensions are not modelled).
 * Annual report by 1 March for large (largest system 2 000 lb or more) and medium (200 to
-  1 999 lb) facilities; section number 95388 and the date are not checked (from memory).
+  1 999 lb) facilities, one per calendar year from the first year the ledger holds a record
+  of the site; an unfiled report stays overdue when the next one falls due (date from a
+  secondary source; the section number is not confirmed).
 """
 
 from __future__ import annotations
@@ -25,7 +31,6 @@ from ledger.domain.records import (
     Finding,
     Obligation,
     ObligationKind,
-    ObligationStatus,
     SystemHistory,
     SystemState,
     Tier,
@@ -60,26 +65,43 @@ from ledger.rules.common import (
 )
 
 REGIME = "us-ca"
-REGIME_VERSION = "us-ca-1"  # bump when a rule or constant here changes
+REGIME_VERSION = "us-ca-2"  # bump when a rule or constant here changes
 TITLE = "California refrigerant management program (17 CCR 95380 ff.)"
 GWP_BASIS = "ar4"
 
 B_SCOPE = Basis("17 CCR 95380 ff.", Confidence.SECONDARY,
                 "systems with more than 50 lb of a refrigerant with GWP 150 or more (AR4)")
-B_START = Basis("17 CCR 95380 ff.", Confidence.MEMORY,
-                "program in force from 2011; earlier periods are not listed")
-B_SIZE = Basis("17 CCR 95380 ff.", Confidence.SECONDARY,
+B_OVER = Basis("17 CCR 95385(c)", Confidence.CHECKED,
+               "\"full charge greater than 50, but less than 200 pounds\" (justia, read Dec 2026)")
+B_START = Basis("17 CCR 95385", Confidence.CHECKED,
+                "\"after January 1, 2011, the owner or operator … must conduct a leak "
+                "inspection\" (justia, read Dec 2026); earlier periods are not listed")
+B_SIZE = Basis("17 CCR 95383(a)-(b), 95385(a)-(b)", Confidence.CHECKED,
                "facility size by its largest system: large 2 000 lb or more, medium 200 to "
-               "1 999 lb, small over 50 to under 200 lb")
-B_INSPECTION = Basis("17 CCR 95385", Confidence.CHECKED,
-                     "2 000 lb or more quarterly with automatic leak detection, monthly without; "
-                     "200 to under 2 000 lb quarterly; over 50 to under 200 lb annually "
-                     "(calendar-period reading is ours)")
+               "1 999 lb, small over 50 to under 200 lb (\"greater than or equal to 2,000 "
+               "pounds\"; justia, read Dec 2026)")
+B_INSPECTION_LARGE = Basis("17 CCR 95385(a)(1)(A)", Confidence.CHECKED,
+                           "2 000 lb or more: monthly, for a refrigerant circuit \"located "
+                           "entirely within an enclosed building\"; outdoor systems fall under "
+                           "(a)(3), which was not read (calendar-month reading is ours)")
+B_ALD_WAIVER_LARGE = Basis("17 CCR 95385(a)(1)(B)", Confidence.CHECKED,
+                           "\"A monthly leak inspection … is not required … if an automatic leak "
+                           "detection system … is used\" (casetext / justia, read Dec 2026)")
+B_INSPECTION_MEDIUM = Basis("17 CCR 95385(b)", Confidence.CHECKED,
+                            "200 to under 2 000 lb: \"once every three months\" (calendar-quarter "
+                            "reading is ours)")
+B_ALD_WAIVER_MEDIUM = Basis("17 CCR 95385(b)", Confidence.CHECKED,
+                            "\"A leak inspection … is not required pursuant to this subsection (b) "
+                            "if an automatic leak detection system … is used\" (justia, read Dec 2026)")
+B_INSPECTION_SMALL = Basis("17 CCR 95385(c)", Confidence.CHECKED,
+                           "over 50 to under 200 lb: \"must annually conduct a leak inspection\"")
+B_INSPECTION = B_INSPECTION_LARGE  # the basis of the section as a whole, for findings
 B_REPAIR = Basis("17 CCR 95386", Confidence.CHECKED,
-                 "repair within 14 days of detection (45-day extensions not modelled)")
-B_REPORT = Basis("17 CCR 95388", Confidence.MEMORY,
-                 "annual report by 1 March for large and medium facilities; section number "
-                 "and date not checked against the text")
+                 "repair within 14 days of detection (45-day extensions not modelled; CARB "
+                 "RMP page: \"leak repair within 14 days of detection\")")
+B_REPORT = Basis("17 CCR 95380 ff. (annual report)", Confidence.SECONDARY,
+                 "annual report by 1 March for large and medium facilities (CARB list-serve "
+                 "2011 and CARB 2014 notice); the section number is not confirmed")
 
 PROGRAM_FROM = date(2011, 1, 1)
 GWP_FROM = Decimal(150)
@@ -92,15 +114,18 @@ REPORT_DAY = (3, 1)  # 1 March, for the previous calendar year
 CONSTANTS: tuple[Constant, ...] = (
     Constant("program in force from", PROGRAM_FROM, "date", B_START),
     Constant("refrigerant GWP from (AR4)", GWP_FROM, "", B_SCOPE),
-    Constant("system charge over", SYSTEM_OVER_LB, "lb", B_SCOPE),
+    Constant("system charge over", SYSTEM_OVER_LB, "lb", B_OVER),
     Constant("medium size from", MEDIUM_LB, "lb", B_SIZE),
     Constant("large size from", LARGE_LB, "lb", B_SIZE),
-    Constant("inspection, ≥ 2 000 lb with automatic leak detection", 3, "months (calendar "
-             "quarter)", B_INSPECTION),
-    Constant("inspection, ≥ 2 000 lb without automatic leak detection", 1, "months (calendar "
-             "month)", B_INSPECTION),
-    Constant("inspection, 200 to < 2 000 lb", 3, "months (calendar quarter)", B_INSPECTION),
-    Constant("inspection, > 50 to < 200 lb", 12, "months (calendar year)", B_INSPECTION),
+    Constant("inspection, ≥ 2 000 lb without automatic leak detection (inside a building)", 1,
+             "months (calendar month)", B_INSPECTION_LARGE),
+    Constant("inspection, ≥ 2 000 lb with automatic leak detection", "none (waived)", "",
+             B_ALD_WAIVER_LARGE),
+    Constant("inspection, 200 to < 2 000 lb without automatic leak detection", 3,
+             "months (calendar quarter)", B_INSPECTION_MEDIUM),
+    Constant("inspection, 200 to < 2 000 lb with automatic leak detection", "none (waived)", "",
+             B_ALD_WAIVER_MEDIUM),
+    Constant("inspection, > 50 to < 200 lb", 12, "months (calendar year)", B_INSPECTION_SMALL),
     Constant("repair within", REPAIR_DAYS, "days of detection", B_REPAIR),
     Constant("annual report due", "1 March (large and medium facilities)", "", B_REPORT),
 )
@@ -135,20 +160,31 @@ def size_of(full_charge_mg: int) -> str:
     return "small"
 
 
+def covered(reference: ReferenceLike, state: SystemState) -> bool:
+    """Whether the program covers a system in a state (in service, GWP ≥ 150, over 50 lb)."""
+    return state.in_service and _excluded(reference, state) is None
+
+
 def cadence_of(reference: ReferenceLike, state: SystemState) -> Cadence | None:
-    """The inspection cadence of a system in a state, or None when not covered (95385)."""
-    if not state.in_service or _excluded(reference, state) is not None:
+    """The inspection cadence of a system in a state (95385).
+
+    None when the program does not cover the system, and when an automatic leak detection
+    system waives the inspections of a system of 200 lb or more (95385(a)(1)(B), (b)).
+    """
+    if not covered(reference, state):
         return None
     if at_least_lb(state.full_charge_mg, LARGE_LB):
         if state.detection_system:
-            return Cadence("quarterly leak inspection (≥ 2 000 lb, automatic leak detection)",
-                           B_INSPECTION, period=QUARTER)
-        return Cadence("monthly leak inspection (≥ 2 000 lb, no automatic leak detection)",
-                       B_INSPECTION, period=MONTH)
+            return None
+        return Cadence("monthly leak inspection (≥ 2 000 lb, no automatic leak detection; "
+                       "applies to a circuit inside an enclosed building)", B_INSPECTION_LARGE,
+                       period=MONTH)
     if at_least_lb(state.full_charge_mg, MEDIUM_LB):
-        return Cadence("quarterly leak inspection (200 to < 2 000 lb)", B_INSPECTION,
-                       period=QUARTER)
-    return Cadence("annual leak inspection (> 50 to < 200 lb)", B_INSPECTION, period=YEAR)
+        if state.detection_system:
+            return None
+        return Cadence("quarterly leak inspection (200 to < 2 000 lb, no automatic leak "
+                       "detection)", B_INSPECTION_MEDIUM, period=QUARTER)
+    return Cadence("annual leak inspection (> 50 to < 200 lb)", B_INSPECTION_SMALL, period=YEAR)
 
 
 _MONTHS = {MONTH: 1, QUARTER: 3, YEAR: 12}
@@ -170,11 +206,16 @@ def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Ti
     if excluded is not None:
         return Tier(REGIME, excluded[0], None, B_SCOPE, excluded[1])
     cadence = cadence_of(reference, state)
-    assert cadence is not None and cadence.period is not None
     size = size_of(state.full_charge_mg)
     band = {"large": "≥ 2 000 lb", "medium": "200–2 000 lb", "small": "50–200 lb"}[size]
     designation = resolve(reference, state.refrigerant)
-    return Tier(REGIME, band, _MONTHS[cadence.period], B_INSPECTION,
+    if cadence is None:
+        waiver = B_ALD_WAIVER_LARGE if size == "large" else B_ALD_WAIVER_MEDIUM
+        return Tier(REGIME, band, None, waiver,
+                    f"{designation}, {fmt_lb(state.full_charge_mg)}: automatic leak detection "
+                    f"used, periodic inspections waived ({waiver.citation})")
+    assert cadence.period is not None
+    return Tier(REGIME, band, _MONTHS[cadence.period], cadence.basis,
                 f"{designation}, {fmt_lb(state.full_charge_mg)}: {cadence.label}")
 
 
@@ -208,7 +249,7 @@ def _system_obligations(history: SystemHistory, reference: ReferenceLike,
                                   None if w.met_by is None else w.met_by.id, detail))
 
     for leak in leak_found_events(events):
-        if leak.performed_on < PROGRAM_FROM or cadence_at(leak.performed_on) is None:
+        if leak.performed_on < PROGRAM_FROM or not covered(reference, timeline.state(leak.performed_on)):
             continue
         due = leak.performed_on + timedelta(days=REPAIR_DAYS)
         met = first_event(events, (EventKind.REPAIR,), on_or_after=leak.performed_on)
@@ -244,23 +285,47 @@ def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLik
     return best
 
 
+def first_record_year(histories: Sequence[SystemHistory]) -> int | None:
+    """The first calendar year the ledger holds a record of these systems.
+
+    A system's placement in service, and what was recorded with it on the same day (a
+    detection system fitted at installation), count only where nothing else was recorded: a
+    system placed in service long before its records were moved into the ledger does not
+    make the ledger answer for reports of years it holds nothing about.
+    """
+    placed_on = {(h.system.id, e.performed_on) for h in histories for e in h.events
+                 if e.kind is EventKind.IN_SERVICE}
+    others = [e.performed_on.year for h in histories for e in h.events
+              if (h.system.id, e.performed_on) not in placed_on]
+    if others:
+        return min(others)
+    placed = [day.year for _, day in placed_on]
+    return min(placed) if placed else None
+
+
 def _report_obligations(site_code: str, histories: Sequence[SystemHistory],
                         reference: ReferenceLike, as_of: date) -> list[Obligation]:
-    # Only the next report is listed; a filing recorded with `refledger report filed` meets it
-    # (services.obligations.apply_filings).
+    # One report per calendar year of a large or medium facility, from the first year the
+    # ledger holds records of the site; an unfiled one stays overdue after the next falls due
+    # (as the 125 % report of 82.157(j) does). A filing recorded with `refledger report filed`
+    # meets it (services.obligations.apply_filings).
     month, day = REPORT_DAY
-    year = as_of.year - 1 if as_of <= date(as_of.year, month, day) else as_of.year
-    if year < PROGRAM_FROM.year:
+    last = as_of.year - 1 if as_of <= date(as_of.year, month, day) else as_of.year
+    first = first_record_year(histories)
+    if first is None:
         return []
-    largest = _largest_in_year(histories, reference, year, as_of)
-    if largest is None or size_of(largest[0]) == "small":
-        return []
-    due = date(year + 1, month, day)
-    return [Obligation(REGIME, ObligationKind.REPORT, due, B_REPORT, ObligationStatus.OPEN, None,
-                       site_code, None, None, None,
-                       f"annual report for {year} ({size_of(largest[0])} facility: largest system "
-                       f"{largest[1]}, {fmt_lb(largest[0])}); record the filing with "
-                       "`refledger report filed`")]
+    out: list[Obligation] = []
+    for year in range(max(first, PROGRAM_FROM.year), last + 1):
+        largest = _largest_in_year(histories, reference, year, as_of)
+        if largest is None or size_of(largest[0]) == "small":
+            continue
+        due = date(year + 1, month, day)
+        out.append(Obligation(REGIME, ObligationKind.REPORT, due, B_REPORT,
+                              status_of(due, None, as_of), None, site_code, None, None, None,
+                              f"annual report for {year} ({size_of(largest[0])} facility: largest "
+                              f"system {largest[1]}, {fmt_lb(largest[0])}); record the filing "
+                              "with `refledger report filed`"))
+    return out
 
 
 def compute_obligations(

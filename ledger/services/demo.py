@@ -63,6 +63,7 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
             raise Conflict("db: already holds these sites; use an empty database or --replace")
         as_of = DEMO_AS_OF
         correct_at_the_desk(db)
+        file_past_reports(db)
         detectors = records / "detectors"
         reviews = load_detectors(db, location, detectors) if detectors.is_dir() else []
         listing = due(db, as_of=as_of)
@@ -131,6 +132,18 @@ def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
         repairs=result.repairs,
     )
     return path
+
+
+def file_past_reports(db: Database) -> None:
+    """The Sacramento office filed its California annual reports for 2023 and 2024, not 2025.
+
+    The unfiled 2025 report stays overdue beside the open 2026 one (17 CCR 95380 ff.).
+    """
+    from ledger.services.recording import record_filing
+
+    for year, filed_on in ((2023, date(2024, 2, 20)), (2024, date(2025, 2, 24))):
+        record_filing(db, site_code="CA-SAC", regime="us-ca", period_year=year, filed_on=filed_on,
+                      reference=f"CARB-RMP-{year}-0417", recorded_by="Dana Whitfield")
 
 
 def correct_at_the_desk(db: Database) -> None:

@@ -198,7 +198,7 @@ def load_evidence(
 # unmet period stays the first and later periods collapse into it. Otherwise the site is
 # computed again (and kept again). Detector episodes and filings are applied on every run.
 
-KEEP_FORMAT = "2"  # bump when what is kept, or how it is read back, changes
+KEEP_FORMAT = "3"  # bump when what is kept, or how it is read back, changes
 
 
 # The code kept results depend on: a change to any of these files makes every kept row stale,

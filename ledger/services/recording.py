@@ -26,6 +26,7 @@ from ledger.domain.records import (
     Severity,
     Site,
     System,
+    SystemState,
 )
 from ledger.domain.state import state_of
 from ledger.errors import Conflict, InputError, Rejected
@@ -340,9 +341,28 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
             "attachments": " ".join(draft.attachments),
             "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
         }
+        findings = [*findings, *servicing_warnings(reference, the_site, sys_, state, draft.kind,
+                                                   draft.performed_on, values["reclaimed"])]
         event_id, head = repo.append_event(conn=conn, values=values)
     warnings = tuple(f for f in findings if f.severity is Severity.WARNING)
     return Logged(event_id, head, warnings, site_code, tag)
+
+
+def servicing_warnings(reference: Any, site: Site, system: System, state: SystemState, kind: EventKind,
+                       on: date, reclaimed: bool) -> list[Finding]:
+    """Warnings for a top-up that a servicing prohibition of the site's regimes forbids.
+
+    The event is recorded all the same (the ledger records what was done); the warning shows
+    on the command line, in the logbook and in the annual summary.
+    """
+    if kind is not EventKind.ADD:
+        return []
+    from ledger.reference.servicing import load_servicing
+    from ledger.rules.servicing import top_up_findings
+
+    probe = Event(id=0, system_id=system.id, kind=kind, performed_on=on, reclaimed=reclaimed)
+    return top_up_findings(system, site.regimes, state, probe, reference, load_servicing(),
+                           f"{site.code}/{system.tag} {on.isoformat()}")
 
 
 def placed_on(events: Sequence[Event]) -> date | None:

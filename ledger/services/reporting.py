@@ -15,7 +15,7 @@ import io
 import pickle
 from collections import defaultdict
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, field, fields
 from datetime import UTC, date, datetime
 from decimal import ROUND_HALF_UP, Context, Decimal, localcontext
 from typing import Any
@@ -295,6 +295,8 @@ class AnnualPart:
     obligation_rows: list[dict[str, Any]]
     notes: list[str]
     heads: list[tuple[str, str | None]]  # ("SITE/TAG", chain head) of every system of the site
+    # top-ups a servicing prohibition forbade, in the year: (site/tag, day, mg, warning)
+    prohibited: list[tuple[str, date, int, str]] = field(default_factory=list)
 
 
 def annual_part(
@@ -422,7 +424,19 @@ def annual_part(
         obligation_rows=obligation_rows,
         notes=list(dict.fromkeys(gwp.notes)),
         heads=[(f"{h.site.code}/{h.system.tag}", chain_head_of(h.events)) for h in histories],
+        prohibited=_prohibited(histories, reference, start, end),
     )
+
+
+def _prohibited(histories: Sequence[SystemHistory], reference: Reference, start: date,
+                end: date) -> list[tuple[str, date, int, str]]:
+    from ledger.reference.servicing import load_servicing
+    from ledger.rules.servicing import prohibited_top_ups
+
+    bans = load_servicing()
+    return [(f"{h.site.code}/{h.system.tag}", e.performed_on, e.mass_mg or 0, f.message)
+            for h in sorted(histories, key=lambda h: h.system.tag)
+            for e, f in prohibited_top_ups(h, reference, bans, start, end)]
 
 
 def assemble_annual(
@@ -467,6 +481,8 @@ def assemble_annual(
         "chronic": sum(p.chronic for p in parts),
         **counts,
         "met_late": sum(p.met_late for p in parts),
+        "prohibited_top_ups": sum(len(p.prohibited) for p in parts),
+        "prohibited_top_up_kg": em.kg(sum(mg for p in parts for _, _, mg, _ in p.prohibited)),
     }
 
     # scope 1: the three methods read sums only, so one merged flow per refrigerant and
@@ -482,7 +498,10 @@ def assemble_annual(
     for i, ((name, category), sums) in enumerate(screened.items()):
         merged_flows.append(em.Flow(-1 - i, name, period_days, **dict(zip(_SUMMED_FLOW_FIELDS, sums, strict=True))))
         categories[-1 - i] = em.ScreeningCategory(category)
-    methods = em.scope1(merged_flows, {n: gwp(n) for n in grouped}, categories)
+    ods = frozenset(n for n in grouped if n in reference.refrigerants
+                    and reference.chem_classes(n) & {"HCFC", "CFC"})
+    methods = em.scope1(merged_flows, {n: gwp(n) for n in grouped}, categories, ods)
+    recommended, why = em.recommended_method(merged_flows)
     monthly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     yearly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     for p in parts:
@@ -526,9 +545,14 @@ def assemble_annual(
         "refrigerants": refrigerants,
         "estate": estate,
         "scope1": [method_json(m) for m in methods],
+        "scope1_recommended": {"method": recommended, "why": why},
         "monthly": monthly,
         "trend": trend,
         "obligations": obligation_rows,
+        "prohibited_top_ups": [
+            {"system": label, "on": on, "added_kg": em.kg(mg), "warning": message}
+            for p in parts for label, on, mg, message in p.prohibited
+        ],
         "notes": list(dict.fromkeys(notes + gwp.notes)),
         "chain": _digest_of_heads(heads),
         "generated_at": generated_at,
@@ -619,6 +643,13 @@ def method_json(m: em.MethodResult) -> dict[str, Any]:
         ],
         "emissions_kg": rounded(m.emissions_kg, KG_PLACES),
         "co2e_t": rounded(m.co2e_t, CO2E_PLACES),
+        "outside_scope1": [
+            {"refrigerant": p.refrigerant, "category": p.category,
+             "emissions_kg": rounded(p.emissions_kg, KG_PLACES), "gwp": p.gwp,
+             "co2e_t": rounded(p.co2e_t, CO2E_PLACES)}
+            for p in m.outside_scope1
+        ],
+        "flags": list(m.flags),
     }
 
 
@@ -995,7 +1026,8 @@ def logbook_data(
         "obligations": obs,
         "leak_rates": leak_rates,
         "findings": [
-            {"source": f.source, "message": f.message, "severity": f.severity.value} for f in findings
+            {"source": f.source, "message": f.message, "severity": f.severity.value}
+            for f in [*findings, *_servicing_findings(history, reference, from_on, to_on)]
         ],
         "chain_head": chain_head_of(history.events),
         "events_total": len(history.events),
@@ -1019,6 +1051,14 @@ def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[st
     narrowed = {k: v for k, v in check.items() if k != "covered_names"}
     return {**narrowed, "problems": problems, "verified": not problems, "heads": heads, "systems": len(heads),
             "digest": heads_digest(heads), "checkpoint": cover}
+
+
+def _servicing_findings(history: SystemHistory, reference: Reference, from_on: date | None,
+                        to_on: date) -> list[Finding]:
+    from ledger.reference.servicing import load_servicing
+    from ledger.rules.servicing import prohibited_top_ups
+
+    return [f for _, f in prohibited_top_ups(history, reference, load_servicing(), from_on, to_on)]
 
 
 def _period(history: SystemHistory, from_on: date | None, to_on: date | None) -> date:

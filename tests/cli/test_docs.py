@@ -32,6 +32,29 @@ def test_cli_reference_is_current() -> None:
     assert done.returncode == 0, "docs/cli.md is stale: run `.venv/bin/cog -r docs/cli.md`\n" + done.stderr
 
 
+@pytest.mark.parametrize("page", [*(f"rules/{code}.md" for code in sorted(REGIMES)), "exposure.md"])
+def test_generated_rule_tables_are_current(page: str) -> None:
+    # docs/rules/<code>.md and docs/exposure.md embed tables cog builds from the constants and
+    # data the engine uses (ledger.cli.reference), so `refledger rules` and the docs agree.
+    text = (ROOT / "docs" / page).read_text(encoding="utf-8")
+    assert "[[[cog" in text, f"docs/{page} has no generated table"
+    done = subprocess.run(
+        [sys.executable, "-m", "cogapp", "--check", str(ROOT / "docs" / page)],
+        capture_output=True, text=True, cwd=ROOT,
+    )
+    assert done.returncode == 0, f"docs/{page} is stale: run `.venv/bin/cog -r docs/{page}`\n" + done.stderr
+
+
+def test_rules_command_and_rule_pages_agree() -> None:
+    from ledger.services.queries import rules_view
+
+    for view in rules_view():
+        text = (ROOT / "docs" / "rules" / f"{view['code']}.md").read_text(encoding="utf-8")
+        assert f"Rule version `{view['version']}`" in text
+        for c in view["constants"]:
+            assert f"| {c['name']} |" in text, (view["code"], c["name"])
+
+
 def test_every_command_is_in_the_reference() -> None:
     text = (ROOT / "docs" / "cli.md").read_text(encoding="utf-8")
     for path in command_paths():

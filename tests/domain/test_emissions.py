@@ -253,3 +253,67 @@ def test_flows_reconcile_with_events(h: SystemHistory, year: int) -> None:
     days = sum(1 for i in range((end - start).days + 1)
                if state_of(h.events, start + timedelta(days=i)).in_service) if flows else 0
     assert sum(f.in_service_days for f in flows) == days
+
+
+# --- scope 1 fixes (issue 14; US EPA 2014 "Greenhouse Gas Inventory Guidance: Direct Fugitive
+# Emissions from Refrigeration, Air Conditioning, Fire Suppression, and Industrial Gases",
+# section 2.4, formula as quoted in reference-notes.md "Methods") ----------------------------
+
+
+def _retrofit_history():  # type: ignore[no-untyped-def]
+    from ledger.units import parse_mass_mg as m
+
+    unit = System(7, "DE-1", "FRZ", application=Application.COMMERCIAL_REFRIGERATION,
+                  equipment_form=EquipmentForm.CONDENSING_UNIT)
+    return SystemHistory(SITE, unit, (
+        Event(id=1, system_id=7, kind=EventKind.IN_SERVICE, performed_on=date(2013, 10, 21),
+              refrigerant="R-404A", charge_mg=m("12 kg")),
+        # the whole charge recovered the day before the retrofit (as in the demo scenario)
+        Event(id=2, system_id=7, kind=EventKind.RECOVER, performed_on=date(2025, 3, 17),
+              mass_mg=m("10.85 kg"), destination="reclaim"),
+        Event(id=3, system_id=7, kind=EventKind.RETROFIT, performed_on=date(2025, 3, 18),
+              refrigerant="R-449A", charge_mg=m("11.5 kg")),
+        # the new charge weighed out of a cylinder: 12.1 kg drawn for an 11.5 kg charge
+        Event(id=4, system_id=7, kind=EventKind.ADD, performed_on=date(2025, 3, 18),
+              mass_mg=m("12.1 kg"), cylinder_before_mg=m("34.8 kg"), cylinder_after_mg=m("22.7 kg")),
+    ))
+
+
+def test_simplified_balance_counts_recovery_before_a_retrofit():
+    # E = (PN - CN) + PS + (CD - RD): R-404A CD 12 kg, RD 10.85 kg recovered the day before
+    # the retrofit -> 1.15 kg (it was 12 kg when only same-day recovery counted)
+    flows = em.period_flows(_retrofit_history(), date(2025, 1, 1), date(2025, 12, 31))
+    gwp = {"R-404A": Decimal(3922), "R-449A": Decimal(1397)}  # 517/2014 figures (notes)
+    smb = em.simplified_material_balance(flows, gwp)
+    by = {p.refrigerant: dict(p.inputs_kg) for p in smb.parts}
+    assert by["R-404A"]["rd_kg"] == Decimal("10.85") and by["R-404A"]["cd_kg"] == 12
+    # PN from cylinder weights: 12.1 kg drawn for an 11.5 kg charge -> 0.6 kg installation loss
+    assert by["R-449A"]["pn_kg"] == Decimal("12.1") and by["R-449A"]["cn_kg"] == Decimal("11.5")
+    assert {p.refrigerant: p.emissions_kg for p in smb.parts} == {
+        "R-404A": Decimal("1.15"), "R-449A": Decimal("0.6")}
+
+
+def test_negative_balance_is_flagged_not_netted_and_hcfc_is_outside_scope_1():
+    # GHG Protocol covers the Kyoto gases only: HCFC-22 is reported beside scope 1
+    from ledger.units import parse_mass_mg as m
+
+    a = em.Flow(1, "R-404A", 365, added_mg=m("2 kg"))  # PS 2 kg
+    b = em.Flow(2, "R-407F", 365, retired_charge_mg=m("5 kg"), retired_recovered_mg=m("6 kg"))  # -1 kg
+    c = em.Flow(3, "R-22", 365, added_mg=m("3 kg"))
+    gwp = {"R-404A": Decimal(3922), "R-407F": Decimal(1825), "R-22": Decimal(1810)}
+    smb = em.simplified_material_balance([a, b, c], gwp, frozenset({"R-22"}))
+    assert smb.emissions_kg == 2  # not 2 - 1, and not + 3 kg of R-22
+    assert [p.refrigerant for p in smb.outside_scope1] == ["R-22"]
+    assert any("R-407F" in f and "negative balance" in f for f in smb.flags)
+    assert any("R-22" in f and "outside scope 1" in f for f in smb.flags)
+
+
+def test_recommended_method_follows_the_records_held():
+    # US EPA 2014: material balance needs stock changes (not tracked); simplified needs the
+    # records of charges and recoveries; screening when none are held
+    flows = em.period_flows(_retrofit_history(), date(2025, 1, 1), date(2025, 12, 31))
+    assert em.recommended_method(flows)[0] == em.SIMPLIFIED_MATERIAL_BALANCE
+    from ledger.units import parse_mass_mg as m
+
+    idle = em.Flow(1, "R-404A", 365, charge_start_mg=m("10 kg"), charge_end_mg=m("10 kg"))
+    assert em.recommended_method([idle])[0] == em.SCREENING

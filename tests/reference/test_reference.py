@@ -147,7 +147,8 @@ def test_gwp_outside_the_package_is_empty_unless_sourced(basis):
 @pytest.mark.parametrize(
     ("designation", "published"),
     [
-        # EU 517/2014 Annex IV method; published figures as listed in reference-notes.md.
+        # EU 517/2014 Annex IV method (kept as the GB basis); published figures as listed in
+        # reference-notes.md.
         ("R-404A", 3922),
         ("R-410A", 2088),
         ("R-407C", 1774),
@@ -161,8 +162,8 @@ def test_gwp_outside_the_package_is_empty_unless_sourced(basis):
         ("R-134a", 1430),
     ],
 )
-def test_eu_blend_gwp_rounds_to_the_published_figure(designation, published):
-    figure = REF.gwp(designation, "eu")
+def test_gb_blend_gwp_rounds_to_the_published_517_2014_figure(designation, published):
+    figure = REF.gwp(designation, "gb")
     assert figure.unlisted == ()
     assert round_half_up(figure.value) == published
 
@@ -170,16 +171,21 @@ def test_eu_blend_gwp_rounds_to_the_published_figure(designation, published):
 @pytest.mark.parametrize(
     ("designation", "eu_value"),
     [
-        # EU 517/2014 Annex I (AR4 100-year), as quoted in reference-notes.md.
+        # EU 2024/573 Annex I section 1 = AR4 100-year (eumonitor.eu, annexes as adopted, quoted
+        # in reference-notes.md "Checked in December 2026": "HFC-32 … 675 … HFC-134a … 1 430").
         ("R-32", "675"),
         ("R-125", "3500"),
         ("R-134a", "1430"),
         ("R-143a", "4470"),
         ("R-23", "14800"),
         ("R-227ea", "3220"),
-        # EU 517/2014 Annex II section 1 (from memory; they reproduce R-513A 631 above).
-        ("R-1234yf", "4"),
-        ("R-1234ze(E)", "7"),
+        # EU 2024/573 Annex II (bfs-kaelte-klima.de extract, checked Dec 2026: "HFC-1234yf 0,501
+        # … HFC-1234ze(E) 1,37 … HCFC-1233zd 3,88").
+        ("R-1234yf", "0.501"),
+        ("R-1234ze(E)", "1.37"),
+        ("R-1233zd(E)", "3.88"),
+        # EU 2024/573 Annex I section 2 (eumonitor.eu annexes as adopted: "PFC-116 … 12 400").
+        ("R-116", "12400"),
         # EU 517/2014 Annex IV non-fluorinated substances, per reference-notes.md.
         ("R-290", "3"),
         ("R-600", "4"),
@@ -194,12 +200,46 @@ def test_eu_component_values(designation, eu_value):
     assert REF.components[designation].gwp["eu"] == Decimal(eu_value)
 
 
-def test_eu_value_of_annex_i_and_ods_components_is_the_ar4_value():
+@pytest.mark.parametrize(
+    ("designation", "gb_value"),
+    [
+        # EU 517/2014 Annex I (AR4 100-year), as retained in GB; reference-notes.md.
+        ("R-32", "675"),
+        ("R-134a", "1430"),
+        ("R-116", "12200"),  # AR4 WG1 Table 2.14 (globalwarmingpotentials carries it)
+        # EU 517/2014 Annex II section 1 (from memory; they reproduce R-513A 631 above).
+        ("R-1234yf", "4"),
+        ("R-1234ze(E)", "7"),
+        ("R-290", "3"),  # 517/2014 Annex IV, per reference-notes.md
+    ],
+)
+def test_gb_component_values(designation, gb_value):
+    assert REF.components[designation].gwp["gb"] == Decimal(gb_value)
+
+
+def test_eu_blend_gwp_uses_the_2024_573_olefin_values():
+    # R-448A 32/125/1234yf/134a/1234ze(E) 26/26/20/21/7 (ASHRAE 34, reference-notes.md) with
+    # 2024/573 Annex I/II values: 0.26*675 + 0.26*3500 + 0.20*0.501 + 0.21*1430 + 0.07*1.37.
+    assert REF.gwp("R-448A", "eu").value == Decimal("1385.9961")
+    # R-513A 1234yf/134a 56/44: 0.56*0.501 + 0.44*1430 = 629.48056 (vs 631 under 517/2014).
+    assert REF.gwp("R-513A", "eu").value == Decimal("629.48056")
+
+
+def test_gb_value_of_annex_i_and_ods_components_is_the_ar4_value():
     # EU 517/2014 Annex I is "based on the Fourth Assessment Report" (its footnote a); for
     # HCFC/CFC components we also carry AR4 (a project choice, see docs/refrigerants.md).
     for designation, component in REF.components.items():
         if component.eu_annex in {"I", "ods"}:
-            assert component.gwp["eu"] == component.gwp["ar4"], designation
+            assert component.gwp["gb"] == component.gwp["ar4"], designation
+
+
+def test_eu_value_of_annex_i_and_ods_components_is_the_ar4_value_except_pfc_116():
+    # 2024/573 Annex I section 1 keeps AR4 for HFCs; section 2 prints PFC-116 12 400
+    # (eumonitor.eu annexes as adopted), which is the AR6 figure (globalwarmingpotentials).
+    for designation, component in REF.components.items():
+        if component.eu_annex in {"I", "ods"}:
+            expected = component.gwp["ar6"] if designation == "R-116" else component.gwp["ar4"]
+            assert component.gwp["eu"] == expected, designation
 
 
 def test_every_component_has_an_eu_value():
@@ -405,7 +445,7 @@ def test_unlisted_names_components_missing_from_the_basis():
 def test_gwp_unknown_basis_is_an_input_error():
     with pytest.raises(InputError) as caught:
         REF.gwp("R-404A", "ar3")
-    assert str(caught.value) == "basis: 'ar3' is not one of eu, ar4, ar5, ar6"
+    assert str(caught.value) == "basis: 'ar3' is not one of eu, gb, ar4, ar5, ar6"
 
 
 def test_gwp_is_exact_and_unrounded():
@@ -522,10 +562,10 @@ def test_reference_rejects_a_name_claimed_twice():
 
 def test_parse_reference_names_the_bad_line():
     header = (
-        "designation,aliases,chem_class,formula,odp,gwp_ar4,gwp_ar5,gwp_ar6,gwp_eu,"
+        "designation,aliases,chem_class,formula,odp,gwp_ar4,gwp_ar5,gwp_ar6,gwp_eu,gwp_gb,"
         "molar_mass_g_mol,safety_class,eu_annex,source\n"
     )
-    bad = header + "R-1,,HFC,X,0,abc,,,1,50,A1,I,test\n"
+    bad = header + "R-1,,HFC,X,0,abc,,,1,1,50,A1,I,test\n"
     with pytest.raises(ValueError, match=r"components.csv:2: gwp_ar4"):
         parse_reference(
             bad,

@@ -1,8 +1,10 @@
 """A small reference table for the rules tests, built with the real `ledger.reference` classes.
 
 Real substances carry the figures of /work/shared/reference-notes.md: AR4 100-year GWPs from
-IPCC AR4 WG1 Table 2.14 (also the EU Annex I values), EU Annex II values for the olefins
-(R-1234yf 4, R-1234ze(E) 7: from memory, marked so in the notes), blend compositions from
+IPCC AR4 WG1 Table 2.14 (also the EU Annex I values), olefins under the `eu` basis with the
+2024/573 Annex II values (R-1234yf 0.501, R-1234ze(E) 1.37: bfs-kaelte-klima.de extract, in the
+notes' "Checked in December 2026") and under `gb` with the 517/2014 Annex II values (4 and 7:
+from memory, marked so in the notes), blend compositions from
 ASHRAE 34 as listed in the notes. The "TEST-" substances are fictitious, with round GWPs
 chosen so that regulatory boundaries fall on whole milligrams; they exist only here.
 """
@@ -13,12 +15,13 @@ from decimal import Decimal
 
 from ledger.reference import Component, Reference, Refrigerant
 
-_BASES = ("eu", "ar4", "ar5", "ar6")
+_BASES = ("eu", "gb", "ar4", "ar5", "ar6")
 
 
 def _component(designation: str, chem_class: str, eu_annex: str,
-               eu: str | None, ar4: str | None, odp: str = "0") -> Component:
-    gwp = {"eu": eu, "ar4": ar4, "ar5": None, "ar6": None}
+               eu: str | None, ar4: str | None, odp: str = "0",
+               gb: str | None = None) -> Component:
+    gwp = {"eu": eu, "gb": gb or eu, "ar4": ar4, "ar5": None, "ar6": None}
     return Component(
         designation=designation, aliases=(), chem_class=chem_class, formula="", odp=Decimal(odp),
         gwp={b: None if gwp[b] is None else Decimal(gwp[b]) for b in _BASES},
@@ -35,9 +38,9 @@ COMPONENTS = {
         _component("R-134a", "HFC", "I", "1430", "1430"),
         _component("R-143a", "HFC", "I", "4470", "4470"),
         _component("R-23", "HFC", "I", "14800", "14800"),
-        # EU Annex II values from memory (reference-notes.md); AR4 lists no olefins
-        _component("R-1234yf", "HFO", "II-1", "4", None),
-        _component("R-1234ze(E)", "HFO", "II-1", "7", None),
+        # EU 2024/573 Annex II / GB 517/2014 Annex II (reference-notes.md); AR4 lists no olefins
+        _component("R-1234yf", "HFO", "II-1", "0.501", None, gb="4"),
+        _component("R-1234ze(E)", "HFO", "II-1", "1.37", None, gb="7"),
         # natural refrigerants; EU values per 517/2014 Annex IV (reference-notes.md)
         _component("R-744", "natural", "none", "1", "1"),
         _component("R-717", "natural", "none", "0", None),

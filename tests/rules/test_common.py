@@ -146,7 +146,7 @@ def test_regimes_are_read_only_and_complete():
         REGIMES["xx"] = REGIMES["eu"]  # type: ignore[index]
     for code, module in REGIMES.items():
         assert module.REGIME_VERSION and module.TITLE, code
-        assert module.GWP_BASIS == ("eu" if code in ("eu", "gb") else "ar4")
+        assert module.GWP_BASIS == {"eu": "eu", "gb": "gb"}.get(code, "ar4")
         assert module.CONSTANTS and all(isinstance(c, Constant) for c in module.CONSTANTS)
         assert all(c.basis.citation and c.basis.confidence for c in module.CONSTANTS)
 

@@ -65,7 +65,8 @@ def test_detection_system_doubles_each_interval(charge, months):
 
 def test_tier_confidence_marks():
     assert _tier("TEST-1000", kg(5)).basis.confidence is Confidence.SECONDARY  # UBA FAQ
-    assert _tier("R-455A", kg(2)).basis.confidence is Confidence.MEMORY  # Annex II tiers: M
+    # Annex II tiers: raised to secondary in Dec 2026 (bfs-kaelte-klima.de, reference notes)
+    assert _tier("R-455A", kg(2)).basis.confidence is Confidence.SECONDARY
 
 
 def test_one_kilogram_of_olefin_inside_a_blend():
@@ -415,7 +416,7 @@ def test_constants_name_their_basis():
     assert {c.basis.citation.split(" Art")[0] for c in eu.CONSTANTS} == {
         "Reg. (EU) 2024/573", "Reg. (EU) 2024/573 (date of application)"}
     memory = {c.name for c in eu.CONSTANTS if c.basis.confidence is Confidence.MEMORY}
-    assert "interval 1–10 kg Annex II s.1" in memory
+    assert "interval 1–10 kg Annex II s.1" not in memory  # raised to secondary, Dec 2026
     policy = {c.name for c in eu.CONSTANTS if c.basis.confidence is Confidence.POLICY}
     assert policy == {"repair deadline after a leak is found (site policy)"}
     assert "leak detection system checked every" in memory
@@ -445,3 +446,40 @@ def test_repair_due_under_the_earlier_law_and_still_open_is_carried():
     assert "due 2024-03-05 under the earlier law" in repair[0].detail
     log.check(D(2024, 3, 1))  # a later check found no leak: nothing carried
     assert of_kind(_run(log, D(2024, 4, 1))[0], ObligationKind.REPAIR) == []
+
+
+# --- corrections of the check in December 2026 (reference-notes.md, "Checked in December 2026")
+
+
+def test_2026_12_follow_up_only_for_equipment_that_must_be_leak_checked():
+    # 2024/573 Art 4(5), German text quoted by Landesinnung Kälte-Klima: "Wurde bei einer
+    # Einrichtung, für die gemäß Artikel 5 Absatz 1 eine Dichtheitskontrolle vorgeschrieben
+    # ist, eine Undichtigkeit repariert …". The repair duty itself covers all equipment.
+    below = Log()
+    below.in_service(D(2025, 1, 10), "TEST-1000", kg(2))  # 2 t CO2e: under 5 t, no checks
+    leak = below.check(D(2025, 6, 2), leak=True)
+    below.repair(D(2025, 6, 3))
+    obs, _ = _run(below, D(2025, 8, 1))
+    assert of_kind(obs, ObligationKind.FOLLOW_UP_CHECK) == []
+    assert [o.caused_by for o in of_kind(obs, ObligationKind.REPAIR)] == [leak.id]
+    sealed = Log()
+    sealed.in_service(D(2025, 1, 10), "TEST-1000", kg(8))  # hermetic, 8 t: exempt
+    sealed.check(D(2025, 6, 2), leak=True)
+    sealed.repair(D(2025, 6, 3))
+    obs, _ = _run(sealed, D(2025, 8, 1), hermetic=True)
+    assert of_kind(obs, ObligationKind.FOLLOW_UP_CHECK) == []
+    # a checked system keeps its follow-up, now marked checked (article wording quoted)
+    checked = Log()
+    checked.in_service(D(2025, 1, 10), "TEST-1000", kg(20))
+    checked.check(D(2025, 6, 2), leak=True)
+    checked.repair(D(2025, 6, 3))
+    follow = of_kind(_run(checked, D(2025, 8, 1))[0], ObligationKind.FOLLOW_UP_CHECK)
+    assert [f.basis.confidence for f in follow] == [Confidence.CHECKED]
+
+
+def test_2026_12_interval_citation_is_art_5_not_art_5_1():
+    # haufe.de (official German text): Art 5(1) holds thresholds and exemptions, the
+    # frequencies sit in a later paragraph of Art 5 (number not read).
+    tier = _tier("TEST-1000", kg(20))
+    assert tier.basis.citation == "Reg. (EU) 2024/573 Art 5"
+    assert eu.REGIME_VERSION == "eu-2"

@@ -98,7 +98,8 @@ def test_hcfc_hermetic_from_six_kilograms_and_no_doubling():
     assert _tier("R-22", kg("5.99"), hermetic=True).band == EXEMPT
     assert _tier("R-22", kg(6), hermetic=True).interval_months == 12
     tier = _tier("R-22", kg(30), detection=True)
-    assert tier.interval_months == 6 and tier.basis.confidence is Confidence.SECONDARY
+    # raised to checked in Dec 2026 (gov.uk ODS page; 1005/2009 Art 23(2), reference notes)
+    assert tier.interval_months == 6 and tier.basis.confidence is Confidence.CHECKED
 
 
 def test_hcfc_and_fgas_mixture_takes_the_shorter_interval():
@@ -123,7 +124,7 @@ def test_hcfc_repair_within_14_days_and_immediate_retest_counts():
     repair = of_kind(obs, ObligationKind.REPAIR)[0]
     assert (repair.due_on, repair.status, repair.caused_by, repair.met_by) == (
         D(2025, 6, 16), MET, leak.id, fix.id)
-    assert repair.basis.confidence is Confidence.SECONDARY
+    assert repair.basis.confidence is Confidence.CHECKED  # gov.uk "repair it within 14 days"
     follow = of_kind(obs, ObligationKind.FOLLOW_UP_CHECK)[0]
     assert (follow.earliest_on, follow.due_on, follow.met_by) == (
         D(2025, 6, 9), D(2025, 7, 9), retest.id)
@@ -174,7 +175,34 @@ def test_retired_hcfc_system_owes_nothing_after_retirement():
 
 
 def test_constants():
-    assert gb.GWP_BASIS == "eu"
+    assert gb.GWP_BASIS == "gb"
     names = {c.name for c in gb.CONSTANTS}
     assert "HCFC/CFC leak-check threshold, hermetically sealed" in names
     assert all(c.basis.citation for c in gb.CONSTANTS)
+
+
+# --- corrections of the check in December 2026 (reference-notes.md, "Checked in December 2026")
+
+
+def test_2026_12_check_after_repair_only_where_leak_checks_are_required():
+    # 517/2014 Art 3(3), Spanish text (refredsl.es): "Cuando un aparato deba someterse a
+    # control de fugas, y se haya reparado una fuga … en el plazo de un mes".
+    log = Log()
+    log.in_service(D(2025, 1, 10), "TEST-1000", kg(3))  # 3 t CO2e: under 5 t
+    log.check(D(2025, 6, 2), leak=True)
+    log.repair(D(2025, 6, 3))
+    obs, _ = _run(log, D(2025, 8, 1))
+    assert of_kind(obs, ObligationKind.FOLLOW_UP_CHECK) == []
+    assert len(of_kind(obs, ObligationKind.REPAIR)) == 1
+
+
+def test_2026_12_citations_and_marks():
+    # refredsl.es: the repair duty is Art 3(3) ("se reparen sin demora injustificada"); the
+    # hermetic exemption is Art 4(1) second subparagraph (gesetze.legal Art 5(1) wording);
+    # 1 Jan 2015 from IHK Rostock (secondary); HCFC tiers checked against gov.uk.
+    by_name = {c.name: c.basis for c in gb.CONSTANTS}
+    assert by_name["repair deadline, fluorinated gases (site policy)"].citation.endswith("Art 3(3)")
+    assert by_name["hermetically sealed exemption, below"].citation.endswith("Art 4(1)")
+    assert by_name["date of application"].confidence is Confidence.SECONDARY
+    assert by_name["re-test within, HCFC/CFC"].confidence is Confidence.CHECKED
+    assert gb.REGIME_VERSION == "gb-2" and gb.GWP_BASIS == "gb"

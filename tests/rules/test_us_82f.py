@@ -239,3 +239,14 @@ def test_constants():
     assert by_name["leak-rate threshold, commercial-refrigeration"].basis.confidence is (
         Confidence.CHECKED)
     assert by_name["repair within"].value == 30
+
+
+def test_2026_12_scope_from_2020_04_10_is_checked():
+    # 40 CFR 82.157(a), eCFR text via reference-notes.md "Checked in December 2026": "As of
+    # April 10, 2020, this section applies only to appliances with a full charge of 50 or
+    # more pounds of any class I or class II refrigerant"
+    by_name = {c.name: c for c in us_82f.CONSTANTS}
+    assert by_name["applies from"].value == D(2020, 4, 10)
+    assert by_name["applies from"].basis.confidence is Confidence.CHECKED
+    assert by_name["full charge from"].basis.confidence is Confidence.CHECKED
+    assert us_82f.REGIME_VERSION == "us-82f-2"

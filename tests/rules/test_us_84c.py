@@ -62,7 +62,9 @@ def test_exceedance_before_2026_opens_nothing_and_after_opens_the_duties():
     obs, _ = _run(log, D(2026, 1, 11))
     repair = of_kind(obs, ObligationKind.REPAIR)
     assert summary(repair) == [("repair", D(2026, 2, 9), "open", add.id, None)]
-    assert repair[0].basis.confidence is Confidence.MEMORY
+    # raised to secondary in Dec 2026: Hixson citing 84.106 (reference-notes.md)
+    assert repair[0].basis.confidence is Confidence.SECONDARY
+    assert repair[0].basis.citation == "40 CFR 84.106"
 
 
 def test_automatic_leak_detection_for_existing_large_systems_by_2027():
@@ -101,3 +103,16 @@ def test_constants():
     assert names["GWP above (AR4)"].value == 53
     assert names["GWP basis"].basis.confidence is Confidence.MEMORY
     assert us_84c.GWP_BASIS == "ar4"
+
+
+def test_2026_12_citations_name_sections_84_106_and_84_108():
+    # Hixson (EH&S consultancy, Apr 2025), via reference-notes.md "Checked in December 2026":
+    # "Recordkeeping … (84.106(l)) … Reporting … (84.106(m))"; ALD in §84.108; ALD from
+    # 1 500 lb per HVACInsider (secondary).
+    by_name = {c.name: c.basis for c in us_84c.CONSTANTS}
+    assert by_name["repair within"].citation == "40 CFR 84.106"
+    assert by_name["follow-up verification test within"].confidence is Confidence.SECONDARY
+    assert by_name["chronic-leak report from"].citation == "40 CFR 84.106(m)"
+    assert by_name["automatic leak detection from"].citation == "40 CFR 84.108"
+    assert by_name["automatic leak detection from"].confidence is Confidence.SECONDARY
+    assert us_84c.REGIME_VERSION == "us-84c-2"

@@ -98,13 +98,18 @@ def test_a_recorded_filing_meets_the_california_report(db: Database) -> None:
     from ledger.services.recording import record_filing
 
     add_site(db, code="CA", name="CA", country="US", subdivision="US-CA")
-    # 2 100 lb (large facility): annual report by 1 March (17 CCR 95388, from memory)
+    # 2 100 lb (large facility): annual report by 1 March (CARB notices, secondary); an
+    # unfiled one stays overdue when the next is due (issue 14 correction)
     add_system(db, site_code="CA", tag="R", refrigerant="R-448A", charge_mg=952_543_977,
                application="commercial-refrigeration", in_service_on=date(2024, 1, 1))
     day = date(2026, 1, 15)
     report = [r for r in due(db, as_of=day).rows if r["kind"] == "report"]
-    assert [(r["due_on"], r["status"]) for r in report] == [(date(2026, 3, 1), "open")]
+    assert [(r["due_on"], r["status"]) for r in report] == [
+        (date(2025, 3, 1), "overdue"), (date(2026, 3, 1), "open")]
     record_filing(db, site_code="CA", regime="us-ca", period_year=2025, filed_on=date(2026, 1, 10), reference="R-1")
+    report = [r for r in due(db, as_of=day).rows if r["kind"] == "report"]
+    assert [(r["due_on"], r["status"]) for r in report] == [(date(2025, 3, 1), "overdue")]
+    record_filing(db, site_code="CA", regime="us-ca", period_year=2024, filed_on=date(2026, 1, 12))
     assert not [r for r in due(db, as_of=day).rows if r["kind"] == "report"]
     try:
         record_filing(db, site_code="CA", regime="eu", period_year=2025, filed_on=date(2026, 1, 10))
