@@ -59,6 +59,8 @@ def technicians(db: Database) -> list[dict[str, Any]]:
                         "category": c.category,
                         "valid_from": c.valid_from,
                         "valid_to": c.valid_to,
+                        "scope": c.scope,
+                        "issuer": c.issuer,
                     }
                     for c in t.certificates
                 ],
