@@ -62,6 +62,8 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         if summary.added["sites"] == 0 and summary.skipped["sites"]:
             raise Conflict("db: already holds these sites; use an empty database or --replace")
         as_of = DEMO_AS_OF
+        if (records / "companies.csv").exists():
+            add_company_certificates(db, records / "companies.csv")
         correct_at_the_desk(db)
         detectors = records / "detectors"
         reviews = load_detectors(db, location, detectors) if detectors.is_dir() else []
@@ -131,6 +133,21 @@ def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
         repairs=result.repairs,
     )
     return path
+
+
+def add_company_certificates(db: Database, path: Path) -> None:
+    """The demo's company certificates (the import format has no sheet for them yet)."""
+    import csv
+
+    from ledger.services.recording import add_company_certificate
+
+    with path.open(encoding="utf-8") as fh:
+        for row in csv.DictReader(fh):
+            add_company_certificate(
+                db, company=row["company"], number=row["certificate"], scope=row["scope"], issuer=row["issuer"],
+                valid_from=date.fromisoformat(row["valid_from"]) if row["valid_from"] else None,
+                valid_to=date.fromisoformat(row["valid_to"]) if row["valid_to"] else None,
+            )
 
 
 def correct_at_the_desk(db: Database) -> None:
