@@ -21,11 +21,9 @@ def num(value: Any, places: int = 2) -> str:
 
 def mass_in(kg: Any, unit: str) -> Decimal | None:
     """A mass given in kg, in the display unit (kg or lb)."""
-    if kg is None:
-        return None
-    from ledger.units import MG_PER_KG, MG_PER_LB
+    from ledger.exports.common import in_unit
 
-    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+    return in_unit(kg, unit)
 
 
 def print_system(view: dict[str, Any]) -> None:

@@ -95,6 +95,15 @@ def to_number(value: Any) -> float | int | None:
     return float(value)
 
 
+def in_unit(kg: Any, unit: str) -> Decimal | None:
+    """A mass given in kg, in a site's display unit (kg or lb; exact Decimal, None stays None)."""
+    if kg is None:
+        return None
+    from ledger.units import MG_PER_KG, MG_PER_LB
+
+    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+
+
 def fmt(value: Any, kind: str, places: int | None = None) -> str:
     """A value as display text for PDFs and text output (rounded half-up for display only)."""
     if is_blank(value):
