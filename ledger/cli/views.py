@@ -72,16 +72,16 @@ def print_system(view: dict[str, Any]) -> None:
             title="Leak rate at each addition",
         )
     table(
-        ["id", "on", "kind", "kg", "result", "by", "certificate", "note"],
+        ["id", "on", "kind", unit, "result", "by", "certificate", "note"],
         [
             [
                 e["id"],
                 e["performed_on"],
                 e["kind"] + (f" (voided by {e['voided_by']}: {e['void_reason']})" if e["voided_by"] else ""),
-                num(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"]),
+                num(mass_in(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"], unit)),
                 e["result"] or e["location"] or (f"voids {e['voids']}: {e['reason']}" if e["voids"] else ""),
                 e["technician"],
-                e["certificate"],
+                e["certificate"] or ("none valid: done by an uncertified person" if e.get("uncertified") else ""),
                 e["note"],
             ]
             for e in view["events"]

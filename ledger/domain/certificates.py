@@ -31,7 +31,7 @@ import enum
 from dataclasses import dataclass
 from datetime import date
 
-from ledger.domain.records import Certificate, EventKind, Finding, Severity, Technician
+from ledger.domain.records import Certificate, Event, EventKind, Finding, Severity, Technician
 from ledger.units import MG_PER_KG, MG_PER_LB
 
 
@@ -173,3 +173,15 @@ def certificate_findings(technician: Technician | None, facts: WorkFacts) -> lis
     return [Finding(source=f"tech {technician.name}", severity=Severity.WARNING, field="--tech", message=(
         f"warning: {technician.name} holds no certificate valid for this work on {facts.on.isoformat()} "
         f"({detail}); the event is recorded as done by an uncertified person"))]
+
+
+# Kinds `system add` records for plant already running; without a named technician they are an
+# office entry, not work, and carry no warning.
+OFFICE_ENTRY_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.DETECTION_ON})
+
+
+def uncertified_work(event: Event) -> bool:
+    """True when an event is work recorded without a certificate valid for it (shown with a warning)."""
+    if event.kind not in WORK_OF or event.certified:
+        return False
+    return bool(event.technician) or event.kind not in OFFICE_ENTRY_KINDS

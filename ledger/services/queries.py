@@ -10,6 +10,7 @@ from datetime import date
 from decimal import Decimal
 from typing import Any
 
+from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import Event, Obligation, ObligationStatus, SystemHistory
 from ledger.domain.state import state_of
 from ledger.reference import load_reference
@@ -99,6 +100,7 @@ def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
         "technician": e.technician,
         "company": e.company,
         "certificate": e.certificate,
+        "uncertified": uncertified_work(e) and void is None,
         "recorded_by": e.recorded_by,
         "note": e.note,
         "voids": e.voids_id,

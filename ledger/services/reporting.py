@@ -22,7 +22,7 @@ from typing import Any
 
 from ledger import __version__
 from ledger.domain import emissions as em
-from ledger.domain.certificates import WORK_OF
+from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import (
     CheckResult,
     CompanyCertificate,
@@ -908,7 +908,7 @@ def logbook_data(
             "company": e.company,
             "company_certificate": _company_certificate(company_certificates, e.company, e.performed_on),
             "certificate": e.certificate,
-            "uncertified": UNCERTIFIED_WORK if (e.kind in WORK_OF and not e.certified and not void) else None,
+            "uncertified": UNCERTIFIED_WORK if (uncertified_work(e) and not void) else None,
             "recorded_by": e.recorded_by,
             "recorded_at": e.recorded_at,
             "note": e.note,
