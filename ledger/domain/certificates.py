@@ -131,7 +131,8 @@ def why_not(cert: Certificate, facts: WorkFacts) -> str | None:
         return f"{cert.number} is a {scope.value} certificate, not valid at a site under {regimes}"
     cat = cert.category
     if scope is Scope.US_608:
-        small = facts.hermetic and facts.charge_mg <= SMALL_APPLIANCE_LB * MG_PER_LB
+        # whole units, as a typed "5 lb" is stored (exact once masses are exact in every unit)
+        small = facts.hermetic and facts.charge_mg <= round(SMALL_APPLIANCE_LB * MG_PER_LB)
         low = facts.refrigerant in LOW_PRESSURE
         if cat == "Universal" or (cat == "Type I" and small) or (cat == "Type II" and not small and not low) or (
             cat == "Type III" and not small and low

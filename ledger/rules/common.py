@@ -791,7 +791,7 @@ def periodic_check_obligations(
     def add(kind: ObligationKind, due: date, basis: Basis, met: Event | None, cause: EventId | None,
             detail: str, earliest: date | None = None, opens: date | None = None) -> None:
         if met is None and uncertified:
-            detail += uncertified_note(uncertified, kind, opens or earliest, due)
+            detail += uncertified_note(uncertified, kind, opens or earliest, max(due, as_of))
         if due < emit_from:
             # Due under the earlier law: listed only if still outstanding when this rule
             # applied (not met, system in service, no leak check since that re-examined the
@@ -904,17 +904,17 @@ def periodic_check_obligations(
 UNCERTIFIED = "done by an uncertified person"
 
 
-def uncertified_note(uncertified: Sequence[Event], kind: ObligationKind, opens: date | None, due: date) -> str:
+def uncertified_note(uncertified: Sequence[Event], kind: ObligationKind, opens: date | None, until: date) -> str:
     """A clause naming the checks in a duty's window that were done without a valid certificate.
 
     Only leak-check and follow-up-check duties are met by checks; the window runs from the
-    day it opens to its due date.
+    day it opens to ``until`` (its due date, or the day of evaluation for one overdue).
     """
     wanted = EventKind.CHECK if kind is ObligationKind.LEAK_CHECK else EventKind.FOLLOW_UP
     if kind not in (ObligationKind.LEAK_CHECK, ObligationKind.FOLLOW_UP_CHECK):
         return ""
     hits = [e for e in uncertified if e.kind is wanted and (opens is None or e.performed_on >= opens)
-            and e.performed_on <= due]
+            and e.performed_on <= until]
     if not hits:
         return ""
     days = ", ".join(f"{e.performed_on.isoformat()} (event {e.id})" for e in hits)
