@@ -107,6 +107,24 @@ def company_certificate(
     typer.echo(f"company certificate {certificate} of {company} added")
 
 
+@company_app.command("list")
+def company_list(json_out: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False) -> None:
+    """List company certificates.
+
+    Example: refledger tech company list
+    """
+    from ledger.cli.render import print_json, table
+    from ledger.services.queries import company_certificates
+
+    rows = company_certificates(context.open_db())
+    if json_out:
+        print_json(rows)
+        return
+    table(["company", "scope", "certificate", "issuer", "valid from", "valid to"],
+          [[r["company"], r["scope"], r["certificate"], r["issuer"], r["valid_from"], r["valid_to"] or "open"]
+           for r in rows])
+
+
 @tech_app.command("list")
 def tech_list(json_out: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False) -> None:
     """List technicians and their certificates.

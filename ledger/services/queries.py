@@ -70,6 +70,16 @@ def technicians(db: Database) -> list[dict[str, Any]]:
         ]
 
 
+def company_certificates(db: Database) -> list[dict[str, Any]]:
+    """Every company certificate."""
+    with db.read() as conn:
+        return [
+            {"company": c.company, "scope": c.scope, "certificate": c.number, "issuer": c.issuer,
+             "valid_from": c.valid_from, "valid_to": c.valid_to}
+            for c in repo.company_certificates(conn=conn)
+        ]
+
+
 def cylinders(db: Database) -> list[dict[str, Any]]:
     """Every cylinder."""
     with db.read() as conn:

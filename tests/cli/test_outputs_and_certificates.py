@@ -202,6 +202,17 @@ def test_work_without_a_valid_certificate_is_recorded_warned_and_does_not_meet_t
     text = " ".join(str(c) for ws in wb.worksheets for row in ws.iter_rows(values_only=True) for c in row if c)
     assert "no certificate valid for this work; done by an uncertified person" in text
     assert "eu DE-U-77" in text
+    listed = run(ledger, "tech", "company", "list", "--json")
+    assert listed.exit_code == 0 and '"certificate": "DE-U-77"' in listed.stdout
+    pdf = tmp_path / "book.pdf"
+    assert run(ledger, "report", "logbook", "DE-1/RACK", "--to", "2026-01-20", "--pdf", str(pdf)).exit_code == 0
+    import shutil
+    import subprocess
+
+    if shutil.which("pdftotext"):  # poppler-utils (scripts/test installs it)
+        words = " ".join(subprocess.run(["pdftotext", str(pdf), "-"], capture_output=True, text=True,
+                                        check=True).stdout.split())
+        assert "uncertified person" in words and "DE-U-77" in words
 
 
 def test_a_small_appliance_type_does_not_cover_a_480_lb_rack(ledger: Location) -> None:
