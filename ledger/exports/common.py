@@ -170,7 +170,8 @@ ART6_MAP: tuple[tuple[str, str, str], ...] = (
      "events 'refrigerant recovered' and 'taken out of service': quantity (kg), recovered gas to"),
     ("(e)", "identity of the undertaking that installed, serviced, checked or decommissioned, "
      "with its certificate number",
-     "events: technician, company, certificate (scheme, number)"),
+     "events: technician, company, company certificate, certificate (scheme, number) and a "
+     "warning where none was valid for the work; system sheet: the companies' certificates"),
     ("(f)", "dates and results of the checks",
      "events 'leak check', 'follow-up check', 'detection system check': date, result, location, "
      "check method"),
