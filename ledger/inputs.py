@@ -28,6 +28,21 @@ def parse_day(text: str, *, field: str = "--on") -> date:
         raise InputError(field, text, "is not a real calendar date") from exc
 
 
+# Days a report or listing may be evaluated on: wide enough for any record and its deadlines,
+# narrow enough that deadline arithmetic (years ahead of the day) stays inside Python's dates.
+EVALUATION_FIRST = date(1900, 1, 1)
+EVALUATION_LAST = date(2999, 12, 31)
+
+
+def parse_evaluation_day(text: str, *, field: str) -> date:
+    """A day to evaluate or report on (``--as-of``, ``--from``, ``--to``): ISO, within the range above."""
+    day = parse_day(text, field=field)
+    if not EVALUATION_FIRST <= day <= EVALUATION_LAST:
+        raise InputError(field, text, f"is outside the days the ledger evaluates ({EVALUATION_FIRST.isoformat()} "
+                         f"to {EVALUATION_LAST.isoformat()})")
+    return day
+
+
 def parse_system_ref(text: str, *, field: str = "SITE/TAG") -> tuple[str, str]:
     """Split ``SITE/TAG`` into its parts."""
     site, sep, tag = str(text).partition("/")

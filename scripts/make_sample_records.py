@@ -42,17 +42,28 @@ RECORDER = {"DE-LEJ": "Greta Lind", "DE-HAJ": "Ilka Brandes", "GB-BRS": "Hollie 
             "TX-HOU": "Ray Castillo", "TX-DAL": "Ray Castillo", "CA-SAC": "Dana Whitfield"}
 
 TECHS = table("""
-    name           | scheme          | certificate    | category  | valid_from | valid_to
-    Jana Köhler    | EU 2015/2067    | DE-I-31742     | I         | 2016-03-14 |
-    Mirko Sandmann | EU 2015/2067    | DE-I-40518     | I         | 2019-09-02 |
-    Priya Lanning  | GB F-gas        | GB-FG-I-208815 | I         | 2018-05-21 |
-    Owen Pryce     | GB F-gas        | GB-FG-I-311094 | I         | 2020-10-01 | 2025-09-30
-    Marisol Vega   | EPA Section 608 | 608-U-5518203  | Universal | 2012-06-08 |
-    Dwayne Hollis  | EPA Section 608 | 608-1-7730461  | Type I    | 2015-01-20 |
-    Dwayne Hollis  | EPA Section 608 | 608-2-7730462  | Type II   | 2016-11-03 |
-    Kenji Arakawa  | EPA Section 608 | 608-U-6604178  | Universal | 2010-04-12 |
-    Rosa Ibarra    | EPA Section 608 | 608-2-8129955  | Type II   | 2021-02-26 |
-""")
+    name           | scheme          | certificate    | category  | valid_from | valid_to   | scope
+    Jana Köhler    | EU 2015/2067    | DE-I-31742     | I         | 2016-03-14 |            | eu
+    Mirko Sandmann | EU 2015/2067    | DE-I-40518     | I         | 2019-09-02 |            | eu
+    Priya Lanning  | GB F-gas        | GB-FG-I-208815 | I         | 2018-05-21 |            | gb
+    Owen Pryce     | GB F-gas        | GB-FG-I-311094 | I         | 2020-10-01 | 2025-09-30 | gb
+    Marisol Vega   | EPA Section 608 | 608-U-5518203  | Universal | 2012-06-08 |            | us-608
+    Dwayne Hollis  | EPA Section 608 | 608-1-7730461  | Type I    | 2015-01-20 |            | us-608
+    Dwayne Hollis  | EPA Section 608 | 608-2-7730462  | Type II   | 2016-11-03 |            | us-608
+    Kenji Arakawa  | EPA Section 608 | 608-U-6604178  | Universal | 2010-04-12 |            | us-608
+    Rosa Ibarra    | EPA Section 608 | 608-2-8129955  | Type II   | 2021-02-26 |            | us-608
+""")  # scope: where the certificate is valid (eu, gb, us-608)
+ISSUER = {  # invented certification bodies, one per contractor's technicians
+    "Kälteservice Pleißeaue GmbH": "Kälte-Prüfstelle Westsachsen",
+    "Ashgrove Combe Cooling Ltd": "Severnside Refrigeration Assessment",
+    "Pecan Flat Mechanical LLC": "Brazos Technician Testing",
+    "Tulewind Refrigeration Inc.": "Delta Valley Certification",
+}
+COMPANY_CERTIFICATES = table("""
+    company                     | scope | certificate  | issuer                              | valid_from | valid_to
+    Kälteservice Pleißeaue GmbH | eu    | DE-U-SN-0417 | Kälte-Prüfstelle Westsachsen        | 2015-06-01 |
+    Ashgrove Combe Cooling Ltd  | gb    | GB-FGC-20931 | Severnside Refrigeration Assessment | 2017-02-13 | 2027-02-12
+""")  # written to companies.csv, which `refledger demo` records (the import format has no sheet)
 COMPANIES = {  # contractor: (its technicians, the sites it serves)
     "Kälteservice Pleißeaue GmbH": (["Jana Köhler", "Mirko Sandmann"], ["DE-LEJ", "DE-HAJ"]),
     "Ashgrove Combe Cooling Ltd": (["Priya Lanning", "Owen Pryce"], ["GB-BRS"]),
@@ -512,7 +523,9 @@ def main() -> None:
     write("sites", [dict(code=s["code"], name=s["name"], country=s["country"],
                          subdivision=s["subdiv"], timezone=s["timezone"], regimes="",
                          leak_rate_method=s["method"], unit=s["unit"]) for s in SITES])
-    write("technicians", [{"name": t["name"], "company": company[t["name"]], **t} for t in TECHS])
+    write("technicians", [{"name": t["name"], "company": company[t["name"]], **t, "issuer": ISSUER[company[t["name"]]]}
+                          for t in TECHS])
+    write("companies", COMPANY_CERTIFICATES)
     write("cylinders", [dict(id=c["id"], refrigerant=c["refrigerant"], kind=c["kind"],
                              tare=c["tare"]) for c in CYLINDERS])
     write("systems", [dict(

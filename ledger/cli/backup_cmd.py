@@ -31,15 +31,20 @@ def export(
 
     Example: refledger export backup-2026-12-01
     """
+    from ledger.cli.outputs import output_file, output_folder, writing
     from ledger.services.backup import export_ledger, export_workbook
 
     if workbook is not None:
-        counts = export_workbook(context.open_db(), workbook)
+        output_file(workbook, "--workbook")
+        with writing(workbook, "--workbook"):
+            counts = export_workbook(context.open_db(), workbook)
         typer.echo(f"wrote {workbook}: " + ", ".join(f"{n} {k}" for k, n in counts.items()))
         return
     if folder is None:
         raise typer.BadParameter("give a folder, or --workbook FILE", param_hint="DIR")
-    result = export_ledger(context.open_db(), folder)
+    output_folder(folder, "DIR")
+    with writing(folder, "DIR"):
+        result = export_ledger(context.open_db(), folder)
     total = sum(result.counts.values())
     typer.echo(
         f"exported {total} rows ({result.counts.get('event', 0)} events) to {folder}; "

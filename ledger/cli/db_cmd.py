@@ -52,9 +52,12 @@ def upgrade() -> None:
 
     Example: refledger db upgrade
     """
+    from ledger.store.db import missing_file
     from ledger.store.db import upgrade as db_upgrade
 
-    before, after, saved = db_upgrade(context.location())
+    loc = context.location()
+    missing_file(loc)  # `db init` creates a ledger; upgrading names one that exists
+    before, after, saved = db_upgrade(loc)
     if before == after:
         typer.echo(f"nothing to do: schema is at {after}")
         return

@@ -30,9 +30,11 @@ def demo(
 
     Example: refledger --db demo.db demo --replace --out demo-output
     """
+    from ledger.cli.outputs import output_folder
     from ledger.cli.render import LOCAL_RULES_NOTE
     from ledger.services.demo import build_demo
 
+    output_folder(out, "--out")
     result = build_demo(context.location(), records=records, out=out, replace=replace)
     typer.echo(f"demo ledger: {result.url}")
     typer.echo(f"  {result.sites} sites, {result.systems} systems, {result.events} events")

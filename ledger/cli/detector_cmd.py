@@ -125,15 +125,17 @@ def review(
 
     Example: refledger detector review DE-LEJ/CR-DAIRY --from 2026-10-01 --to 2026-11-30 --pdf dairy.pdf
     """
+    from ledger.cli.outputs import output_file, writing
     from ledger.cli.render import LOCAL_RULES_NOTE, print_json, table
-    from ledger.inputs import parse_day, parse_system_ref
+    from ledger.inputs import parse_evaluation_day, parse_system_ref
     from ledger.services.detectors import review as run_review
 
     site_code, code = parse_system_ref(ref, field="SITE/CHANNEL")
-    day_from = parse_day(start, field="--from") if start else None
-    day_to = parse_day(end, field="--to") if end else None
+    day_from = parse_evaluation_day(start, field="--from") if start else None
+    day_to = parse_evaluation_day(end, field="--to") if end else None
     if day_from and day_to and day_to < day_from:
         raise typer.BadParameter("is before --from", param_hint="--to")
+    output_file(pdf, "--pdf")
     loc = context.location()
     result = run_review(
         context.open_db(), loc.readings_root, site_code=site_code, code=code, start=day_from, end=day_to
@@ -142,16 +144,17 @@ def review(
     if pdf is not None:
         from ledger.exports.detector_pdf import render_review_pdf
 
-        render_review_pdf(
-            pdf,
-            result.review,
-            result.readings,
-            title=f"Detector review {site_code}/{code}",
-            system_label=f"{site_code}/{result.channel.system_tag}",
-            refrigerant=result.refrigerant,
-            molar_mass_g_mol=result.molar_mass_g_mol,
-            repairs=result.repairs,
-        )
+        with writing(pdf, "--pdf"):
+            render_review_pdf(
+                pdf,
+                result.review,
+                result.readings,
+                title=f"Detector review {site_code}/{code}",
+                system_label=f"{site_code}/{result.channel.system_tag}",
+                refrigerant=result.refrigerant,
+                molar_mass_g_mol=result.molar_mass_g_mol,
+                repairs=result.repairs,
+            )
         typer.echo(f"wrote {pdf}", err=json_out)
     if json_out:
         print_json(data)

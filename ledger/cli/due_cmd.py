@@ -41,28 +41,32 @@ def due(
     """
     from datetime import UTC, datetime
 
+    from ledger.cli.outputs import output_file, writing
     from ledger.cli.render import LOCAL_RULES_NOTE, print_json, table
-    from ledger.inputs import parse_day
+    from ledger.inputs import parse_evaluation_day
     from ledger.services.obligations import due as compute_due
 
     if within is not None and within < 0:
         raise typer.BadParameter("must be zero or more days", param_hint="--within")
-    day = parse_day(as_of, field="--as-of") if as_of else datetime.now(UTC).date()
+    day = parse_evaluation_day(as_of, field="--as-of") if as_of else datetime.now(UTC).date()
+    for path, option in ((csv_file, "--csv"), (xlsx_file, "--xlsx"), (pdf_file, "--pdf")):
+        output_file(path, option)
     listing = compute_due(context.open_db(), as_of=day, within_days=within, site_code=site, overdue_only=overdue,
                           recompute=recompute)
     if csv_file or xlsx_file or pdf_file:
         from ledger.exports import due as due_export
 
-        for path, writer in (
-            (csv_file, due_export.write_due_csv),
-            (xlsx_file, due_export.write_due_xlsx),
-            (pdf_file, due_export.write_due_pdf),
+        for path, option, writer in (
+            (csv_file, "--csv", due_export.write_due_csv),
+            (xlsx_file, "--xlsx", due_export.write_due_xlsx),
+            (pdf_file, "--pdf", due_export.write_due_pdf),
         ):
             if path is not None:
-                if writer is due_export.write_due_csv:
-                    writer(path, listing.rows)
-                else:
-                    writer(path, listing.rows, day)
+                with writing(path, option):
+                    if writer is due_export.write_due_csv:
+                        writer(path, listing.rows)
+                    else:
+                        writer(path, listing.rows, day)
                 typer.echo(f"wrote {path}", err=json_out)
     if json_out:
         print_json(listing.rows)
@@ -110,13 +114,13 @@ def leak_rate(
     Example: refledger leak-rate US-TX-01/RACK-A --method rolling
     """
     from ledger.cli.render import print_json, table
-    from ledger.inputs import parse_day, parse_system_ref
+    from ledger.inputs import parse_evaluation_day, parse_system_ref
     from ledger.services.queries import leak_rate_view
 
     if method is not None and method not in ("annualizing", "rolling"):
         raise typer.BadParameter("must be annualizing or rolling", param_hint="--method")
     site_code, tag = parse_system_ref(ref)
-    day = parse_day(as_of, field="--as-of") if as_of else None
+    day = parse_evaluation_day(as_of, field="--as-of") if as_of else None
     view = leak_rate_view(context.open_db(), site_code=site_code, tag=tag, method=method, as_of=day)
     if json_out:
         print_json(view)

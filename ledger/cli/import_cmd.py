@@ -33,9 +33,12 @@ def import_(
     Example: refledger import sample_records/*.csv --dry-run
     """
     if template is not None:
+        from ledger.cli.outputs import output_file, writing
         from ledger.exports.template import write_template
 
-        write_template(template)
+        output_file(template, "--template")
+        with writing(template, "--template"):
+            write_template(template)
         typer.echo(f"template written: {template}")
         return
     if not files:

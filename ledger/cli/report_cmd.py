@@ -51,15 +51,19 @@ def logbook(
 
     Example: refledger report logbook DE-HAM/LT-RACK --from 2025-01-01 --pdf lt-rack.pdf
     """
+    from ledger.cli.outputs import output_file, output_folder, writing
     from ledger.cli.render import print_json
     from ledger.errors import InputError, LedgerError
-    from ledger.inputs import parse_day, parse_system_ref
+    from ledger.inputs import parse_evaluation_day, parse_system_ref
     from ledger.services import reporting
 
-    first = parse_day(from_on, field="--from") if from_on else None
-    last = parse_day(to_on, field="--to") if to_on else None
+    first = parse_evaluation_day(from_on, field="--from") if from_on else None
+    last = parse_evaluation_day(to_on, field="--to") if to_on else None
     if (ref is None) == (site is None):
         raise LedgerError("SITE/TAG: give either SITE/TAG or --site CODE (not both)")
+    output_folder(out, "--out")
+    output_file(pdf, "--pdf")
+    output_file(xlsx, "--xlsx")
     db = context.open_db()
     if site is not None:
         if out is None:
@@ -77,8 +81,9 @@ def logbook(
             print_json(books)
         for book in books:
             stem = file_stem("logbook", book["site"]["code"], book["system"]["tag"])
-            for path in (write_logbook_pdf(out / f"{stem}.pdf", book),
-                         write_logbook_xlsx(out / f"{stem}.xlsx", book)):
+            for path, writer in ((out / f"{stem}.pdf", write_logbook_pdf), (out / f"{stem}.xlsx", write_logbook_xlsx)):
+                with writing(path, "--out"):
+                    writer(path, book)
                 typer.echo(f"wrote {path}", err=json_out)
         if not books:
             typer.echo(f"site {site} has no systems", err=True)
@@ -93,11 +98,15 @@ def logbook(
     if pdf:
         from ledger.exports.pdf import write_logbook_pdf
 
-        typer.echo(f"wrote {write_logbook_pdf(pdf, book)}", err=json_out)
+        with writing(pdf, "--pdf"):
+            write_logbook_pdf(pdf, book)
+        typer.echo(f"wrote {pdf}", err=json_out)
     if xlsx:
         from ledger.exports.xlsx import write_logbook_xlsx
 
-        typer.echo(f"wrote {write_logbook_xlsx(xlsx, book)}", err=json_out)
+        with writing(xlsx, "--xlsx"):
+            write_logbook_xlsx(xlsx, book)
+        typer.echo(f"wrote {xlsx}", err=json_out)
     if json_out:
         print_json(book)
     else:
@@ -162,19 +171,26 @@ def annual(
 
     Example: refledger report annual --year 2025 --basis ar5 --xlsx losses-2025.xlsx
     """
+    from ledger.cli.outputs import output_file, writing
     from ledger.cli.render import print_json
     from ledger.services.reporting import annual_summary
 
+    output_file(xlsx, "--xlsx")
+    output_file(pdf, "--pdf")
     summary = annual_summary(context.open_db(), year=year, site_code=site, basis=basis, recompute=recompute)
     broken = _gate([summary["integrity"]], allow_broken)
     if xlsx:
         from ledger.exports.xlsx import write_annual_xlsx
 
-        typer.echo(f"wrote {write_annual_xlsx(xlsx, summary)}", err=json_out)
+        with writing(xlsx, "--xlsx"):
+            write_annual_xlsx(xlsx, summary)
+        typer.echo(f"wrote {xlsx}", err=json_out)
     if pdf:
         from ledger.exports.pdf import write_annual_pdf
 
-        typer.echo(f"wrote {write_annual_pdf(pdf, summary)}", err=json_out)
+        with writing(pdf, "--pdf"):
+            write_annual_pdf(pdf, summary)
+        typer.echo(f"wrote {pdf}", err=json_out)
     if json_out:
         print_json(summary)
     elif not (xlsx or pdf):

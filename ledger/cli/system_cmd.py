@@ -119,13 +119,13 @@ def show(
     """
     from ledger.cli.render import print_json
     from ledger.cli.views import print_system
-    from ledger.inputs import parse_day, parse_system_ref
+    from ledger.inputs import parse_evaluation_day, parse_system_ref
     from ledger.services.queries import system_view
     from ledger.services.recording import site_today
 
     site_code, tag = parse_system_ref(ref)
     db = context.open_db()
-    day = parse_day(as_of, field="--as-of") if as_of else None
+    day = parse_evaluation_day(as_of, field="--as-of") if as_of else None
     if day is None:
         from ledger.services.queries import sites
 

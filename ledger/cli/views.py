@@ -21,11 +21,9 @@ def num(value: Any, places: int = 2) -> str:
 
 def mass_in(kg: Any, unit: str) -> Decimal | None:
     """A mass given in kg, in the display unit (kg or lb)."""
-    if kg is None:
-        return None
-    from ledger.units import MG_PER_KG, MG_PER_LB
+    from ledger.exports.common import in_unit
 
-    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+    return in_unit(kg, unit)
 
 
 def print_system(view: dict[str, Any]) -> None:
@@ -74,16 +72,16 @@ def print_system(view: dict[str, Any]) -> None:
             title="Leak rate at each addition",
         )
     table(
-        ["id", "on", "kind", "kg", "result", "by", "certificate", "note"],
+        ["id", "on", "kind", unit, "result", "by", "certificate", "note"],
         [
             [
                 e["id"],
                 e["performed_on"],
                 e["kind"] + (f" (voided by {e['voided_by']}: {e['void_reason']})" if e["voided_by"] else ""),
-                num(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"]),
+                num(mass_in(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"], unit)),
                 e["result"] or e["location"] or (f"voids {e['voids']}: {e['reason']}" if e["voids"] else ""),
                 e["technician"],
-                e["certificate"],
+                e["certificate"] or ("none valid: done by an uncertified person" if e.get("uncertified") else ""),
                 e["note"],
             ]
             for e in view["events"]

@@ -10,6 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import date
 
+from ledger.domain.certificates import WorkFacts
+from ledger.domain.certificates import certificate_findings as work_certificate_findings
 from ledger.domain.records import (
     CheckResult,
     Cylinder,
@@ -86,6 +88,7 @@ def validate_event(
     cylinder_matches: bool | None,
     technician: Technician | None,
     placed_on: date | None,
+    work: WorkFacts | None = None,
 ) -> list[Finding]:
     """Check a draft against the system's state on the event's date.
 
@@ -99,6 +102,8 @@ def validate_event(
         cylinder_matches: whether the cylinder holds the system's refrigerant.
         technician: the technician who did the work, if named.
         placed_on: the day the system was placed in service (from its whole history).
+        work: the site, system and work facts a certificate is judged against; without them
+            only the certificate's dates are checked.
     Returns:
         Findings; any with severity ERROR means the event must not be written.
     """
@@ -147,7 +152,9 @@ def validate_event(
         found.append(error("--destination", f"{draft.destination!r} is not one of {allowed}"))
     if kind is EventKind.VOID and not (draft.reason or "").strip():
         found.append(error("--reason", "is required when voiding an event"))
-    if technician is not None:
+    if work is not None:
+        found.extend(work_certificate_findings(technician, work))
+    elif technician is not None:
         found.extend(certificate_findings(technician, on))
     return found
 

@@ -142,6 +142,10 @@ class System:
     defrost_every_hours: float | None = None
 
 
+def _within(start: date | None, end: date | None, on: date) -> bool:
+    return (start is None or on >= start) and (end is None or on <= end)
+
+
 @dataclass(frozen=True, slots=True)
 class Certificate:
     """A personal certificate held by a technician."""
@@ -151,12 +155,28 @@ class Certificate:
     category: str = ""
     valid_from: date | None = None
     valid_to: date | None = None
+    scope: str = ""  # ledger.domain.certificates.Scope value; "" = recorded before scopes were kept
+    issuer: str = ""  # certification body
 
     def valid_on(self, on: date) -> bool:
         """True when the certificate covers the given day."""
-        if self.valid_from is not None and on < self.valid_from:
-            return False
-        return self.valid_to is None or on <= self.valid_to
+        return _within(self.valid_from, self.valid_to, on)
+
+
+@dataclass(frozen=True, slots=True)
+class CompanyCertificate:
+    """A company (undertaking) certificate, e.g. under Reg. (EU) 2024/573 Art 10."""
+
+    company: str
+    scope: str
+    number: str
+    issuer: str = ""
+    valid_from: date | None = None
+    valid_to: date | None = None
+
+    def valid_on(self, on: date) -> bool:
+        """True when the certificate covers the given day."""
+        return _within(self.valid_from, self.valid_to, on)
 
 
 @dataclass(frozen=True, slots=True)
@@ -208,6 +228,9 @@ class Event:
     attachments: tuple[str, ...] = ()  # SHA-256 hex digests of documents
     reclaimed: bool = False  # added refrigerant was recycled or reclaimed gas
     chain_hash: str | None = None
+    # False when the work was recorded without a certificate valid for it (none named, lapsed,
+    # out of scope): such a check does not meet a leak-check or follow-up-check duty.
+    certified: bool = True
 
 
 @dataclass(frozen=True, slots=True)

@@ -99,6 +99,15 @@ def to_number(value: Any) -> float | int | None:
     return float(value)
 
 
+def in_unit(kg: Any, unit: str) -> Decimal | None:
+    """A mass given in kg, in a site's display unit (kg or lb; exact Decimal, None stays None)."""
+    if kg is None:
+        return None
+    from ledger.units import MG_PER_KG, MG_PER_LB
+
+    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+
+
 def fmt(value: Any, kind: str, places: int | None = None) -> str:
     """A value as display text for PDFs and text output (rounded half-up for display only)."""
     if is_blank(value):
@@ -165,7 +174,8 @@ ART6_MAP: tuple[tuple[str, str, str], ...] = (
      "events 'refrigerant recovered' and 'taken out of service': quantity (kg), recovered gas to"),
     ("(e)", "identity of the undertaking that installed, serviced, checked or decommissioned, "
      "with its certificate number",
-     "events: technician, company, certificate (scheme, number)"),
+     "events: technician, company, company certificate, certificate (scheme, number) and a "
+     "warning where none was valid for the work; system sheet: the companies' certificates"),
     ("(f)", "dates and results of the checks",
      "events 'leak check', 'follow-up check', 'detection system check': date, result, location, "
      "check method"),

@@ -289,7 +289,9 @@ EVENT_COLUMNS: tuple[Column, ...] = (
     Column("destination", "recovered gas to", TEXT),
     Column("technician", "technician", TEXT, width=20),
     Column("company", "company", TEXT, width=24),
+    Column("company_certificate", "company certificate", TEXT, width=22),
     Column("certificate", "certificate (scheme, number)", TEXT, width=30),
+    Column("uncertified", "certificate warning", TEXT, width=36),
     Column("recorded_by", "recorded by", TEXT),
     Column("recorded_at", "recorded at (UTC)", DATETIME, width=20),
     Column("note", "note", TEXT, width=40),
@@ -308,18 +310,38 @@ def void_text(row: Mapping[str, Any]) -> str:
     return ""
 
 
+_MASS_KEYS = ("mass_kg", "charge_kg", "cylinder_before_kg", "cylinder_after_kg")
+
+
+def event_columns(unit: str) -> tuple[Column, ...]:
+    """The logbook's event columns; a site shown in pounds gets a pound column beside each kg one."""
+    if unit != "lb":
+        return EVENT_COLUMNS
+    out: list[Column] = []
+    for c in EVENT_COLUMNS:
+        out.append(c)
+        if c.key in _MASS_KEYS:
+            out.append(Column(c.key.removesuffix("_kg") + "_lb", c.header.replace("(kg)", "(lb)"), KG))
+    return tuple(out)
+
+
 def logbook_sheets(book: Mapping[str, Any]) -> list[Sheet]:
     """The tables of a system logbook: system facts, events, obligations, leak rates (US)."""
+    from ledger.exports.common import in_unit
+
     facts = logbook_facts(book)
     fact_cols = (Column("item", "item", TEXT, width=30), Column("value", "value", TEXT, width=70))
+    unit = book["site"].get("mass_unit") or "kg"
+    columns = event_columns(unit)
     events = [
         {**e, "void_text": void_text(e), "attachments": " ".join(e["attachments"]),
-         "dim": e["voided"]}
+         "dim": e["voided"],
+         **{k.removesuffix("_kg") + "_lb": in_unit(e[k], "lb") for k in _MASS_KEYS}}
         for e in book["events"]
     ]
     sheets = [
         Sheet("system", fact_cols, frame(facts, fact_cols), title="System"),
-        Sheet("events", EVENT_COLUMNS, frame(events, EVENT_COLUMNS, ["dim"]), dim="dim",
+        Sheet("events", columns, frame(events, columns, ["dim"]), dim="dim",
               title="Events"),
         obligation_sheet(book["obligations"], "obligations"),
     ]
@@ -390,6 +412,15 @@ def logbook_facts(book: Mapping[str, Any]) -> list[dict[str, Any]]:
                     else "no periodic leak check")
         reason = f"; {t['reason']}" if t["reason"] else ""
         rows.append((f"tier ({t['regime']})", f"{t['band']}, {interval} [{t['basis']}]{reason}"))
+    for c in book.get("companies", ()):
+        until = fmt(c["valid_to"], DATE) if c["valid_to"] else "open"
+        rows.append((f"company certificate ({c['company']})",
+                     f"{c['scope']} {c['certificate']}" + (f", {c['issuer']}" if c["issuer"] else "")
+                     + f", valid {fmt(c['valid_from'], DATE) or '?'} to {until}"))
+    uncertified = sum(1 for e in book["events"] if e.get("uncertified"))
+    if uncertified:
+        rows.append(("work without a valid certificate",
+                     f"{uncertified} event(s): done by an uncertified person; they meet no check duty"))
     rows += [
         ("period", f"{fmt(book['period']['from'], DATE)} to {fmt(book['period']['to'], DATE)}"),
         ("chain head", book["chain_head"] or ""),

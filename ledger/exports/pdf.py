@@ -60,6 +60,7 @@ from ledger.exports.common import (
     TONNES,
     VOIDED_INK,
     fmt,
+    in_unit,
     recorded_text,
     report_lines,
     short_hash,
@@ -715,16 +716,18 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
 
     story.append(PageBreak())
     adds = sum((e["mass_kg"] or Decimal(0)) for e in events if e["kind"] == "add" and not e["voided"])
-    story.append(_p(f"{len(events)} events, {fmt(adds, KG, 1)} kg added in the period"
+    unit = book["site"].get("mass_unit") or "kg"
+    story.append(_p(f"{len(events)} events, {fmt(in_unit(adds, unit), KG, 1)} {unit} added in the period"
                     + (f"; {voided} voided (struck through, kept)" if voided else ""), st.lead))
     rows = []
     for e in events:
-        qty = e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"]
+        qty = in_unit(e["mass_kg"] if e["mass_kg"] is not None else e["charge_kg"], unit)
         gas = [e["refrigerant"]] if e["refrigerant"] and e["kind"] in _GAS_KINDS else []
         if e["cylinder"]:
             cyl = f"cyl. {e['cylinder']}" + (f" ({e['cylinder_kind']})" if e["cylinder_kind"] else "")
             if e["cylinder_before_kg"] is not None:
-                cyl += (f" {fmt(e['cylinder_before_kg'], KG)} -> {fmt(e['cylinder_after_kg'], KG)} kg")
+                cyl += (f" {fmt(in_unit(e['cylinder_before_kg'], unit), KG)} -> "
+                        f"{fmt(in_unit(e['cylinder_after_kg'], unit), KG)} {unit}")
             gas.append(cyl)
         if e["reclaimed"]:
             gas.append("recycled/reclaimed gas")
@@ -732,7 +735,10 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
             gas.append(f"for {e['added_for']}")
         outcome = [x for x in (e["result"], e["location"], e["method"],
                                f"to {e['destination']}" if e["destination"] else None) if x]
-        who = [x for x in (e["technician"], e["company"], e["certificate"]) if x]
+        company = e["company"]
+        if company and e.get("company_certificate"):
+            company += f" (company cert. {e['company_certificate']})"
+        who = [x for x in (e["technician"], company, e["certificate"], e.get("uncertified")) if x]
         note: list[str] = [e["note"]] if e["note"] else []
         if e["attachments"]:
             note.append("docs " + ", ".join(short_hash(a, 10) for a in e["attachments"]))
@@ -748,7 +754,7 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
                      "; ".join(who), note_cell, recorded_text(e)])
     story.append(table(
         [Col("date", DATE, 0.72), Col("#", weight=0.35), Col("kind", weight=1.05),
-         Col("kg", KG, 0.55), Col("gas, cylinder, reclaimed", weight=1.6),
+         Col(unit, KG, 0.55), Col("gas, cylinder, reclaimed", weight=1.6),
          Col("result, location, method, destination", weight=1.5),
          Col("technician, company, certificate", weight=1.7), Col("note, correction", weight=1.9),
          Col("recorded by, at (UTC), hash", weight=1.55)],

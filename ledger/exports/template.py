@@ -22,6 +22,8 @@ EXAMPLES: dict[str, dict[str, str]] = {
         "category": "I",
         "valid_from": "2019-05-01",
         "valid_to": "2029-04-30",
+        "scope": "eu",
+        "issuer": "Prüfstelle Elbe (example)",
     },
     "cylinders": {"id": "HAM-C-014", "refrigerant": "R-448A", "kind": "virgin", "tare": "13.6 kg"},
     "systems": {

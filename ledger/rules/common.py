@@ -781,10 +781,17 @@ def periodic_check_obligations(
     system_id, site_code = history.system.id, history.site.code
     out: list[Obligation] = []
     by_id = {e.id: e for e in events}
-    checks = [e for e in events if e.kind is EventKind.CHECK]
+    # A check recorded without a certificate valid for the work does not meet a duty (EU
+    # 2024/573 Art 4(5), 517/2014 Art 3(3) and 10: checks by certified persons); it is named
+    # on the duty it did not meet.
+    checks = [e for e in events if e.kind is EventKind.CHECK and e.certified]
+    follow_ups = [e for e in events if e.kind is EventKind.FOLLOW_UP and e.certified]
+    uncertified = [e for e in events if e.kind in (EventKind.CHECK, EventKind.FOLLOW_UP) and not e.certified]
 
     def add(kind: ObligationKind, due: date, basis: Basis, met: Event | None, cause: EventId | None,
-            detail: str, earliest: date | None = None) -> None:
+            detail: str, earliest: date | None = None, opens: date | None = None) -> None:
+        if met is None and uncertified:
+            detail += uncertified_note(uncertified, kind, opens or earliest, max(due, as_of))
         if due < emit_from:
             # Due under the earlier law: listed only if still outstanding when this rule
             # applied (not met, system in service, no leak check since that re-examined the
@@ -821,7 +828,7 @@ def periodic_check_obligations(
                               change_dates=changes, checks=checks, events=events, as_of=as_of,
                               emit_from=emit_from):
         add(ObligationKind.LEAK_CHECK, w.due_on, w.cadence.basis, w.met_by, w.cause,
-            window_detail(w, "leak check"))
+            window_detail(w, "leak check"), opens=w.opens_on)
 
     # Repairs of found leaks.
     for leak in leak_found_events(events):
@@ -848,7 +855,7 @@ def periodic_check_obligations(
             continue
         earliest = repair.performed_on + timedelta(days=follow_up_earliest_days)
         due = add_months(repair.performed_on, 1)
-        met = first_event(events, (EventKind.FOLLOW_UP,), on_or_after=earliest, after=repair)
+        met = first_event(follow_ups, (EventKind.FOLLOW_UP,), on_or_after=earliest, after=repair)
         if met is None and retired_between(events, repair.performed_on, due):
             continue
         add(ObligationKind.FOLLOW_UP_CHECK, due, a.follow_up_basis, met, repair.id,
@@ -895,6 +902,26 @@ def periodic_check_obligations(
         add(ObligationKind.DETECTION_SYSTEM_CHECK, w.due_on, w.cadence.basis, w.met_by, w.cause,
             window_detail(w, "check"))
     return out
+
+
+UNCERTIFIED = "done by an uncertified person"
+
+
+def uncertified_note(uncertified: Sequence[Event], kind: ObligationKind, opens: date | None, until: date) -> str:
+    """A clause naming the checks in a duty's window that were done without a valid certificate.
+
+    Only leak-check and follow-up-check duties are met by checks; the window runs from the
+    day it opens to ``until`` (its due date, or the day of evaluation for one overdue).
+    """
+    wanted = EventKind.CHECK if kind is ObligationKind.LEAK_CHECK else EventKind.FOLLOW_UP
+    if kind not in (ObligationKind.LEAK_CHECK, ObligationKind.FOLLOW_UP_CHECK):
+        return ""
+    hits = [e for e in uncertified if e.kind is wanted and (opens is None or e.performed_on >= opens)
+            and e.performed_on <= until]
+    if not hits:
+        return ""
+    days = ", ".join(f"{e.performed_on.isoformat()} (event {e.id})" for e in hits)
+    return f"; {UNCERTIFIED} on {days}: it does not count"
 
 
 def _merge_spans(spans: Sequence[Segment]) -> list[Segment]:

@@ -286,21 +286,14 @@ def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLik
 
 
 def first_record_year(histories: Sequence[SystemHistory]) -> int | None:
-    """The first calendar year the ledger holds a record of these systems.
+    """The first calendar year the ledger holds a record of these systems, placement included.
 
-    A system's placement in service, and what was recorded with it on the same day (a
-    detection system fitted at installation), count only where nothing else was recorded: a
-    system placed in service long before its records were moved into the ledger does not
-    make the ledger answer for reports of years it holds nothing about.
+    Every year from then on has its report (from the program's start). A later record never
+    removes an earlier year's duty: a system placed in service long before its records were
+    moved into the ledger has those years' reports listed until their filings are recorded.
     """
-    placed_on = {(h.system.id, e.performed_on) for h in histories for e in h.events
-                 if e.kind is EventKind.IN_SERVICE}
-    others = [e.performed_on.year for h in histories for e in h.events
-              if (h.system.id, e.performed_on) not in placed_on]
-    if others:
-        return min(others)
-    placed = [day.year for _, day in placed_on]
-    return min(placed) if placed else None
+    years = [e.performed_on.year for h in histories for e in h.events]
+    return min(years) if years else None
 
 
 def _report_obligations(site_code: str, histories: Sequence[SystemHistory],

@@ -27,6 +27,7 @@ FORMAT_VERSION = 1
 TABLE_ORDER = (
     "site",
     "company",
+    "company_certificate",
     "technician",
     "certificate",
     "cylinder",
@@ -233,6 +234,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
             sheets["technicians"].append({
                 "name": t.name, "company": t.company, "scheme": c.scheme, "certificate": c.number,
                 "category": c.category, "valid_from": _day(c.valid_from), "valid_to": _day(c.valid_to),
+                "scope": c.scope, "issuer": c.issuer,
             })
     for cy in cylinders:
         sheets["cylinders"].append({"id": cy.id, "refrigerant": cy.refrigerant, "kind": cy.kind.value,

@@ -62,6 +62,8 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         if summary.added["sites"] == 0 and summary.skipped["sites"]:
             raise Conflict("db: already holds these sites; use an empty database or --replace")
         as_of = DEMO_AS_OF
+        if (records / "companies.csv").exists():
+            add_company_certificates(db, records / "companies.csv")
         correct_at_the_desk(db)
         file_past_reports(db)
         detectors = records / "detectors"
@@ -135,15 +137,32 @@ def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
 
 
 def file_past_reports(db: Database) -> None:
-    """The Sacramento office filed its California annual reports for 2023 and 2024, not 2025.
+    """The Sacramento office filed its California annual reports for 2016 (the rack's first
+    year) to 2024, not 2025.
 
     The unfiled 2025 report stays overdue beside the open 2026 one (17 CCR 95380 ff.).
     """
     from ledger.services.recording import record_filing
 
-    for year, filed_on in ((2023, date(2024, 2, 20)), (2024, date(2025, 2, 24))):
+    for year in range(2016, 2025):
+        filed_on = date(year + 1, 2, 20)
         record_filing(db, site_code="CA-SAC", regime="us-ca", period_year=year, filed_on=filed_on,
                       reference=f"CARB-RMP-{year}-0417", recorded_by="Dana Whitfield")
+
+
+def add_company_certificates(db: Database, path: Path) -> None:
+    """The demo's company certificates (the import format has no sheet for them yet)."""
+    import csv
+
+    from ledger.services.recording import add_company_certificate
+
+    with path.open(encoding="utf-8") as fh:
+        for row in csv.DictReader(fh):
+            add_company_certificate(
+                db, company=row["company"], number=row["certificate"], scope=row["scope"], issuer=row["issuer"],
+                valid_from=date.fromisoformat(row["valid_from"]) if row["valid_from"] else None,
+                valid_to=date.fromisoformat(row["valid_to"]) if row["valid_to"] else None,
+            )
 
 
 def correct_at_the_desk(db: Database) -> None:

@@ -19,10 +19,10 @@ from datetime import UTC, date, datetime
 from pathlib import Path
 from typing import Any
 
+from ledger.domain.certificates import WorkFacts, certificate_for
 from ledger.domain.drafts import EventDraft, cylinder_mass_mg, validate_event
 from ledger.domain.records import (
     Application,
-    Certificate,
     Cylinder,
     CylinderKind,
     EquipmentForm,
@@ -34,7 +34,7 @@ from ledger.domain.records import (
     Technician,
 )
 from ledger.domain.state import state_of
-from ledger.errors import LedgerError
+from ledger.errors import InputError, LedgerError
 from ledger.reference import load_reference
 from ledger.store import chain
 from ledger.store import repository as repo
@@ -51,7 +51,7 @@ COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
     ),
     "technicians": (
         frozenset({"name", "scheme", "certificate"}),
-        frozenset({"company", "category", "valid_from", "valid_to"}),
+        frozenset({"company", "category", "valid_from", "valid_to", "scope", "issuer"}),
     ),
     "cylinders": (frozenset({"id", "refrigerant", "kind"}), frozenset({"tare"})),
     "systems": (
@@ -514,14 +514,23 @@ class _Job:
             scheme = c.text("scheme", required=True)
             number = c.text("certificate", required=True)
             valid_from, valid_to = c.day("valid_from"), c.day("valid_to")
+            cert = None
             if valid_from and valid_to and valid_to < valid_from:
                 c.fail("valid_to", "is before valid_from")
-            if c.bad:
+            elif number and scheme:
+                from ledger.services.recording import certificate_of
+
+                try:
+                    cert = certificate_of(number=number, scheme=scheme, scope=c.text("scope"),
+                                          category=c.text("category"), valid_from=valid_from, valid_to=valid_to,
+                                          issuer=c.text("issuer"))
+                except InputError as exc:
+                    c.fail(exc.field.lstrip("-"), f"{exc.value!r} {exc.problem}")
+            if c.bad or cert is None:
                 continue
             if (scheme, number) in certs:
                 self.summary.skipped["technicians"] += 1
                 continue
-            cert = Certificate(scheme, number, c.text("category"), valid_from, valid_to)
             if name not in tech_ids:
                 tech_ids[name] = repo.insert_technician(
                     conn=self.conn, name=name, company_name=c.text("company") or None, certificates=[cert]
@@ -616,7 +625,9 @@ class _Job:
                     "defrost_every_hours": defrost_h,
                 },
             )
-            tech_id, cert_id = self._tech_ids(techs, tech_name, in_service)
+            facts = None if in_service is None else WorkFacts(
+                EventKind.IN_SERVICE, in_service, sites[site_code].regimes, charge or 0, flags["hermetic"], refrigerant)
+            tech_id, cert_id, _ = self._tech_ids(techs, tech_name, facts)
             common = {
                 "system_id": system_id,
                 "performed_on": in_service,
@@ -639,22 +650,18 @@ class _Job:
         return {t.name: (t, cert_ids.get(t.id, {})) for t in repo.list_technicians(conn=self.conn)}
 
     @staticmethod
-    def _certificate_key(techs: dict[str, tuple[Technician, dict[str, int]]], name: str, on: date) -> str | None:
-        """The natural key (``scheme|number``) of the certificate ``_tech_ids`` picks."""
-        if not name or name not in techs:
-            return None
-        valid = [cert for cert in techs[name][0].certificates if cert.valid_on(on)]
-        return f"{valid[0].scheme}|{valid[0].number}" if valid else None
-
-    @staticmethod
     def _tech_ids(
-        techs: dict[str, tuple[Technician, dict[str, int]]], name: str, on: date | None
-    ) -> tuple[int | None, int | None]:
-        if not name or name not in techs or on is None:
-            return None, None
+        techs: dict[str, tuple[Technician, dict[str, int]]], name: str, facts: WorkFacts | None
+    ) -> tuple[int | None, int | None, str | None]:
+        """Technician row id, the row id and natural key (``scheme|number``) of the certificate
+        that covers the work (``ledger.domain.certificates``), as ``log`` picks it."""
+        if not name or name not in techs or facts is None:
+            return None, None, None
         tech, cert_ids = techs[name]
-        valid = [cert for cert in tech.certificates if cert.valid_on(on)]
-        return tech.id, (cert_ids[valid[0].number] if valid else None)
+        cert, _ = certificate_for(tech, facts)
+        if cert is None:
+            return tech.id, None, None
+        return tech.id, cert_ids[cert.number], f"{cert.scheme}|{cert.number}"
 
     # -- events --
     def events(self, rows: list[Row]) -> None:
@@ -674,8 +681,9 @@ class _Job:
         # and no other writer can extend them meanwhile.
         repo.lock_systems(touched, conn=conn)
         heads = repo.chain_heads(touched, conn=conn)
-        # What validate_event needs of a system's state on a day is its refrigerant and whether
-        # it was retired by then (tests/services/test_importing_equivalence.py holds it to that), and
+        # What validate_event needs of a system's state on a day is its refrigerant, its full
+        # charge (which certificate covers work on it) and whether it was retired by then
+        # (tests/services/test_importing_equivalence.py holds it to that), and
         # only these kinds decide those: the state folded from them alone is the same. They are
         # a few events per system, found by index, where the whole history is thousands.
         folds: dict[int, list[Event]] = defaultdict(list)
@@ -697,7 +705,8 @@ class _Job:
         # they fold to (its state on that day and every day after); dropped when a row folds in.
         settled: dict[int, tuple[date | None, SystemState]] = {}
         placed: dict[int, date | None] = {}
-        people: dict[tuple[str, date], tuple[int | None, int | None, str | None]] = {}
+        people: dict[tuple[str, WorkFacts], tuple[int | None, int | None, str | None]] = {}
+        hermetic = repo.hermetic_flags(conn=conn)
         days: dict[str, date] = {}  # "on" cells read so far
         now_text = _utc_text(self.now)
         pending: list[tuple[Any, ...]] = []
@@ -792,6 +801,8 @@ class _Job:
             if sid not in placed:
                 placed[sid] = placed_on(folds[sid])  # placing in service is never imported nor voided
             tech = techs[draft.technician][0] if draft.technician else None
+            facts = WorkFacts(kind, on, sites[site_code].regimes, state.full_charge_mg, hermetic.get(sid, False),
+                              state.refrigerant)
             findings = validate_event(
                 draft,
                 state,
@@ -803,6 +814,7 @@ class _Job:
                 cylinder_matches=None if cylinder is None else cylinder.refrigerant == state.refrigerant,
                 technician=tech,
                 placed_on=placed[sid],
+                work=facts,
             )
             if weight_findings:
                 findings = weight_findings + findings
@@ -815,12 +827,9 @@ class _Job:
                     continue
                 warnings.extend(f"{row.source}: {f.message}" for f in findings if f.severity is Severity.WARNING)
             tech_name = draft.technician or ""
-            who = people.get((tech_name, on))
+            who = people.get((tech_name, facts))
             if who is None:
-                who = people[(tech_name, on)] = (
-                    *self._tech_ids(techs, tech_name, on),
-                    self._certificate_key(techs, tech_name, on),
-                )
+                who = people[(tech_name, facts)] = self._tech_ids(techs, tech_name, facts)
             tech_id, cert_id, cert_key = who
             refrigerant = draft.refrigerant if kind is EventKind.RETROFIT else None
             attached = " ".join(attachments)
@@ -965,7 +974,8 @@ _EVENT_COLUMNS = (
     "voids_id", "reason", "prev_hash", "chain_hash",
 )
 # The kinds that decide a system's refrigerant and retirement (see _Job.events).
-_FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RETIRE, EventKind.VOID})
+_FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RETIRE, EventKind.VOID,
+                         EventKind.CHARGE_REVISED})
 _KINDS = {k.value: k for k in EventKind}
 _KIND_CHOICES = sorted(k.value for k in IMPORT_KINDS)
 _IMPORTED = {k.value: k for k in IMPORT_KINDS}

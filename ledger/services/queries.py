@@ -10,6 +10,7 @@ from datetime import date
 from decimal import Decimal
 from typing import Any
 
+from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import Event, Obligation, ObligationStatus, SystemHistory
 from ledger.domain.state import state_of
 from ledger.reference import load_reference
@@ -59,11 +60,23 @@ def technicians(db: Database) -> list[dict[str, Any]]:
                         "category": c.category,
                         "valid_from": c.valid_from,
                         "valid_to": c.valid_to,
+                        "scope": c.scope,
+                        "issuer": c.issuer,
                     }
                     for c in t.certificates
                 ],
             }
             for t in repo.list_technicians(conn=conn)
+        ]
+
+
+def company_certificates(db: Database) -> list[dict[str, Any]]:
+    """Every company certificate."""
+    with db.read() as conn:
+        return [
+            {"company": c.company, "scope": c.scope, "certificate": c.number, "issuer": c.issuer,
+             "valid_from": c.valid_from, "valid_to": c.valid_to}
+            for c in repo.company_certificates(conn=conn)
         ]
 
 
@@ -97,6 +110,7 @@ def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
         "technician": e.technician,
         "company": e.company,
         "certificate": e.certificate,
+        "uncertified": uncertified_work(e) and void is None,
         "recorded_by": e.recorded_by,
         "note": e.note,
         "voids": e.voids_id,

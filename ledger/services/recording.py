@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+from ledger.domain.certificates import WorkFacts
 from ledger.domain.drafts import EventDraft, cylinder_mass_mg, validate_event
 from ledger.domain.records import (
     Application,
@@ -166,7 +167,8 @@ def add_system(
         today = site_today(the_site.timezone)
         if in_service_on > today:
             raise InputError("--in-service", in_service_on.isoformat(), f"is in the future (today is {today})")
-        tech_id, cert_id, warnings = _technician_for(technician, in_service_on, conn=conn)
+        facts = WorkFacts(EventKind.IN_SERVICE, in_service_on, the_site.regimes, charge_mg, hermetic, ref.designation)
+        tech_id, cert_id, warnings = _technician_for(technician, facts, conn=conn)
         system_id = repo.insert_system(
             conn=conn,
             site_id=the_site.id,
@@ -226,25 +228,83 @@ def set_system(db: Database, *, site_code: str, tag: str, defrost_every_hours: f
 # ---- people and cylinders -----------------------------------------------------------------
 
 
-def add_technician(
-    db: Database,
+def certificate_of(
     *,
-    name: str,
-    certificate: str,
+    number: str,
     scheme: str,
+    scope: str = "",
     category: str = "",
     valid_from: date | None = None,
     valid_to: date | None = None,
-    company: str | None = None,
-) -> None:
-    """Add a technician with one certificate."""
-    if not name.strip():
-        raise InputError("NAME", name, "must not be empty")
+    issuer: str = "",
+) -> Certificate:
+    """Check a personal certificate's fields; the category must be one the scope issues.
+
+    Raises:
+        InputError: naming the field and value that is wrong.
+    """
+    from ledger.domain.certificates import CATEGORIES, Scope, normal_category
+
+    if not number.strip():
+        raise InputError("--certificate", number, "must not be empty")
     if valid_from and valid_to and valid_to < valid_from:
         raise InputError("--valid-to", valid_to.isoformat(), "is before --valid-from")
-    cert = Certificate(scheme.strip(), certificate.strip(), category.strip(), valid_from, valid_to)
+    scope = scope.strip().lower()
+    if scope:
+        if scope not in {s.value for s in Scope}:
+            raise InputError("--scope", scope, f"is not one of {', '.join(s.value for s in Scope)}")
+        known = normal_category(scope, category)
+        if known is None:
+            raise InputError("--category", category, f"is not one of {', '.join(CATEGORIES[Scope(scope)])} "
+                             f"for a {scope} certificate")
+        category = known
+    return Certificate(scheme.strip(), number.strip(), category.strip(), valid_from, valid_to, scope, issuer.strip())
+
+
+def add_technician(
+    db: Database, *, name: str, certificate: str, company: str | None = None, **fields: Any
+) -> None:
+    """Add a technician with one certificate (``certificate`` is its number; other fields as
+    ``certificate_of``)."""
+    if not name.strip():
+        raise InputError("NAME", name, "must not be empty")
+    cert = certificate_of(number=certificate, **fields)
     with db.write() as conn:
         repo.insert_technician(conn=conn, name=name.strip(), company_name=company, certificates=[cert])
+
+
+def add_certificate(db: Database, *, name: str, certificate: str, **fields: Any) -> Certificate:
+    """Add a certificate (a renewal, another category) to a technician already in the ledger."""
+    cert = certificate_of(number=certificate, **fields)
+    with db.write() as conn:
+        tech, _ = repo.get_technician(name.strip(), conn=conn)
+        repo.add_certificate(conn=conn, technician_id=tech.id, cert=cert)
+    return cert
+
+
+def add_company_certificate(
+    db: Database,
+    *,
+    company: str,
+    number: str,
+    scope: str,
+    issuer: str = "",
+    valid_from: date | None = None,
+    valid_to: date | None = None,
+) -> None:
+    """Record a company (undertaking) certificate; the company is added on first mention."""
+    from ledger.domain.certificates import Scope
+    from ledger.domain.records import CompanyCertificate
+
+    if not company.strip():
+        raise InputError("COMPANY", company, "must not be empty")
+    cert = certificate_of(number=number, scheme="", valid_from=valid_from, valid_to=valid_to)
+    scope = scope.strip().lower()
+    if scope not in {s.value for s in Scope}:
+        raise InputError("--scope", scope, f"is not one of {', '.join(s.value for s in Scope)}")
+    with db.write() as conn:
+        repo.add_company_certificate(conn=conn, cert=CompanyCertificate(
+            company.strip(), scope, cert.number, issuer.strip(), cert.valid_from, cert.valid_to))
 
 
 def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_mg: int | None) -> None:
@@ -269,15 +329,15 @@ def attachment_digest(path: Path) -> str:
         raise InputError("--attach", str(path), f"cannot be read ({exc.strerror})") from None
 
 
-def _technician_for(name: str | None, on: date, *, conn) -> tuple[int | None, int | None, list[Finding]]:  # type: ignore[no-untyped-def]
-    from ledger.domain.drafts import certificate_findings
+def _technician_for(name: str | None, facts: WorkFacts, *, conn) -> tuple[int | None, int | None, list[Finding]]:  # type: ignore[no-untyped-def]
+    """The technician's row id, the id of the certificate that covers the work, and warnings."""
+    from ledger.domain.certificates import certificate_findings, certificate_for
 
     if not name:
         return None, None, []
     tech, cert_ids = repo.get_technician(name, conn=conn)
-    valid = [c for c in tech.certificates if c.valid_on(on)]
-    cert_id = cert_ids[valid[0].number] if valid else None
-    return tech.id, cert_id, certificate_findings(tech, on)
+    cert, _ = certificate_for(tech, facts)
+    return tech.id, (cert_ids[cert.number] if cert else None), certificate_findings(tech, facts)
 
 
 def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> Logged:
@@ -308,6 +368,7 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
         tech = None
         if draft.technician:
             tech, _ = repo.get_technician(draft.technician, conn=conn)
+        facts = work_facts(draft, state, the_site, sys_)
         findings = validate_event(
             draft,
             state,
@@ -317,9 +378,10 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
             cylinder_matches=cylinder_matches,
             technician=tech,
             placed_on=placed_on(events),
+            work=facts,
         )
         _raise_first_error(findings)
-        tech_id, cert_id, _ = _technician_for(draft.technician, draft.performed_on, conn=conn)
+        tech_id, cert_id, _ = _technician_for(draft.technician, facts, conn=conn)
         values = {
             "system_id": sys_.id,
             "kind": draft.kind.value,
@@ -363,6 +425,12 @@ def servicing_warnings(reference: Any, site: Site, system: System, state: System
     probe = Event(id=0, system_id=system.id, kind=kind, performed_on=on, reclaimed=reclaimed)
     return top_up_findings(system, site.regimes, state, probe, reference, load_servicing(),
                            f"{site.code}/{system.tag} {on.isoformat()}")
+
+
+def work_facts(draft: EventDraft, state: SystemState, site: Site, system: System) -> WorkFacts:
+    """What a certificate is judged against for this draft on this system (see domain.certificates)."""
+    charge = draft.charge_mg if draft.kind is EventKind.IN_SERVICE and draft.charge_mg else state.full_charge_mg
+    return WorkFacts(draft.kind, draft.performed_on, site.regimes, charge or 0, system.hermetic, state.refrigerant)
 
 
 def placed_on(events: Sequence[Event]) -> date | None:

@@ -22,8 +22,10 @@ from typing import Any
 
 from ledger import __version__
 from ledger.domain import emissions as em
+from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import (
     CheckResult,
+    CompanyCertificate,
     Cylinder,
     Event,
     EventKind,
@@ -599,6 +601,8 @@ def annual_data(
         as_of: the day the obligations were evaluated (default 31 December of the year).
         site_code: the site the summary was limited to, if any (shown only).
         generated_at: generation time printed on the report.
+        company_certificates: every company certificate (the one valid on an event's day is
+            printed beside the company, 517/2014 Art 6(1)(e)).
     Returns:
         The JSON contract: year, basis, systems, sites, refrigerants, estate, scope1, caution
         and further keys (see docs/reports.md).
@@ -877,6 +881,7 @@ def logbook_data(
     cylinders: Mapping[str, Cylinder],
     generated_at: datetime | None = None,
     findings: Sequence[Finding] = (),
+    company_certificates: Sequence[CompanyCertificate] = (),
 ) -> dict[str, Any]:
     """One system's logbook over a period (pure: no database, no clock).
 
@@ -961,7 +966,9 @@ def logbook_data(
             "destination": e.destination,
             "technician": e.technician,
             "company": e.company,
+            "company_certificate": _company_certificate(company_certificates, e.company, e.performed_on),
             "certificate": e.certificate,
+            "uncertified": UNCERTIFIED_WORK if (uncertified_work(e) and not void) else None,
             "recorded_by": e.recorded_by,
             "recorded_at": e.recorded_at,
             "note": e.note,
@@ -1029,6 +1036,11 @@ def logbook_data(
             {"source": f.source, "message": f.message, "severity": f.severity.value}
             for f in [*findings, *_servicing_findings(history, reference, from_on, to_on)]
         ],
+        "companies": [
+            {"company": c.company, "scope": c.scope, "certificate": c.number, "issuer": c.issuer,
+             "valid_from": c.valid_from, "valid_to": c.valid_to}
+            for c in company_certificates if c.company in {e.company for e in history.events if e.company}
+        ],
         "chain_head": chain_head_of(history.events),
         "events_total": len(history.events),
         "generated_at": generated_at,
@@ -1059,6 +1071,14 @@ def _servicing_findings(history: SystemHistory, reference: Reference, from_on: d
     from ledger.rules.servicing import prohibited_top_ups
 
     return [f for _, f in prohibited_top_ups(history, reference, load_servicing(), from_on, to_on)]
+
+
+UNCERTIFIED_WORK = "warning: no certificate valid for this work; done by an uncertified person"
+
+
+def _company_certificate(certs: Sequence[CompanyCertificate], company: str | None, on: date) -> str | None:
+    found = [c for c in certs if c.company == company and c.valid_on(on)]
+    return f"{found[-1].scope} {found[-1].number}" if found else None
 
 
 def _period(history: SystemHistory, from_on: date | None, to_on: date | None) -> date:
@@ -1100,6 +1120,7 @@ def _logbooks(
         if tag is None:
             repo.get_site(site_code, conn=conn)
         cylinders = {c.id: c for c in repo.list_cylinders(conn=conn)}
+        companies = repo.company_certificates(conn=conn)
     histories, evidence = load_evidence(db, site_code=None if tag else site_code, system_id=system_id)
     if not histories:
         return []
@@ -1114,7 +1135,7 @@ def _logbooks(
     checks = {h.system.id: _one_system(site_check, f"{h.site.code}/{h.system.tag}", names) for h in histories}
     books = [
         logbook_data(h, reference, from_on=from_on, to_on=to_day, obligations=obligations,
-                     cylinders=cylinders, generated_at=now,
+                     cylinders=cylinders, generated_at=now, company_certificates=companies,
                      findings=[f for f in findings if f.source.startswith(f"{h.site.code}/{h.system.tag}")])
         for h in histories
     ]

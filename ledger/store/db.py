@@ -26,7 +26,7 @@ ENV_VAR = "REFLEDGER_DB"
 READINGS_ENV_VAR = "REFLEDGER_READINGS"
 # Newest migration revision; tests assert it equals Alembic's script head, so every
 # command can check the schema with one SELECT instead of importing Alembic.
-HEAD_REVISION = "0006"
+HEAD_REVISION = "0007"
 SQLITE_BUSY_TIMEOUT_MS = 30_000  # concurrent loggers wait this long for the write lock
 
 
@@ -97,9 +97,8 @@ def make_engine(location: Location) -> Engine:
     from sqlalchemy import create_engine, event
 
     if location.is_sqlite:
-        path = location.sqlite_path
-        if path is not None:
-            path.parent.mkdir(parents=True, exist_ok=True)
+        # The file (and its folder) is made only by `create_file` (db init, demo, restore): a
+        # read or an ordinary write on a missing file is refused by `check_schema`.
         engine = create_engine(location.url, connect_args={"timeout": SQLITE_BUSY_TIMEOUT_MS / 1000})
 
         @event.listens_for(engine, "connect")
@@ -150,6 +149,7 @@ class Database:
         """Refuse to work on a database that is not at the migration head."""
         if self._checked:
             return
+        missing_file(self.location)
         try:
             with self.engine.connect() as conn:
                 revision = current_revision(conn)
@@ -194,6 +194,34 @@ class Database:
                 yield conn
 
 
+def missing_file(location: Location) -> None:
+    """Refuse an SQLite ledger file that is not there (or is a folder) before anything opens it,
+    so that asking a missing ledger creates no empty file."""
+    path = location.sqlite_path
+    if path is None:
+        return
+    if path.is_dir():
+        raise SchemaOutOfDate(f"db: {path} is a folder, not a ledger file (from {location.source})")
+    if not path.exists():
+        raise SchemaOutOfDate(
+            f"db: no ledger at {path} (from {location.source}); run `refledger db init` to create one "
+            "there, or name another with --db"
+        )
+
+
+def create_file(location: Location) -> None:
+    """Make the folder of a new SQLite ledger file (the commands that create a ledger call this)."""
+    path = location.sqlite_path
+    if path is None:
+        return
+    if path.is_dir():
+        raise LedgerError(f"db: {path} is a folder, not a ledger file (from {location.source})")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise LedgerError(f"db: cannot create a ledger at {path}: {exc.strerror or exc}") from None
+
+
 def _is_driver_error(exc: Exception) -> bool:
     from sqlalchemy.exc import DBAPIError
 
@@ -223,6 +251,9 @@ def status(location: Location) -> tuple[str | None, list[str]]:
     from alembic.script import ScriptDirectory
 
     script = ScriptDirectory.from_config(alembic_config(location))
+    path = location.sqlite_path
+    if path is not None and not path.exists():  # nothing applied; looking must not create the file
+        return None, [rev.revision for rev in reversed(list(script.walk_revisions()))]
     db = Database(location)
     try:
         with db.engine.connect() as conn:
@@ -253,6 +284,7 @@ def upgrade(location: Location, *, backup: bool = True) -> tuple[str | None, str
     """
     from alembic import command
 
+    create_file(location)
     before, pending = status(location)
     saved: Path | None = None
     path = location.sqlite_path

@@ -50,6 +50,7 @@ RECORD_VERSION = 1  # the "v" of a version body; bump when its form changes (nee
 RECORD_TABLES: tuple[str, ...] = (
     "site",
     "company",
+    "company_certificate",
     "technician",
     "certificate",
     "cylinder",
@@ -73,6 +74,8 @@ def natural_key(table_name: str, fields: Mapping[str, Any], row_id: int) -> str:
         return str(fields.get("name"))
     if table_name == "certificate":
         return f"{fields.get('scheme')}|{fields.get('number')}"
+    if table_name == "company_certificate":
+        return f"{fields.get('company')}: {fields.get('scope')}|{fields.get('number')}"
     if table_name == "cylinder":
         return str(fields.get("code"))
     if table_name == "system":

@@ -20,6 +20,7 @@ from sqlalchemy.types import NullType
 from ledger.domain.records import (
     Application,
     Certificate,
+    CompanyCertificate,
     Cylinder,
     CylinderKind,
     EquipmentForm,
@@ -37,6 +38,7 @@ from ledger.store.records import seal
 from ledger.store.tables import (
     certificate,
     company,
+    company_certificate,
     cylinder,
     event,
     filing,
@@ -208,10 +210,44 @@ def add_certificate(*, conn: Connection, technician_id: int, cert: Certificate) 
         category=cert.category,
         valid_from=cert.valid_from,
         valid_to=cert.valid_to,
+        scope=cert.scope or None,  # NULL when not recorded, as the rows 0007 found
+        issuer=cert.issuer or None,
     )
     cert_id = conn.execute(stmt).inserted_primary_key[0]
     seal("certificate", [cert_id], conn=conn)
     return cert_id
+
+
+def add_company_certificate(*, conn: Connection, cert: CompanyCertificate) -> int:
+    """Register a company certificate (the company is added on first mention); a repeat is a Conflict."""
+    clash = conn.execute(select(company_certificate.c.id).where(and_(
+        company_certificate.c.scope == cert.scope, company_certificate.c.number == cert.number))).first()
+    if clash:
+        raise Conflict(f"certificate: {cert.scope} {cert.number!r} is already registered")
+    cert_id = conn.execute(insert(company_certificate).values(
+        company_id=company_id(cert.company, conn=conn), scope=cert.scope, number=cert.number, issuer=cert.issuer,
+        valid_from=cert.valid_from, valid_to=cert.valid_to)).inserted_primary_key[0]
+    seal("company_certificate", [cert_id], conn=conn)
+    return cert_id
+
+
+def hermetic_flags(*, conn: Connection) -> dict[int, bool]:
+    """System id -> hermetically sealed flag, for every system (one narrow query)."""
+    return {r.id: bool(r.hermetic) for r in conn.execute(select(system.c.id, system.c.hermetic))}
+
+
+def company_certificates(*, conn: Connection) -> list[CompanyCertificate]:
+    """Every company certificate, by company and validity."""
+    rows = conn.execute(
+        select(company.c.name, company_certificate)
+        .join(company, company.c.id == company_certificate.c.company_id)
+        .order_by(company.c.name, company_certificate.c.valid_from, company_certificate.c.id)
+    ).all()
+    return [CompanyCertificate(r.name, r.scope, r.number, r.issuer, r.valid_from, r.valid_to) for r in rows]
+
+
+def _certificate(c: Any) -> Certificate:
+    return Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to, c.scope or "", c.issuer or "")
 
 
 def get_technician(name: str, *, conn: Connection) -> tuple[Technician, dict[str, int]]:
@@ -230,7 +266,7 @@ def get_technician(name: str, *, conn: Connection) -> tuple[Technician, dict[str
         id=row.id,
         name=row.name,
         company=row.company_name or "",
-        certificates=tuple(Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to) for c in certs),
+        certificates=tuple(_certificate(c) for c in certs),
     )
     return record, {c.number: c.id for c in certs}
 
@@ -244,7 +280,7 @@ def list_technicians(*, conn: Connection) -> list[Technician]:
     ).all()
     certs: dict[int, list[Certificate]] = defaultdict(list)
     for c in conn.execute(select(certificate).order_by(certificate.c.id)):
-        certs[c.technician_id].append(Certificate(c.scheme, c.number, c.category, c.valid_from, c.valid_to))
+        certs[c.technician_id].append(_certificate(c))
     return [Technician(r.id, r.name, r.company_name or "", tuple(certs[r.id])) for r in rows]
 
 
@@ -514,6 +550,7 @@ def _event_records(rows: Iterable[Sequence[Any]], into: dict[int, list[Event]], 
                 tuple(attachments.split()) if attachments else (),
                 bool(reclaimed),
                 chain_hash,
+                number is not None,
             )
         )
 

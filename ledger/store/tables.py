@@ -82,7 +82,23 @@ certificate = Table(
     Column("category", String(100), nullable=False, server_default=""),
     Column("valid_from", Date),
     Column("valid_to", Date),
+    Column("scope", String(10)),  # eu, gb, us-608; NULL = not recorded (hashed only when set)
+    Column("issuer", String(200)),
     UniqueConstraint("scheme", "number", name="uq_certificate_scheme_number"),
+)
+
+# Company (undertaking) certificates, e.g. Reg. (EU) 2024/573 Art 10; printed on the logbook.
+company_certificate = Table(
+    "company_certificate",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("company_id", Integer, ForeignKey("company.id"), nullable=False, index=True),
+    Column("scope", String(10), nullable=False),
+    Column("number", String(100), nullable=False),
+    Column("issuer", String(200), nullable=False, server_default=""),
+    Column("valid_from", Date),
+    Column("valid_to", Date),
+    UniqueConstraint("scope", "number", name="uq_company_certificate_scope_number"),
 )
 
 cylinder = Table(

@@ -12,7 +12,7 @@ from decimal import Decimal
 
 import pytest
 
-from ledger.domain.records import Confidence, ObligationKind, ObligationStatus, Severity
+from ledger.domain.records import Confidence, EventKind, ObligationKind, ObligationStatus, Severity
 from ledger.rules import eu
 from ledger.rules.common import BELOW_THRESHOLD, EXEMPT, OUT_OF_SCOPE, RETIRED
 from tests.domain import D, Log, kg, site, system
@@ -483,3 +483,35 @@ def test_2026_12_interval_citation_is_art_5_not_art_5_1():
     tier = _tier("TEST-1000", kg(20))
     assert tier.basis.citation == "Reg. (EU) 2024/573 Art 5"
     assert eu.REGIME_VERSION == "eu-2"
+
+
+# --- checks by uncertified persons --------------------------------------------------------------
+
+
+def test_a_check_without_a_valid_certificate_does_not_meet_the_leak_check_duty():
+    # Reg. (EU) 2024/573 Art 10: leak checks by certified natural persons; 50 t CO2e of TEST-1000:
+    # every 6 months (Art 5(1)); a check logged without a valid certificate counts for nothing
+    log = Log()
+    log.in_service(D(2025, 1, 10), "TEST-1000", kg("50"))
+    log.add(EventKind.CHECK, D(2025, 6, 1), result="no-leak", certified=False)
+    obligations, _ = _run(log, D(2025, 8, 1))
+    checks = of_kind(obligations, LEAK_CHECK)
+    # the missed window, then the next one from its due date (the uncertified check met neither)
+    assert [(o.due_on, o.status) for o in checks] == [(D(2025, 7, 10), OVERDUE), (D(2026, 1, 10), OPEN)]
+    assert "done by an uncertified person on 2025-06-01 (event 2)" in checks[0].detail
+
+
+def test_an_uncertified_follow_up_leaves_the_follow_up_duty_open():
+    # Art 4(5): follow-up check by a certified person within one month of the repair
+    log = Log()
+    log.in_service(D(2025, 1, 10), "TEST-1000", kg("50"))
+    log.check(D(2025, 3, 1), leak=True)
+    log.repair(D(2025, 3, 2))
+    log.add(EventKind.FOLLOW_UP, D(2025, 3, 5), result="pass", certified=False)
+    obligations, _ = _run(log, D(2025, 3, 10))
+    follow = of_kind(obligations, ObligationKind.FOLLOW_UP_CHECK)
+    assert [o.status for o in follow] == [OPEN]
+    assert "done by an uncertified person" in follow[0].detail
+    log.follow_up(D(2025, 3, 9))
+    obligations, _ = _run(log, D(2025, 3, 10))
+    assert [o.status for o in of_kind(obligations, ObligationKind.FOLLOW_UP_CHECK)] == [MET]

@@ -11,8 +11,17 @@ from datetime import date
 from ledger.domain.drafts import EventDraft
 from ledger.domain.records import EventKind
 from ledger.services.obligations import due
-from ledger.services.recording import add_site, add_system, log_event
+from ledger.services.recording import add_site, add_system, add_technician, log_event
 from ledger.store.db import Database
+
+# A check meets a duty only when done by a person certified for it (Reg. (EU) 2024/573 Art 10,
+# retained 517/2014 Art 10 in Great Britain); category I covers every activity (2015/2067
+# Art 3, from memory).
+CERTIFIED = "Certified Person"
+
+
+def _certified(db: Database, scope: str) -> None:
+    add_technician(db, name=CERTIFIED, certificate=f"{scope}-1", scheme="F-gas", scope=scope, category="I")
 
 
 def _kinds(rows: list[dict]) -> set[tuple[str, str, str]]:
@@ -34,8 +43,9 @@ def test_eu_periodic_check_and_follow_up(db: Database) -> None:
     follow = [r for r in rows if r["kind"] == "follow-up-check"]
     # Art 4(5): at least 24 h of operation after, and within one month of, the repair
     assert follow and follow[0]["earliest_on"] == date(2025, 6, 1) and follow[0]["due_on"] == date(2025, 6, 30)
+    _certified(db, "eu")
     log_event(db, site_code="DE", tag="R", draft=EventDraft(
-        kind=EventKind.FOLLOW_UP, performed_on=date(2025, 6, 2), result="pass"))
+        kind=EventKind.FOLLOW_UP, performed_on=date(2025, 6, 2), result="pass", technician=CERTIFIED))
     assert not [r for r in due(db, as_of=date(2025, 6, 3)).rows if r["kind"] == "follow-up-check"]
 
 
@@ -44,8 +54,10 @@ def test_gb_hcfc_leak_found_needs_repair_within_14_days(db: Database) -> None:
     # R-22 40 kg: >= 30 kg, every 6 months (gov.uk ODS leak-check guidance)
     add_system(db, site_code="GB", tag="C", refrigerant="R-22", charge_mg=40_000_000,
                application="comfort-cooling", in_service_on=date(2010, 1, 1))
+    _certified(db, "gb")
     log_event(db, site_code="GB", tag="C", draft=EventDraft(
-        kind=EventKind.CHECK, performed_on=date(2025, 3, 3), result="leak-found", location="coil"))
+        kind=EventKind.CHECK, performed_on=date(2025, 3, 3), result="leak-found", location="coil",
+        technician=CERTIFIED))
     rows = due(db, as_of=date(2025, 3, 4)).rows
     repair = [r for r in rows if r["kind"] == "repair"]
     assert repair and repair[0]["due_on"] == date(2025, 3, 17)  # 14 days (gov.uk guidance)

@@ -24,8 +24,9 @@ def test_2026_12_virgin_hcfc_top_up_in_gb_is_recorded_warned_and_counted(db: Dat
         kind=EventKind.ADD, performed_on=date(2026, 2, 11), mass_mg=parse_mass_mg("1.2 kg"),
         recorded_by="test"))
     assert logged.event_id  # never refused
-    assert [w.field for w in logged.warnings] == ["servicing"]
-    assert "1005/2009 Art 11(3)" in logged.warnings[0].message
+    # no technician named: the uncertified-work warning (issue 13) comes first, then the ban
+    assert [w.field for w in logged.warnings] == ["--tech", "servicing"]
+    assert "1005/2009 Art 11(3)" in logged.warnings[1].message
     s = annual_summary(db, year=2026, site_code=None, basis=None, as_of=date(2026, 12, 31))
     assert s["estate"]["prohibited_top_ups"] == 1
     assert str(s["estate"]["prohibited_top_up_kg"]) in ("1.2", "1.200000")
