@@ -14,7 +14,7 @@ import hashlib
 import io
 import pickle
 from collections import defaultdict
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence, Set
 from dataclasses import dataclass, field, fields
 from datetime import UTC, date, datetime
 from decimal import ROUND_HALF_UP, Context, Decimal, localcontext
@@ -1042,8 +1042,8 @@ def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[st
     site's record and guard problems, not its neighbours' chains."""
     from ledger.services.integrity import heads_digest
 
-    others = tuple(f"{n}: " for n in names if n != name) + tuple(f"checkpoint, {n}: " for n in names if n != name)
-    problems = [p for p in check["problems"] if not p.startswith(others)]
+    problems = [p for p in check["problems"]
+                if system_named(p.removeprefix("checkpoint, "), names) in (None, name)]
     heads = {name: check["heads"][name]} if name in check["heads"] else {}
     cover = check["checkpoint"]
     if cover is not None:
@@ -1051,6 +1051,20 @@ def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[st
     narrowed = {k: v for k, v in check.items() if k != "covered_names"}
     return {**narrowed, "problems": problems, "verified": not problems, "heads": heads, "systems": len(heads),
             "digest": heads_digest(heads), "checkpoint": cover}
+
+
+def system_named(text: str, names: Set[str]) -> str | None:
+    """The system (``SITE/TAG``, one of ``names``) a finding source or problem line starts with.
+
+    A name counts only when the end of the text, a space or a ':' follows it, and the longest
+    such name wins: tag ``LT`` does not claim ``LT-RACK``'s lines (nor ``LT 2``'s). None when
+    the text names no system (site-wide lines).
+    """
+    ends = [i for i, c in enumerate(text) if c in " :"]
+    for end in (len(text), *reversed(ends)):
+        if text[:end] in names:
+            return text[:end]
+    return None
 
 
 def _servicing_findings(history: SystemHistory, reference: Reference, from_on: date | None,
@@ -1112,10 +1126,12 @@ def _logbooks(
                               system_ids=[histories[0].system.id] if tag is not None else None)
     names = {f"{h.site.code}/{h.system.tag}" for h in histories}
     checks = {h.system.id: _one_system(site_check, f"{h.site.code}/{h.system.tag}", names) for h in histories}
+    found: dict[str | None, list[Finding]] = defaultdict(list)
+    for f in findings:
+        found[system_named(f.source, names)].append(f)
     books = [
         logbook_data(h, reference, from_on=from_on, to_on=to_day, obligations=obligations,
-                     cylinders=cylinders, generated_at=now,
-                     findings=[f for f in findings if f.source.startswith(f"{h.site.code}/{h.system.tag}")])
+                     cylinders=cylinders, generated_at=now, findings=found[f"{h.site.code}/{h.system.tag}"])
         for h in histories
     ]
     for h, book in zip(histories, books, strict=True):
