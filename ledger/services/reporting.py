@@ -132,6 +132,19 @@ def default_basis_of_sites(sites: Sequence[Site]) -> str:
     return found.pop() if len(found) == 1 else FALLBACK_BASIS
 
 
+def site_basis(site: Site) -> str:
+    """The GWP basis of a site: its first regime's (``default_basis_of_sites``), else
+    FALLBACK_BASIS. Every figure shown for one site (system show, system list, logbook) uses
+    this basis."""
+    return default_basis_of_sites([site])
+
+
+def charge_co2e_t(charge_mg: int, gwp: Decimal) -> Decimal:
+    """t CO2e of a full charge: kg x GWP / 1000, rounded half-up to CO2E_PLACES (the one
+    rounding every view of a system's charge uses; displays show it with ``fmt(.., TONNES)``)."""
+    return rounded(em.co2e_t(em.kg(charge_mg), gwp), CO2E_PLACES)  # type: ignore[return-value]
+
+
 def check_basis(basis: str) -> str:
     """A basis code as typed, checked against the reference bases."""
     value = basis.strip().lower()
@@ -895,7 +908,7 @@ def logbook_data(
     site, system = history.site, history.system
     kept = effective_events(history.events)
     state = state_of(history.events, to_on)
-    basis = default_basis([history])
+    basis = site_basis(site)
     ref = None
     gwp = co2e = None
     gwp_note = ""
@@ -910,7 +923,7 @@ def logbook_data(
             gwp = figure.value
             if figure.unlisted:
                 gwp_note = f"the {basis} basis lists no GWP for {', '.join(figure.unlisted)}; counted as 0"
-            co2e = rounded(em.co2e_t(em.kg(state.full_charge_mg), gwp), CO2E_PLACES)
+            co2e = charge_co2e_t(state.full_charge_mg, gwp)
             composition = [{"component": c, "mass_percent": p} for c, p in ref.components]
     tiers = [
         {

@@ -6,8 +6,6 @@ from __future__ import annotations
 
 from datetime import date
 
-from ledger.domain.drafts import EventDraft
-from ledger.domain.records import EventKind
 from ledger.services import reporting
 from ledger.services.recording import add_site, add_system
 from ledger.store.db import Database
@@ -43,3 +41,40 @@ def test_system_named_takes_the_whole_name() -> None:
     assert reporting.system_named("S/LT: event 3 link: broken", names) == "S/LT"
     assert reporting.system_named("S/LTX", names) is None
     assert reporting.system_named("guard: trigger missing", names) is None
+
+
+# --- one GWP basis per site, one rounding --------------------------------------------------------
+
+
+def test_a_site_without_a_regime_shows_one_co2e_everywhere(db: Database, capsys) -> None:  # type: ignore[no-untyped-def]
+    from decimal import Decimal
+
+    from ledger.cli.views import print_system
+    from ledger.exports.common import TONNES, fmt
+    from ledger.reference import load_reference
+    from ledger.services.estate import systems_overview
+    from ledger.services.queries import system_view
+
+    # Switzerland is outside the EU and GB: the tool gives a CH site no regime, so its figures
+    # use the fallback basis "eu" (reporting.FALLBACK_BASIS). Swiss law (ChemRRV) was not read
+    # for this test; local regulation governs.
+    add_site(db, code="CH-ZH", name="Lager", country="CH")
+    add_system(db, site_code="CH-ZH", tag="CU-1", refrigerant="R-1234yf", charge_mg=parse_mass_mg("160 kg"),
+               application="commercial-refrigeration", in_service_on=date(2024, 2, 1))
+    # R-1234yf under the eu basis: 0.501, as Regulation (EU) 2024/573 Annex II prints it
+    # ("HFC-1234yf 0,501", bfs-kaelte-klima.de extract of Annex II; reference notes "Checked in
+    # December 2026"); IPCC AR6 WG1 Table 7.SM.7 gives the same 0.501. IPCC AR4 does not list
+    # R-1234yf at all, so the old "ar4" fallback of `system show` counted it as 0: a gap in the
+    # basis, not a figure. 160 kg x 0.501 / 1000 = 0.08016 t.
+    assert load_reference().gwp("R-1234yf", "eu").value == Decimal("0.501")
+    expected = Decimal("160") * Decimal("0.501") / 1000
+    view = system_view(db, site_code="CH-ZH", tag="CU-1", as_of=date(2024, 6, 30))
+    book = reporting.logbook(db, site_code="CH-ZH", tag="CU-1", to_on=date(2024, 6, 30))
+    row = next(r for r in systems_overview(db, site_code="CH-ZH") if r["tag"] == "CU-1")
+    assert view["gwp_basis"] == book["gwp_basis"] == row["gwp_basis"] == "eu"
+    assert view["co2e_t"] == book["co2e_t"] == row["co2e_t"] == expected
+    # one display rule: t CO2e to three decimals, half-up
+    assert fmt(book["co2e_t"], TONNES) == row["co2e_t_display"] == "0.080"
+    print_system(view)
+    out = capsys.readouterr().out
+    assert "0.080 t CO2e" in out and "basis eu" in out
