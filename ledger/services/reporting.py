@@ -23,7 +23,6 @@ from typing import Any
 from ledger import __version__
 from ledger.domain import emissions as em
 from ledger.domain.records import (
-    CheckResult,
     Cylinder,
     Event,
     EventKind,
@@ -34,7 +33,7 @@ from ledger.domain.records import (
     Site,
     SystemHistory,
 )
-from ledger.domain.state import effective_events, state_of
+from ledger.domain.state import effective_events, finds_leak, state_of
 from ledger.errors import InputError, LedgerError
 from ledger.exports.common import CAUTION
 from ledger.reference import BASES, Reference, load_reference
@@ -871,12 +870,8 @@ def _purpose(e: Event, events: Sequence[Event], charged_days: set[date]) -> str:
     if e.performed_on in charged_days:
         return "installation"
     state = state_of(events, e.performed_on)
-    same_day = any(
-        x.performed_on == e.performed_on
-        and (x.kind is EventKind.REPAIR
-             or (x.kind is EventKind.CHECK and x.result == CheckResult.LEAK_FOUND))
-        for x in events
-    )
+    same_day = any(x.performed_on == e.performed_on and (x.kind is EventKind.REPAIR or finds_leak(x))
+                   for x in events)
     return "leak" if state.open_leaks or same_day else "servicing"
 
 

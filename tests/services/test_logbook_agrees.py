@@ -6,8 +6,10 @@ from __future__ import annotations
 
 from datetime import date
 
+from ledger.domain.drafts import EventDraft
+from ledger.domain.records import EventKind
 from ledger.services import reporting
-from ledger.services.recording import add_site, add_system
+from ledger.services.recording import add_site, add_system, log_event
 from ledger.store.db import Database
 from ledger.units import parse_mass_mg
 
@@ -78,3 +80,43 @@ def test_a_site_without_a_regime_shows_one_co2e_everywhere(db: Database, capsys)
     print_system(view)
     out = capsys.readouterr().out
     assert "0.080 t CO2e" in out and "basis eu" in out
+
+
+# --- an addition after a failed follow-up is for the leak the rules hold open ---------------------
+
+
+def test_an_addition_after_a_failed_follow_up_is_for_the_leak(db: Database) -> None:
+    from ledger.services.queries import system_view
+
+    add_site(db, code="DE-1", name="Store", country="DE")
+    # R-404A 20 kg = 78.4 t CO2e (EU 517/2014 Annex IV figure 3 922): in the eu leak-check scope
+    add_system(db, site_code="DE-1", tag="RACK", refrigerant="R-404A", charge_mg=parse_mass_mg("20 kg"),
+               application="commercial-refrigeration", in_service_on=date(2023, 5, 1))
+
+    def log(**kw) -> int:  # type: ignore[no-untyped-def]
+        return log_event(db, site_code="DE-1", tag="RACK", draft=EventDraft(**kw)).event_id
+
+    log(kind=EventKind.CHECK, performed_on=date(2024, 3, 1), result="leak-found", location="suction header")
+    log(kind=EventKind.REPAIR, performed_on=date(2024, 3, 2), location="suction header")
+    # 2024/573 Art 4(5): a follow-up check after the repair, at the earliest after 24 h of
+    # operation and within one month (Landesinnung quote, reference notes "Checked in December
+    # 2026"); it failed: the repair did not hold.
+    failed = log(kind=EventKind.FOLLOW_UP, performed_on=date(2024, 3, 20), result="fail")
+    added = log(kind=EventKind.ADD, performed_on=date(2024, 3, 25), mass_mg=parse_mass_mg("1.5 kg"))
+    # the rules hold a repair of the leak the failed follow-up found open on the day of the addition
+    view = system_view(db, site_code="DE-1", tag="RACK", as_of=date(2024, 3, 25))
+    repair = [o for o in view["obligations"] if o["kind"] == "repair" and o["caused_by"] == failed]
+    assert repair and repair[0]["met_by"] is None
+    assert view["open_leaks"] == [failed]
+    # so the logbook labels the addition a leak top-up, not servicing (EU 517/2014 Art 6(1)(b):
+    # quantities added "during installation, maintenance or servicing or due to leakage")
+    book = reporting.logbook(db, site_code="DE-1", tag="RACK", to_on=date(2024, 3, 25))
+    row = next(r for r in book["events"] if r["id"] == added)
+    assert row["added_for"] == "leak"
+    assert book["open_leaks"] == [failed]
+    # once repaired again, a later addition is servicing again
+    log(kind=EventKind.REPAIR, performed_on=date(2024, 3, 27), location="suction header")
+    later = log(kind=EventKind.ADD, performed_on=date(2024, 4, 10), mass_mg=parse_mass_mg("0.5 kg"))
+    book = reporting.logbook(db, site_code="DE-1", tag="RACK", to_on=date(2024, 4, 10))
+    labels = {r["id"]: r["added_for"] for r in book["events"] if r["kind"] == "add"}
+    assert labels == {added: "leak", later: "servicing"}
