@@ -245,7 +245,7 @@ class SystemState:
     retired_on: date | None
     last_check_on: date | None
     last_repair_on: date | None
-    open_leaks: tuple[EventId, ...]  # leak-found checks without a later repair
+    open_leaks: tuple[EventId, ...]  # leak-found checks and failed follow-ups without a later repair
     refrigerant_since: date | None  # date of in-service or last retrofit
     events: tuple[Event, ...] = field(default=())  # effective events up to as_of, date order
 

@@ -7,12 +7,19 @@ from collections.abc import Iterable, Iterator
 from datetime import date
 from operator import attrgetter
 
-from ledger.domain.records import CheckResult, Event, EventKind, SystemState
+from ledger.domain.records import CheckResult, Event, EventKind, FollowUpResult, SystemState
 
 # The rules call these for every system several times per run (each regime, each tier), so
 # they are kept lean: a C key function for the sort, no filtering pass when nothing is voided.
 _DATE_ORDER = attrgetter("performed_on", "id")
 _PERFORMED_ON = attrgetter("performed_on")
+
+
+def finds_leak(e: Event) -> bool:
+    """A check that found a leak, or a follow-up check that failed (the repair did not hold):
+    the events that open a leak until the next repair, for the fold and for the rules."""
+    return ((e.kind is EventKind.CHECK and e.result == CheckResult.LEAK_FOUND)
+            or (e.kind is EventKind.FOLLOW_UP and e.result == FollowUpResult.FAIL))
 
 
 def effective_events(events: Iterable[Event]) -> tuple[Event, ...]:
@@ -62,7 +69,10 @@ def fold_days(kept: tuple[Event, ...], *, every_day: bool = True) -> Iterator[tu
                 charge_mg = e.charge_mg or charge_mg
             case EventKind.CHECK:
                 last_check = e.performed_on
-                if e.result == CheckResult.LEAK_FOUND:
+                if finds_leak(e):
+                    open_leaks.append(e.id)
+            case EventKind.FOLLOW_UP:
+                if finds_leak(e):
                     open_leaks.append(e.id)
             case EventKind.REPAIR:
                 last_repair = e.performed_on

@@ -697,7 +697,7 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
             charge_sub = f"{fmt(book['full_charge_lb'], KG, 1)} lb; " + charge_sub
     story.append(tiles([
         Tile(charge, "full charge", charge_sub),
-        Tile(f"{fmt(book['co2e_t'], TONNES, 1)} t" if book["co2e_t"] is not None else "-",
+        Tile(f"{fmt(book['co2e_t'], TONNES)} t" if book["co2e_t"] is not None else "-",
              "CO2e of the full charge",
              f"GWP {fmt(book['gwp'], NUMBER, 0)} ({book['gwp_basis']})" if book["gwp"] is not None
              else ""),

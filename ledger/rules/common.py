@@ -27,7 +27,6 @@ from ledger.domain.leak_rate import ANNUALIZING, METHODS, MG_PER_KG, MG_PER_LB, 
 from ledger.domain.records import (
     Application,
     Basis,
-    CheckResult,
     Event,
     EventId,
     EventKind,
@@ -41,7 +40,7 @@ from ledger.domain.records import (
     SystemState,
     Tier,
 )
-from ledger.domain.state import EMPTY_STATE, effective_events, fold_days
+from ledger.domain.state import EMPTY_STATE, effective_events, finds_leak, fold_days
 from ledger.errors import LedgerError
 
 __all__ = [
@@ -317,12 +316,7 @@ def cause_on(events: Sequence[Event], day: date) -> EventId | None:
 
 def leak_found_events(events: Iterable[Event]) -> list[Event]:
     """Checks that found a leak, and follow-up checks that failed (the repair did not hold)."""
-    return [
-        e
-        for e in events
-        if (e.kind is EventKind.CHECK and e.result == CheckResult.LEAK_FOUND)
-        or (e.kind is EventKind.FOLLOW_UP and e.result == FollowUpResult.FAIL)
-    ]
+    return [e for e in events if finds_leak(e)]
 
 
 def retired_between(events: Sequence[Event], start: date, due: date) -> date | None:

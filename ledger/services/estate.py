@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from ledger.domain.state import state_of
-from ledger.reference import load_reference, round_half_up
+from ledger.reference import load_reference
 from ledger.services.recording import site_today
 from ledger.store import repository as repo
 from ledger.store.db import Database
@@ -14,7 +14,8 @@ from ledger.units import format_mass, mg_to_kg
 
 def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict[str, Any]]:
     """Every system (or one site's) with refrigerant, charge and CO2e today."""
-    from ledger.rules import REGIMES
+    from ledger.exports.common import TONNES, fmt
+    from ledger.services.reporting import charge_co2e_t, site_basis
 
     reference = load_reference()
     with db.read() as conn:
@@ -22,10 +23,10 @@ def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict
     rows = []
     for h in histories:
         state = state_of(h.events, site_today(h.site.timezone))
-        basis = REGIMES[h.site.regimes[0]].GWP_BASIS if h.site.regimes else "ar4"
+        basis = site_basis(h.site)
         co2e = None
         if state.refrigerant:
-            co2e = mg_to_kg(state.full_charge_mg) * reference.gwp(state.refrigerant, basis).value / 1000
+            co2e = charge_co2e_t(state.full_charge_mg, reference.gwp(state.refrigerant, basis).value)
         rows.append(
             {
                 "site": h.site.code,
@@ -36,7 +37,7 @@ def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict
                 "charge": format_mass(state.full_charge_mg, h.site.mass_unit, 1),
                 "gwp_basis": basis,
                 "co2e_t": co2e,
-                "co2e_t_display": "" if co2e is None else str(round_half_up(co2e, 2)),
+                "co2e_t_display": fmt(co2e, TONNES),
                 "in_service": state.in_service,
             }
         )

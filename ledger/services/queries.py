@@ -151,6 +151,7 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
     from ledger.domain.leak_rate import leak_rates_json
     from ledger.rules import REGIMES
     from ledger.services.obligations import compute, current_only, load_evidence
+    from ledger.services.reporting import charge_co2e_t, site_basis
 
     reference = load_reference()
     with db.read() as conn:
@@ -159,12 +160,12 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
     history = histories[0]
     site = history.site
     state = state_of(history.events, as_of)
-    basis = REGIMES[site.regimes[0]].GWP_BASIS if site.regimes else "ar4"
+    basis = site_basis(site)
     co2e = None
     gwp = None
     if state.refrigerant:
         gwp = reference.gwp(state.refrigerant, basis).value
-        co2e = mg_to_kg(state.full_charge_mg) * gwp / 1000
+        co2e = charge_co2e_t(state.full_charge_mg, gwp)
     voided_by = {e.voids_id: e for e in history.events if e.voids_id is not None}
     obligations, findings = compute([history], as_of, evidence)
     current, _ = current_only(obligations)

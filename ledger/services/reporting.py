@@ -14,7 +14,7 @@ import hashlib
 import io
 import pickle
 from collections import defaultdict
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence, Set
 from dataclasses import dataclass, field, fields
 from datetime import UTC, date, datetime
 from decimal import ROUND_HALF_UP, Context, Decimal, localcontext
@@ -24,7 +24,6 @@ from ledger import __version__
 from ledger.domain import emissions as em
 from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import (
-    CheckResult,
     CompanyCertificate,
     Cylinder,
     Event,
@@ -36,7 +35,7 @@ from ledger.domain.records import (
     Site,
     SystemHistory,
 )
-from ledger.domain.state import effective_events, state_of
+from ledger.domain.state import effective_events, finds_leak, state_of
 from ledger.errors import InputError, LedgerError
 from ledger.exports.common import CAUTION
 from ledger.reference import BASES, Reference, load_reference
@@ -132,6 +131,19 @@ def default_basis_of_sites(sites: Sequence[Site]) -> str:
             return FALLBACK_BASIS
         found.add(REGIMES[site.regimes[0]].GWP_BASIS)
     return found.pop() if len(found) == 1 else FALLBACK_BASIS
+
+
+def site_basis(site: Site) -> str:
+    """The GWP basis of a site: its first regime's (``default_basis_of_sites``), else
+    FALLBACK_BASIS. Every figure shown for one site (system show, system list, logbook) uses
+    this basis."""
+    return default_basis_of_sites([site])
+
+
+def charge_co2e_t(charge_mg: int, gwp: Decimal) -> Decimal:
+    """t CO2e of a full charge: kg x GWP / 1000, rounded half-up to CO2E_PLACES (the one
+    rounding every view of a system's charge uses; displays show it with ``fmt(.., TONNES)``)."""
+    return rounded(em.co2e_t(em.kg(charge_mg), gwp), CO2E_PLACES)  # type: ignore[return-value]
 
 
 def check_basis(basis: str) -> str:
@@ -862,12 +874,8 @@ def _purpose(e: Event, events: Sequence[Event], charged_days: set[date]) -> str:
     if e.performed_on in charged_days:
         return "installation"
     state = state_of(events, e.performed_on)
-    same_day = any(
-        x.performed_on == e.performed_on
-        and (x.kind is EventKind.REPAIR
-             or (x.kind is EventKind.CHECK and x.result == CheckResult.LEAK_FOUND))
-        for x in events
-    )
+    same_day = any(x.performed_on == e.performed_on and (x.kind is EventKind.REPAIR or finds_leak(x))
+                   for x in events)
     return "leak" if state.open_leaks or same_day else "servicing"
 
 
@@ -900,7 +908,7 @@ def logbook_data(
     site, system = history.site, history.system
     kept = effective_events(history.events)
     state = state_of(history.events, to_on)
-    basis = default_basis([history])
+    basis = site_basis(site)
     ref = None
     gwp = co2e = None
     gwp_note = ""
@@ -915,7 +923,7 @@ def logbook_data(
             gwp = figure.value
             if figure.unlisted:
                 gwp_note = f"the {basis} basis lists no GWP for {', '.join(figure.unlisted)}; counted as 0"
-            co2e = rounded(em.co2e_t(em.kg(state.full_charge_mg), gwp), CO2E_PLACES)
+            co2e = charge_co2e_t(state.full_charge_mg, gwp)
             composition = [{"component": c, "mass_percent": p} for c, p in ref.components]
     tiers = [
         {
@@ -1054,8 +1062,8 @@ def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[st
     site's record and guard problems, not its neighbours' chains."""
     from ledger.services.integrity import heads_digest
 
-    others = tuple(f"{n}: " for n in names if n != name) + tuple(f"checkpoint, {n}: " for n in names if n != name)
-    problems = [p for p in check["problems"] if not p.startswith(others)]
+    problems = [p for p in check["problems"]
+                if system_named(p.removeprefix("checkpoint, "), names) in (None, name)]
     heads = {name: check["heads"][name]} if name in check["heads"] else {}
     cover = check["checkpoint"]
     if cover is not None:
@@ -1063,6 +1071,20 @@ def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[st
     narrowed = {k: v for k, v in check.items() if k != "covered_names"}
     return {**narrowed, "problems": problems, "verified": not problems, "heads": heads, "systems": len(heads),
             "digest": heads_digest(heads), "checkpoint": cover}
+
+
+def system_named(text: str, names: Set[str]) -> str | None:
+    """The system (``SITE/TAG``, one of ``names``) a finding source or problem line starts with.
+
+    A name counts only when the end of the text, a space or a ':' follows it, and the longest
+    such name wins: tag ``LT`` does not claim ``LT-RACK``'s lines (nor ``LT 2``'s). None when
+    the text names no system (site-wide lines).
+    """
+    ends = [i for i, c in enumerate(text) if c in " :"]
+    for end in (len(text), *reversed(ends)):
+        if text[:end] in names:
+            return text[:end]
+    return None
 
 
 def _servicing_findings(history: SystemHistory, reference: Reference, from_on: date | None,
@@ -1133,10 +1155,13 @@ def _logbooks(
                               system_ids=[histories[0].system.id] if tag is not None else None)
     names = {f"{h.site.code}/{h.system.tag}" for h in histories}
     checks = {h.system.id: _one_system(site_check, f"{h.site.code}/{h.system.tag}", names) for h in histories}
+    found: dict[str | None, list[Finding]] = defaultdict(list)
+    for f in findings:
+        found[system_named(f.source, names)].append(f)
     books = [
         logbook_data(h, reference, from_on=from_on, to_on=to_day, obligations=obligations,
                      cylinders=cylinders, generated_at=now, company_certificates=companies,
-                     findings=[f for f in findings if f.source.startswith(f"{h.site.code}/{h.system.tag}")])
+                     findings=found[f"{h.site.code}/{h.system.tag}"])
         for h in histories
     ]
     for h, book in zip(histories, books, strict=True):

@@ -4,7 +4,8 @@ A personal certificate gets the regime family it was issued under (``scope``: eu
 us-608; empty for certificates recorded before, which keep their date-only meaning) and its
 issuer; companies get certificates of their own (Reg. (EU) 2024/573 Art 10, printed on the
 logbook). The new certificate columns are NULL on existing rows, so the record chain
-(0006), which hashes a column only when it is set, still matches them. Written by hand to match tables.py (``alembic check`` compares them).
+(0006), which hashes a column only when it is set, still matches them. Written by hand to
+match tables.py (``alembic check`` compares them).
 
 Revision ID: 0007
 Revises: 0006
