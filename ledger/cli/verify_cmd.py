@@ -24,23 +24,12 @@ def verify(
     Example: refledger verify --site GB-LDS
     """
     from ledger.cli.render import print_json
+    from ledger.services.integrity import verification_json
     from ledger.services.integrity import verify as run_verify
 
     result = run_verify(context.open_db(), site_code=site)
     if json_out:
-        print_json(
-            {
-                "ok": result.ok,
-                "systems": result.systems,
-                "events": result.events,
-                "heads_digest": result.digest,
-                "heads": result.heads,
-                "breaks": [
-                    {"site": b.site, "system": b.system, "event": b.event_id, "what": b.what, "detail": b.detail}
-                    for b in result.breaks
-                ],
-            }
-        )
+        print_json(verification_json(result))
     else:
         for b in result.breaks:
             typer.echo(f"BROKEN {b.site}/{b.system}: event {b.event_id} {b.what}: {b.detail}", err=True)

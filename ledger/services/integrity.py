@@ -125,3 +125,18 @@ def verify(db: Database, *, site_code: str | None = None) -> Verification:
         if rows:
             check(current, rows)  # type: ignore[arg-type]
     return result
+
+
+def verification_json(result: Verification) -> dict[str, Any]:
+    """A verification as the `verify --json` contract (and the web API) has it."""
+    return {
+        "ok": result.ok,
+        "systems": result.systems,
+        "events": result.events,
+        "heads_digest": result.digest,
+        "heads": result.heads,
+        "breaks": [
+            {"site": b.site, "system": b.system, "event": b.event_id, "what": b.what, "detail": b.detail}
+            for b in result.breaks
+        ],
+    }

@@ -28,7 +28,7 @@ from ledger.domain.records import (
     System,
 )
 from ledger.domain.state import state_of
-from ledger.errors import Conflict, InputError, NeedsConfirmation, Rejected
+from ledger.errors import Conflict, InputError, LedgerError, NeedsConfirmation, Rejected
 from ledger.reference import load_reference
 from ledger.services import places
 from ledger.store import repository as repo
@@ -382,16 +382,27 @@ def record_visit(
         Rejected / InputError: the first error finding; nothing is written.
         NotFound: unknown site, system, technician or cylinder.
         NeedsConfirmation: one of the drafts looks like a duplicate and ``confirm`` is False.
+    Each error carries ``visit_part``: the kind of the draft it is about.
     """
     if not drafts:
         raise InputError("visit", "", "records nothing: fill in at least one part of the visit")
     reference = load_reference()
-    prepared = [_prepared(d, reference) for d in drafts]
+    prepared = []
+    for d in drafts:
+        try:
+            prepared.append(_prepared(d, reference))
+        except LedgerError as exc:
+            exc.visit_part = d.kind  # type: ignore[attr-defined]
+            raise
     logged: list[Logged] = []
     with db.write() as conn:
         the_site, sys_ = repo.get_system(site_code, tag, conn=conn)
         for draft in prepared:
-            event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm)
+            try:
+                event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm)
+            except LedgerError as exc:
+                exc.visit_part = draft.kind  # type: ignore[attr-defined]  # which part, for the form
+                raise
             logged.append(Logged(event_id, head, _warnings(findings), site_code, tag))
     return tuple(logged)
 
