@@ -46,13 +46,13 @@ def today_utc() -> date:
     return datetime.now(UTC).date()
 
 
-def render(request: Request, name: str, status_code: int = 200, **context: Any) -> HTMLResponse:
+def render(request: Request, template: str, status_code: int = 200, **context: Any) -> HTMLResponse:
     """A page: every template gets the session (if any), its CSRF token and the as-of day."""
     session = getattr(request.state, "session", None)
     context.setdefault("as_of", today_utc())
     context.update(request=request, session=session, user=session.user if session else None,
                    csrf=session.csrf if session else "")
-    return TEMPLATES.TemplateResponse(request, name, context, status_code=status_code)
+    return TEMPLATES.TemplateResponse(request, template, context, status_code=status_code)
 
 
 def create_app(settings: Settings) -> FastAPI:

@@ -33,7 +33,7 @@ def build_ledger(db: Database) -> None:
     add_system(db, site_code="DE-LEJ", tag="CAB-1", refrigerant="R-290", charge_mg=parse_mass_mg("0.15 kg"),
                application="commercial-refrigeration", in_service_on=date(2023, 1, 10), hermetic=True,
                description="Ice cream cabinet")
-    add_user(db, name="tech", role="technician", password=PASSWORD, technician="Ada Novak", sites=["US-TX"])
+    add_user(db, name="technician", role="technician", password=PASSWORD, technician="Ada Novak", sites=["US-TX"])
     add_user(db, name="officer", role="officer", password=PASSWORD)
     add_user(db, name="auditor", role="auditor", password=PASSWORD)
     add_user(db, name="admin", role="admin", password=PASSWORD)
