@@ -45,6 +45,12 @@ def sites(db: Database) -> list[dict[str, Any]]:
         ]
 
 
+def site_codes(db: Database) -> list[str]:
+    """The code of every site, sorted (a filter's choices: one small query)."""
+    with db.read() as conn:
+        return sorted(s.code for s in repo.list_sites(conn=conn))
+
+
 def technicians(db: Database) -> list[dict[str, Any]]:
     """Every technician with certificates."""
     with db.read() as conn:

@@ -373,13 +373,16 @@ def due_page(
     except LedgerError as exc:
         error = str(exc)
     key = sort if sort in SORT_KEYS else "due_on"
-    rows = sorted(rows, key=lambda r: (str(r[key] or ""), str(r["due_on"])), reverse=order == "desc")
+    if key != "due_on":  # the service's own order is by due day already
+        rows = sorted(rows, key=lambda r: (str(r[key] or ""), r["due_on"]))
+    if order == "desc":
+        rows = rows[::-1]
     per = per if per in PAGE_SIZES else 50
     pages = max(1, -(-len(rows) // per))
     page = min(page, pages)
     shown = rows[(page - 1) * per: page * per]
     return render(request, "due.html", rows=shown, total=len(rows), page=page, pages=pages, f=filters,
-                  as_of=day, error=error, sites=queries.sites(_db(request)), regimes=list(REGIMES),
+                  as_of=day, error=error, sites=queries.site_codes(_db(request)), regimes=list(REGIMES),
                   kinds=[k.value for k in ObligationKind], sort_keys=SORT_KEYS, page_sizes=PAGE_SIZES,
                   overdue_count=sum(1 for r in rows if r["status"] == "overdue"))
 
@@ -400,7 +403,7 @@ def annual_page(request: Request, session: Office, year: int | None = None, site
     except LedgerError as exc:
         return error_response(request, exc)
     return render(request, "annual.html", s=summary, year=year, site=site, basis=basis,
-                  sites=queries.sites(_db(request)), as_of=summary["as_of"],
+                  sites=queries.site_codes(_db(request)), as_of=summary["as_of"],
                   query=f"year={year}&site={quote(site)}&basis={quote(basis)}")
 
 
@@ -527,7 +530,7 @@ def _users(request: Request, status_code: int = 200, **ctx: Any) -> Response:
     db = _db(request)
     return render(request, "users.html", status_code=status_code, users=accounts.list_users(db),
                   techs=[t["name"] for t in queries.technicians(db)], roles=accounts.ROLES,
-                  sites=[s["code"] for s in queries.sites(db)], **ctx)
+                  sites=queries.site_codes(db), **ctx)
 
 
 @router.post("/users", include_in_schema=False)
