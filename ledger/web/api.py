@@ -5,9 +5,9 @@ same services, and the same roles as the pages. Writes send the session's CSRF t
 
 from __future__ import annotations
 
-from typing import Annotated, Any
+from typing import Any
 
-from fastapi import APIRouter, Depends, Request
+from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse, Response
 from pydantic import BaseModel, Field
 from starlette.concurrency import run_in_threadpool
@@ -18,17 +18,12 @@ from ledger.errors import InputError, LedgerError, NeedsConfirmation, NotFound
 from ledger.inputs import parse_day
 from ledger.jsontext import dumps
 from ledger.services import queries
-from ledger.services.accounts import READING_ROLES, RECORDING_ROLES, Session
 from ledger.web import security
 from ledger.web.app import render, today_utc
-from ledger.web.security import check_csrf, check_site, need
+from ledger.web.security import Anyone, Office, Reader, Recorder, check_csrf, check_site, db_of
 
 router = APIRouter(prefix="/api")
 
-Reader = Annotated[Session, Depends(need(*READING_ROLES))]
-Recorder = Annotated[Session, Depends(need(*RECORDING_ROLES))]
-Office = Annotated[Session, Depends(need("officer", "auditor"))]
-Anyone = Annotated[Session, Depends(security.current_session)]
 VISIT_KINDS = ("check", "repair", "add", "follow-up")
 
 
@@ -47,9 +42,6 @@ def _error(exc: LedgerError) -> Response:
         body["part"] = part.value
     return json_response(body, status)
 
-
-def _db(request: Request):  # type: ignore[no-untyped-def]
-    return request.app.state.db
 
 
 @router.get("/docs", include_in_schema=False, response_class=HTMLResponse)
@@ -76,7 +68,7 @@ def me(session: Anyone) -> Response:
 @router.get("/sites", summary="Sites (as `site list --json`)")
 def sites(request: Request, session: Reader) -> Response:
     """Every site the user may see."""
-    return json_response([s for s in queries.sites(_db(request)) if session.user.may_see_site(s["code"])])
+    return json_response([s for s in queries.sites(db_of(request)) if session.user.may_see_site(s["code"])])
 
 
 @router.get("/systems", summary="Systems (as `system list --json`)")
@@ -87,7 +79,7 @@ def systems(request: Request, session: Reader, site: str | None = None) -> Respo
     if site:
         check_site(session, site)
     try:
-        rows = systems_overview(_db(request), site_code=site)
+        rows = systems_overview(db_of(request), site_code=site)
     except LedgerError as exc:
         return _error(exc)
     return json_response([r for r in rows if session.user.may_see_site(r["site"])])
@@ -99,7 +91,7 @@ def system(request: Request, session: Reader, site: str, tag: str, as_of: str | 
     check_site(session, site)
     try:
         day = parse_day(as_of, field="as_of") if as_of else today_utc()
-        return json_response(queries.system_view(_db(request), site_code=site, tag=tag, as_of=day))
+        return json_response(queries.system_view(db_of(request), site_code=site, tag=tag, as_of=day))
     except LedgerError as exc:
         return _error(exc)
 
@@ -156,12 +148,12 @@ async def visit(request: Request, session: Recorder, site: str, tag: str, body: 
         on = parse_day(body.on, field="--on")
         drafts = [_part_draft(p, on=on, tech=tech, by=session.user.name, note=body.note) for p in body.parts]
         logged = await run_in_threadpool(
-            lambda: record_visit(_db(request), site_code=site, tag=tag, drafts=drafts, confirm=body.confirm))
+            lambda: record_visit(db_of(request), site_code=site, tag=tag, drafts=drafts, confirm=body.confirm))
     except NeedsConfirmation as exc:
         return json_response({"error": str(exc), "needs_confirmation": list(exc.reasons)}, 409)
     except LedgerError as exc:
         return _error(exc)
-    next_due = await run_in_threadpool(lambda: queries.next_due(_db(request), site_code=site, tag=tag))
+    next_due = await run_in_threadpool(lambda: queries.next_due(db_of(request), site_code=site, tag=tag))
     return json_response({
         "events": [{"id": x.event_id, "chain_hash": x.chain_hash, "warnings": [w.message for w in x.warnings]}
                    for x in logged],
@@ -180,7 +172,7 @@ def due(request: Request, session: Office, as_of: str | None = None, within: int
         day = parse_day(as_of, field="--as-of") if as_of else today_utc()
         if within is not None and within < 0:
             raise InputError("--within", within, "must be zero or more days")
-        listing = compute_due(_db(request), as_of=day, within_days=within, site_code=site, overdue_only=overdue,
+        listing = compute_due(db_of(request), as_of=day, within_days=within, site_code=site, overdue_only=overdue,
                               regime=regime, kind=kind)
     except LedgerError as exc:
         return _error(exc)
@@ -194,7 +186,7 @@ def annual(request: Request, session: Office, year: int, site: str | None = None
     from ledger.services.reporting import annual_summary
 
     try:
-        return json_response(annual_summary(_db(request), year=year, site_code=site, basis=basis))
+        return json_response(annual_summary(db_of(request), year=year, site_code=site, basis=basis))
     except LedgerError as exc:
         return _error(exc)
 
@@ -208,7 +200,7 @@ def logbook(request: Request, session: Office, site: str, tag: str, from_on: str
     try:
         first = parse_day(from_on, field="--from") if from_on else None
         last = parse_day(to_on, field="--to") if to_on else None
-        return json_response(build(_db(request), site_code=site, tag=tag, from_on=first, to_on=last))
+        return json_response(build(db_of(request), site_code=site, tag=tag, from_on=first, to_on=last))
     except LedgerError as exc:
         return _error(exc)
 
@@ -220,6 +212,6 @@ def verify(request: Request, session: Office, site: str | None = None) -> Respon
     from ledger.services.integrity import verify as run_verify
 
     try:
-        return json_response(verification_json(run_verify(_db(request), site_code=site)))
+        return json_response(verification_json(run_verify(db_of(request), site_code=site)))
     except LedgerError as exc:
         return _error(exc)

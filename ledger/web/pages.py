@@ -12,27 +12,21 @@ from pathlib import Path
 from typing import Annotated, Any
 from urllib.parse import quote, unquote
 
-from fastapi import APIRouter, Depends, Query, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import FileResponse, RedirectResponse, Response
 from starlette.concurrency import run_in_threadpool
 
 from ledger.errors import InputError, LedgerError, NeedsConfirmation
 from ledger.inputs import parse_day
 from ledger.services import accounts, queries
-from ledger.services.accounts import READING_ROLES, RECORDING_ROLES, Session
+from ledger.services.accounts import RECORDING_ROLES, Session
 from ledger.web import security
 from ledger.web.app import TEMPLATES, error_response, render, today_utc
 from ledger.web.forms import VisitForm, drafts_from, form_values, place_error
-from ledger.web.security import check_csrf, check_site, need
+from ledger.web.security import Admin, Anyone, Office, Officer, Reader, Recorder, check_csrf, check_site, db_of
 
 router = APIRouter()
 
-Reader = Annotated[Session, Depends(need(*READING_ROLES))]
-Recorder = Annotated[Session, Depends(need(*RECORDING_ROLES))]
-Office = Annotated[Session, Depends(need("officer", "auditor"))]
-Officer = Annotated[Session, Depends(need("officer"))]
-Admin = Annotated[Session, Depends(need("admin"))]
-Anyone = Annotated[Session, Depends(security.current_session)]
 
 HOME_OF = {"technician": "/find", "officer": "/due", "auditor": "/find", "admin": "/users"}
 PAGE_SIZES = (25, 50, 100)
@@ -41,9 +35,6 @@ MAX_IMPORT_BYTES = 20 * 1024 * 1024
 IMPORT_SUFFIXES = (".csv", ".xlsx")
 KG_PER_LB = Decimal("0.45359237")  # exact, by the 1959 definition of the pound
 
-
-def _db(request: Request):  # type: ignore[no-untyped-def]
-    return request.app.state.db
 
 
 def mass_text(kg: Any, unit: str, places: int = 2) -> str:
@@ -106,7 +97,7 @@ async def login(request: Request) -> Response:
     if not cookie or not accounts.same_token(cookie, str(form.get(security.CSRF_FIELD, ""))):
         raise security.BadCsrf()
     try:
-        token, _ = await run_in_threadpool(accounts.login, _db(request), name=name, password=password)
+        token, _ = await run_in_threadpool(accounts.login, db_of(request), name=name, password=password)
     except accounts.LoginRefused as exc:
         response = render(request, "login.html", status_code=401, login_csrf=cookie, next=target,
                           error=str(exc), name=name)
@@ -121,7 +112,7 @@ async def login(request: Request) -> Response:
 async def logout(request: Request, session: Anyone) -> Response:
     form = await request.form()
     check_csrf(session, str(form.get(security.CSRF_FIELD, "")))
-    await run_in_threadpool(accounts.logout, _db(request), request.cookies.get(security.SESSION_COOKIE))
+    await run_in_threadpool(accounts.logout, db_of(request), request.cookies.get(security.SESSION_COOKIE))
     response = RedirectResponse("/login", status_code=303)
     response.delete_cookie(security.SESSION_COOKIE, path="/")
     return response
@@ -140,10 +131,11 @@ def find(request: Request, session: Reader, q: str = "") -> Response:
     text = q.strip()
     if "/" in text:
         site, _, tag = text.partition("/")
-        found = queries.find_systems(_db(request), text=text, sites=_scope(session), exact=(site.strip(), tag.strip()))
+        found = queries.find_systems(db_of(request), text=text, sites=_scope(session),
+                                     exact=(site.strip(), tag.strip()))
         if len(found) == 1:
             return RedirectResponse(system_url(found[0]["site"], found[0]["tag"]), status_code=303)
-    rows = queries.find_systems(_db(request), text=text, sites=_scope(session)) if text else []
+    rows = queries.find_systems(db_of(request), text=text, sites=_scope(session)) if text else []
     return render(request, "find.html", q=text, rows=rows, searched=bool(text))
 
 
@@ -164,7 +156,7 @@ def system_page(request: Request, session: Reader, site: str, tag: str, as_of: s
     check_site(session, site)
     try:
         day = _day(as_of)
-        view = queries.system_view(_db(request), site_code=site, tag=tag, as_of=day)
+        view = queries.system_view(db_of(request), site_code=site, tag=tag, as_of=day)
     except LedgerError as exc:
         return error_response(request, exc, 404 if "not" in str(exc) else 400)
     return render(request, "system.html", view=view, as_of=day,
@@ -180,7 +172,7 @@ def logbook_file(request: Request, session: Office, site: str, tag: str, fmt: st
     if fmt not in ("pdf", "xlsx"):
         return error_response(request, InputError("format", fmt, "is not one of pdf, xlsx"), 404)
     try:
-        book = reporting.logbook(_db(request), site_code=site, tag=tag, from_on=None, to_on=None)
+        book = reporting.logbook(db_of(request), site_code=site, tag=tag, from_on=None, to_on=None)
     except LedgerError as exc:
         return error_response(request, exc, 404)
     return _file(book, fmt, file_stem("logbook", site, tag), "logbook")
@@ -234,7 +226,7 @@ def attachment(request: Request, session: Office, digest: str) -> Response:
 def _visit_context(request: Request, session: Session, site: str, tag: str) -> dict[str, Any]:
     from ledger.services.recording import site_today
 
-    db = _db(request)
+    db = db_of(request)
     view = queries.system_view(db, site_code=site, tag=tag, as_of=today_utc())
     with db.read() as conn:
         from ledger.store import repository as repo
@@ -287,7 +279,7 @@ async def visit_submit(request: Request, session: Recorder, site: str, tag: str)
     if not form.errors:
         try:
             logged = await run_in_threadpool(
-                lambda: record_visit(_db(request), site_code=site, tag=tag, drafts=drafts,
+                lambda: record_visit(db_of(request), site_code=site, tag=tag, drafts=drafts,
                                      confirm=bool(form.get("confirm"))))
         except NeedsConfirmation as exc:
             reasons = exc.reasons
@@ -329,7 +321,7 @@ def visit_done(request: Request, session: Recorder, site: str, tag: str, ids: st
     check_site(session, site)
     wanted = {int(x) for x in ids.split(",") if x.strip().isdigit()}
     try:
-        view = queries.system_view(_db(request), site_code=site, tag=tag, as_of=today_utc())
+        view = queries.system_view(db_of(request), site_code=site, tag=tag, as_of=today_utc())
     except LedgerError as exc:
         return error_response(request, exc, 404)
     events = [e for e in view["events"] if e["id"] in wanted]
@@ -346,7 +338,7 @@ def due_rows(request: Request, *, as_of: date, site: str | None, regime: str | N
     """The filtered due list (the service call the page wraps)."""
     from ledger.services.obligations import due
 
-    return due(_db(request), as_of=as_of, within_days=within, site_code=site, overdue_only=overdue,
+    return due(db_of(request), as_of=as_of, within_days=within, site_code=site, overdue_only=overdue,
                regime=regime, kind=kind).rows
 
 
@@ -382,7 +374,7 @@ def due_page(
     page = min(page, pages)
     shown = rows[(page - 1) * per: page * per]
     return render(request, "due.html", rows=shown, total=len(rows), page=page, pages=pages, f=filters,
-                  as_of=day, error=error, sites=queries.site_codes(_db(request)), regimes=list(REGIMES),
+                  as_of=day, error=error, sites=queries.site_codes(db_of(request)), regimes=list(REGIMES),
                   kinds=[k.value for k in ObligationKind], sort_keys=SORT_KEYS, page_sizes=PAGE_SIZES,
                   overdue_count=sum(1 for r in rows if r["status"] == "overdue"))
 
@@ -390,7 +382,7 @@ def due_page(
 def _annual(request: Request, year: int | None, site: str, basis: str) -> dict[str, Any]:
     from ledger.services.reporting import annual_summary
 
-    return annual_summary(_db(request), year=year or today_utc().year - 1, site_code=site or None,
+    return annual_summary(db_of(request), year=year or today_utc().year - 1, site_code=site or None,
                           basis=basis or None)
 
 
@@ -403,7 +395,7 @@ def annual_page(request: Request, session: Office, year: int | None = None, site
     except LedgerError as exc:
         return error_response(request, exc)
     return render(request, "annual.html", s=summary, year=year, site=site, basis=basis,
-                  sites=queries.site_codes(_db(request)), as_of=summary["as_of"],
+                  sites=queries.site_codes(db_of(request)), as_of=summary["as_of"],
                   query=f"year={year}&site={quote(site)}&basis={quote(basis)}")
 
 
@@ -495,7 +487,7 @@ async def import_submit(request: Request, session: Officer) -> Response:
         if not problems:
             dry = bool(data.get("dry_run"))
             try:
-                summary = await run_in_threadpool(lambda: import_files(_db(request), paths, dry_run=dry))
+                summary = await run_in_threadpool(lambda: import_files(db_of(request), paths, dry_run=dry))
             except LedgerError as exc:
                 problems.append(str(exc))
     finally:
@@ -512,7 +504,7 @@ def verify_page(request: Request, session: Office, site: str = "") -> Response:
     from ledger.services.integrity import verification_json, verify
 
     try:
-        result = verification_json(verify(_db(request), site_code=site or None))
+        result = verification_json(verify(db_of(request), site_code=site or None))
     except LedgerError as exc:
         return error_response(request, exc)
     return render(request, "verify.html", result=result, site=site)
@@ -527,7 +519,7 @@ def users_page(request: Request, session: Admin) -> Response:
 
 
 def _users(request: Request, status_code: int = 200, **ctx: Any) -> Response:
-    db = _db(request)
+    db = db_of(request)
     return render(request, "users.html", status_code=status_code, users=accounts.list_users(db),
                   techs=[t["name"] for t in queries.technicians(db)], roles=accounts.ROLES,
                   sites=queries.site_codes(db), **ctx)
@@ -540,7 +532,7 @@ async def users_add(request: Request, session: Admin) -> Response:
     password = str(data.get("password") or "") or accounts.new_password()
     try:
         user = await run_in_threadpool(lambda: accounts.add_user(
-            _db(request), name=str(data.get("name", "")), role=str(data.get("role", "")), password=password,
+            db_of(request), name=str(data.get("name", "")), role=str(data.get("role", "")), password=password,
             technician=str(data.get("tech") or "") or None, sites=[str(s) for s in data.getlist("sites") if s]))
     except LedgerError as exc:
         return _users(request, 400, error=str(exc), values=form_values(data))
@@ -557,7 +549,7 @@ async def users_switch(request: Request, session: Admin, name: str, action: str)
     if name == session.user.name and action == "disable":
         return _users(request, 400, error="user: you cannot disable yourself")
     try:
-        await run_in_threadpool(lambda: accounts.set_disabled(_db(request), name=name, disabled=action == "disable"))
+        await run_in_threadpool(lambda: accounts.set_disabled(db_of(request), name=name, disabled=action == "disable"))
     except LedgerError as exc:
         return _users(request, 404, error=str(exc))
     return RedirectResponse("/users", status_code=303)

@@ -12,9 +12,9 @@ from __future__ import annotations
 
 import secrets
 from collections.abc import Callable
-from typing import Any
+from typing import Annotated, Any
 
-from fastapi import Request
+from fastapi import Depends, Request
 
 from ledger.services import accounts
 
@@ -112,3 +112,17 @@ HEADERS = {
                                "script-src 'self'; frame-ancestors 'none'; form-action 'self'",
     "Cache-Control": "no-store",
 }
+
+
+def db_of(request: Request) -> Any:
+    """The app's open ledger database."""
+    return request.app.state.db
+
+
+# Route parameters that check the role (and give the session).
+Reader = Annotated[accounts.Session, Depends(need(*accounts.READING_ROLES))]
+Recorder = Annotated[accounts.Session, Depends(need(*accounts.RECORDING_ROLES))]
+Office = Annotated[accounts.Session, Depends(need("officer", "auditor"))]
+Officer = Annotated[accounts.Session, Depends(need("officer"))]
+Admin = Annotated[accounts.Session, Depends(need("admin"))]
+Anyone = Annotated[accounts.Session, Depends(current_session)]
