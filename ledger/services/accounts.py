@@ -236,8 +236,7 @@ def session_of(
     digest = _digest(token)
     with db.read() as conn:
         row = store.find_session(digest, conn=conn)
-        user = store.user_by_id(row.user_id, conn=conn) if row is not None else None
-    if row is None or user is None or user.disabled:
+    if row is None or row.disabled:
         return None
     seen = _aware(row.last_seen_at)
     if now - seen > idle:
@@ -246,8 +245,8 @@ def session_of(
         return None
     if now - seen > TOUCH_EVERY:
         with db.write() as conn:
-            store.touch_session(row.id, now, conn=conn)
-    return Session(_user(user), row.csrf)
+            store.touch_session(row.session_id, now, conn=conn)
+    return Session(_user(row), row.csrf)
 
 
 def logout(db: Database, token: str | None) -> None:

@@ -51,8 +51,13 @@ def insert_session(*, conn: Connection, values: Mapping[str, Any]) -> None:
 
 
 def find_session(token_hash: str, *, conn: Connection) -> Any | None:
-    """The session row with this token hash, or None."""
-    return conn.execute(select(web_session).where(web_session.c.token_hash == token_hash)).first()
+    """The session with this token hash joined to its user's row (one query), or None."""
+    return conn.execute(
+        _user_query().add_columns(web_session.c.id.label("session_id"), web_session.c.csrf,
+                                  web_session.c.last_seen_at)
+        .join(web_session, web_session.c.user_id == app_user.c.id)
+        .where(web_session.c.token_hash == token_hash)
+    ).first()
 
 
 def touch_session(session_id: int, at: datetime, *, conn: Connection) -> None:
