@@ -59,3 +59,6 @@ class NeedsConfirmation(LedgerError):
     def __init__(self, reasons: tuple[str, ...]) -> None:
         self.reasons = tuple(reasons)
         super().__init__("confirm: " + "; ".join(self.reasons) + " (repeat with --confirm to record it anyway)")
+
+    def __reduce__(self):  # type: ignore[no-untyped-def]
+        return (type(self), (self.reasons,))  # keeps the reasons across processes (pickling)
