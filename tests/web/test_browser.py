@@ -191,7 +191,7 @@ PAGES = (
     ("jana", "/systems/DE-LEJ/CU-DAIRY/visit", "visit"),
     ("greta", "/due?per=25", "due"),
     ("greta", f"/annual?year={DEMO_YEAR}", "annual"),
-    ("greta", "/systems/DE-LEJ/CU-DAIRY", "system"),
+    ("greta", "/systems/DE-HAJ/NH3-PLANT", "system"),
     ("audit", "/systems/DE-LEJ/CU-DAIRY", "history"),
     ("audit", "/verify", "verify"),
     ("admin", "/users", "users"),
