@@ -50,3 +50,15 @@ class SchemaOutOfDate(LedgerError):
 
 class Rejected(LedgerError):
     """A request that validation refused; the message starts with the field it is about."""
+
+
+class NeedsConfirmation(LedgerError):
+    """A request that looks like a mistake (e.g. a duplicate of an entry just made); nothing was
+    written. Repeat it with confirmation (``--confirm`` in the CLI) to record it anyway."""
+
+    def __init__(self, reasons: tuple[str, ...]) -> None:
+        self.reasons = tuple(reasons)
+        super().__init__("confirm: " + "; ".join(self.reasons) + " (repeat with --confirm to record it anyway)")
+
+    def __reduce__(self):  # type: ignore[no-untyped-def]
+        return (type(self), (self.reasons,))  # keeps the reasons across processes (pickling)

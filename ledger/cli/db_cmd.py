@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Annotated
+
 import typer
 
 from ledger.cli import context
@@ -64,3 +66,28 @@ def upgrade() -> None:
     if saved:
         typer.echo(f"backup: {saved}")
     typer.echo(f"upgraded {before or 'empty database'} -> {after}")
+
+
+@app.command("roles")
+def roles(
+    writer: Annotated[
+        str, typer.Option("--writer", help="Name of the application's writer role.")
+    ] = "refledger_writer",
+    auditor: Annotated[str, typer.Option("--auditor", help="Name of the read-only role.")] = "refledger_auditor",
+    grant_writer: Annotated[
+        str | None, typer.Option("--grant-writer", help="Make this login role a member of the writer role.")
+    ] = None,
+    grant_auditor: Annotated[
+        str | None, typer.Option("--grant-auditor", help="Make this login role a member of the auditor role.")
+    ] = None,
+) -> None:
+    """PostgreSQL only: create roles that can append events but never change them, and read only.
+
+    Example: refledger --db postgresql://admin@db/ledger db roles --grant-writer ledger_app
+    """
+    from ledger.services.dbroles import make_roles
+
+    made = make_roles(context.open_db(), writer=writer, auditor=auditor, grant_writer=grant_writer,
+                      grant_auditor=grant_auditor)
+    typer.echo(f"writer role {made.writer}: SELECT everything, INSERT events and filings, never UPDATE/DELETE them")
+    typer.echo(f"auditor role {made.auditor}: SELECT only (not the web accounts tables)")

@@ -47,4 +47,9 @@ def demo(
         typer.echo(f"  ... and {len(result.due) - 20} more: refledger due")
     for path in result.files:
         typer.echo(f"wrote {path}")
+    typer.echo("\nWeb app users (passwords are shown only now):")
+    for name, role, password in result.users:
+        typer.echo(f"  {name:<8} {role:<10} {password}")
+    typer.echo(f"Start the web app: refledger --db {result.url.removeprefix('sqlite:///')} serve  "
+               "(then open http://127.0.0.1:8000/)")
     typer.echo("\n" + LOCAL_RULES_NOTE)

@@ -25,6 +25,8 @@ def due(
     ] = None,
     site: Annotated[str | None, typer.Option("--site", help="Only this site.")] = None,
     overdue: Annotated[bool, typer.Option("--overdue", help="Only overdue obligations.")] = False,
+    regime: Annotated[str | None, typer.Option("--regime", help="Only this regime, e.g. eu or us-84c.")] = None,
+    kind: Annotated[str | None, typer.Option("--kind", help="Only this kind, e.g. leak-check.")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
     csv_file: Annotated[Path | None, typer.Option("--csv", help="Write CSV to FILE.", metavar="FILE")] = None,
     xlsx_file: Annotated[
@@ -52,7 +54,7 @@ def due(
     for path, option in ((csv_file, "--csv"), (xlsx_file, "--xlsx"), (pdf_file, "--pdf")):
         output_file(path, option)
     listing = compute_due(context.open_db(), as_of=day, within_days=within, site_code=site, overdue_only=overdue,
-                          recompute=recompute)
+                          recompute=recompute, regime=regime, kind=kind)
     if csv_file or xlsx_file or pdf_file:
         from ledger.exports import due as due_export
 

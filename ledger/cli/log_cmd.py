@@ -31,6 +31,9 @@ Mass = Annotated[str | None, typer.Option("--mass", help="Mass, e.g. 2.5kg, 5 lb
 Cylinder = Annotated[str | None, typer.Option("--cylinder", help="Cylinder id.")]
 Before = Annotated[str | None, typer.Option("--before", help="Cylinder weight before.")]
 After = Annotated[str | None, typer.Option("--after", help="Cylinder weight after.")]
+Confirm = Annotated[
+    bool, typer.Option("--confirm", help="Record it even if it looks like a duplicate of an entry already made.")
+]
 
 
 def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | None:
@@ -40,7 +43,8 @@ def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | No
 
 
 def _log(
-    kind: str, ref: str, on: str, tech: str | None, note: str, by: str | None, attach: list[Path] | None, **fields: Any
+    kind: str, ref: str, on: str, tech: str | None, note: str, by: str | None, attach: list[Path] | None,
+    confirm: bool = False, **fields: Any
 ) -> None:
     from ledger.cli.render import warn
     from ledger.domain.drafts import EventDraft
@@ -59,7 +63,7 @@ def _log(
         **fields,
     )
     db = context.open_db()  # one engine (and connection) for the write and the look ahead
-    logged = log_event(db, site_code=site_code, tag=tag, draft=draft)
+    logged = log_event(db, site_code=site_code, tag=tag, draft=draft, confirm=confirm)
     for w in logged.warnings:
         warn(w.message)
     typer.echo(f"event {logged.event_id} recorded: {kind} on {site_code}/{tag} {draft.performed_on}")
@@ -88,6 +92,7 @@ def add(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Refrigerant added: by --mass, or by cylinder weights --before/--after.
 
@@ -101,6 +106,7 @@ def add(
         note,
         by,
         attach,
+        confirm,
         mass_mg=_mass(mass, "--mass"),
         cylinder_code=cylinder,
         cylinder_before_mg=_mass(before, "--before"),
@@ -125,6 +131,7 @@ def recover(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Refrigerant recovered from a system that stays in service.
 
@@ -138,6 +145,7 @@ def recover(
         note,
         by,
         attach,
+        confirm,
         mass_mg=_mass(mass, "--mass"),
         cylinder_code=cylinder,
         cylinder_before_mg=_mass(before, "--before"),
@@ -157,12 +165,13 @@ def check(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Leak check and its result.
 
     Example: refledger log check DE-HAM/RACK-1 --on 2025-03-14 --result leak-found --where "LT suction header"
     """
-    _log("check", ref, on, tech, note, by, attach, result=result, location=where, method=method)
+    _log("check", ref, on, tech, note, by, attach, confirm, result=result, location=where, method=method)
 
 
 @app.command("repair")
@@ -174,12 +183,13 @@ def repair(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Leak repaired.
 
     Example: refledger log repair DE-HAM/RACK-1 --on 2025-03-15 --where "flare nut re-made"
     """
-    _log("repair", ref, on, tech, note, by, attach, location=where)
+    _log("repair", ref, on, tech, note, by, attach, confirm, location=where)
 
 
 @app.command("follow-up")
@@ -192,39 +202,43 @@ def follow_up(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Follow-up check (or verification test) after a repair.
 
     Example: refledger log follow-up DE-HAM/RACK-1 --on 2025-03-20 --result pass
     """
-    _log("follow-up", ref, on, tech, note, by, attach, result=result, method=method)
+    _log("follow-up", ref, on, tech, note, by, attach, confirm, result=result, method=method)
 
 
 @app.command("detection-on")
-def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
+                 confirm: Confirm = False) -> None:
     """Leak detection system installed.
 
     Example: refledger log detection-on DE-HAM/RACK-1 --on 2025-01-10
     """
-    _log("detection-on", ref, on, tech, note, by, attach)
+    _log("detection-on", ref, on, tech, note, by, attach, confirm)
 
 
 @app.command("detection-off")
-def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
+                 confirm: Confirm = False) -> None:
     """Leak detection system removed or out of use.
 
     Example: refledger log detection-off DE-HAM/RACK-1 --on 2025-01-10
     """
-    _log("detection-off", ref, on, tech, note, by, attach)
+    _log("detection-off", ref, on, tech, note, by, attach, confirm)
 
 
 @app.command("detection-check")
-def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None) -> None:
+def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
+                 confirm: Confirm = False) -> None:
     """Leak detection system checked.
 
     Example: refledger log detection-check DE-HAM/RACK-1 --on 2025-06-01
     """
-    _log("detection-check", ref, on, tech, note, by, attach)
+    _log("detection-check", ref, on, tech, note, by, attach, confirm)
 
 
 @app.command("charge")
@@ -236,12 +250,13 @@ def charge(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Full charge revised (re-determined by measurement, calculation or maker's data).
 
     Example: refledger log charge DE-HAM/RACK-1 --on 2025-02-01 --charge 310kg --note "by calculation"
     """
-    _log("charge-revised", ref, on, tech, note, by, attach, charge_mg=_mass(charge_, "--charge"))
+    _log("charge-revised", ref, on, tech, note, by, attach, confirm, charge_mg=_mass(charge_, "--charge"))
 
 
 @app.command("retrofit")
@@ -254,12 +269,14 @@ def retrofit(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Retrofit to another refrigerant and charge.
 
     Example: refledger log retrofit DE-HAM/RACK-1 --on 2025-05-01 --refrigerant R-448A --charge 280kg
     """
-    _log("retrofit", ref, on, tech, note, by, attach, refrigerant=refrigerant, charge_mg=_mass(charge_, "--charge"))
+    _log("retrofit", ref, on, tech, note, by, attach, confirm, refrigerant=refrigerant,
+         charge_mg=_mass(charge_, "--charge"))
 
 
 @app.command("retire")
@@ -275,6 +292,7 @@ def retire(
     note: Note = "",
     by: By = None,
     attach: Attach = None,
+    confirm: Confirm = False,
 ) -> None:
     """Taken out of service, with the refrigerant recovered and where it went.
 
@@ -288,6 +306,7 @@ def retire(
         note,
         by,
         attach,
+        confirm,
         mass_mg=_mass(recovered, "--recovered", allow_zero=True),
         destination=destination,
         cylinder_code=cylinder,

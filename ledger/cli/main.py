@@ -88,6 +88,9 @@ COMMANDS: dict[str, tuple[str, str | None]] = {
     "refrigerant": ("refrigerant_cmd", "app"),
     "detector": ("detector_cmd", "app"),
     "db": ("db_cmd", "app"),
+    "user": ("user_cmd", "app"),
+    "serve": ("serve_cmd", None),
+    "label": ("label_cmd", None),
 }
 
 

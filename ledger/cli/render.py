@@ -7,11 +7,8 @@ out (bad input, unknown name, schema behind). Bugs keep their traceback.
 
 from __future__ import annotations
 
-import json
 import sys
 from collections.abc import Iterable, Sequence
-from datetime import date, datetime
-from decimal import Decimal
 from typing import Any
 
 import typer
@@ -19,6 +16,7 @@ from typer.core import TyperGroup
 
 from ledger.errors import LedgerError
 from ledger.exports.common import CAUTION
+from ledger.jsontext import dumps
 
 PIPED_WIDTH = 200  # columns used when stdout is not a terminal
 EXIT_FINDINGS = 1
@@ -44,21 +42,6 @@ class LedgerGroup(TyperGroup):
 def warn(message: str) -> None:
     """A warning line on stderr (the command still succeeds)."""
     typer.echo(message, err=True)
-
-
-def _default(value: Any) -> Any:
-    if isinstance(value, Decimal):
-        return float(value) if value != value.to_integral_value() else int(value)
-    if isinstance(value, datetime | date):
-        return value.isoformat()
-    if isinstance(value, set | frozenset | tuple):
-        return list(value)
-    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
-
-
-def dumps(data: Any) -> str:
-    """JSON for the command line contract (Decimals as numbers, dates as ISO strings)."""
-    return json.dumps(data, default=_default, indent=2, ensure_ascii=False)
 
 
 def print_json(data: Any) -> None:

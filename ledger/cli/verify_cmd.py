@@ -41,6 +41,7 @@ def verify(
     """
     from ledger.cli.render import print_json
     from ledger.services.checkpoints import check_signature, load_checkpoint, load_public_key
+    from ledger.services.integrity import verification_json
     from ledger.services.integrity import verify as run_verify
 
     db = context.open_db()
@@ -53,33 +54,7 @@ def verify(
     result = run_verify(db, site_code=site, checkpoint=found.statement if found is not None and signed.ok else None)
     ok = result.ok and (signed is None or signed.ok)
     if json_out:
-        print_json(
-            {
-                "ok": ok,
-                "systems": result.systems,
-                "events": result.events,
-                "heads_digest": result.digest,
-                "heads": result.heads,
-                "records": {"head": result.records_head, "versions": result.record_versions},
-                "breaks": [
-                    {"site": b.site, "system": b.system, "event": b.event_id, "what": b.what, "detail": b.detail}
-                    for b in result.breaks
-                ],
-                "record_breaks": [
-                    {"table": b.table, "key": b.key, "row": b.row_id, "what": b.what, "detail": b.detail}
-                    for b in result.record_breaks
-                ],
-                "guards": result.guards,
-                "kept": result.kept,
-                "checkpoint": None if found is None else {
-                    "id": found.id, "made_at": found.made_at, "key_id": found.key_id,
-                    "signature_ok": signed.ok, "checked_against": signed.key_source,
-                    "signature_problems": list(signed.problems),
-                    "breaks": [{"chain": b.chain, "what": b.what, "detail": b.detail}
-                               for b in result.checkpoint_breaks],
-                },
-            }
-        )
+        print_json(verification_json(result, found, signed))
     else:
         for line in result.problems():
             typer.echo(f"BROKEN {line}", err=True)

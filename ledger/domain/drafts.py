@@ -7,6 +7,7 @@ write, warnings are recorded with the event and shown.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import date
 
@@ -16,10 +17,12 @@ from ledger.domain.records import (
     CheckResult,
     Cylinder,
     Destination,
+    Event,
     EventKind,
     Finding,
     FollowUpResult,
     Severity,
+    System,
     SystemState,
     Technician,
 )
@@ -177,3 +180,33 @@ def certificate_findings(technician: Technician, on: date) -> list[Finding]:
             field="--tech",
         )
     ]
+
+
+def confirmation_reasons(draft: EventDraft, history: Sequence[Event], system: System) -> tuple[str, ...]:
+    """Why a draft may be a mistake the user should confirm (empty: record it without asking).
+
+    Only one check today: the same kind of event on the same system, day, mass and technician
+    is already recorded (and not voided): most likely the same entry sent twice.
+
+    Args:
+        draft: the requested event (mass already worked out from cylinder weights).
+        history: the system's events so far.
+        system: the system the draft is for.
+    Returns:
+        One sentence per reason.
+    """
+    voided = {e.voids_id for e in history if e.voids_id is not None}
+    for e in history:
+        if (
+            e.id not in voided
+            and e.system_id == system.id
+            and e.kind is draft.kind
+            and e.performed_on == draft.performed_on
+            and e.mass_mg == draft.mass_mg
+            and (e.technician or None) == (draft.technician or None)
+        ):
+            return (
+                f"event {e.id} already records {draft.kind.value} on {system.site_code}/{system.tag} "
+                f"on {draft.performed_on.isoformat()} with the same mass and technician",
+            )
+    return ()

@@ -59,3 +59,12 @@ def write_csv(
         for row in rows:
             writer.writerow([cell(row.get(c.key), c.kind) for c in columns])
     return path
+
+
+def write_annual_csv(path: Path, summary: Mapping[str, Any]) -> Path:
+    """Write the annual loss summary's per-system table as CSV (one row per system)."""
+    from ledger.exports.frames import annual_sheets
+
+    sheet = next(s for s in annual_sheets(summary) if s.columns[1].key == "system")
+    records = [{k: (None if is_blank(v) else v) for k, v in r.items()} for r in sheet.frame.to_dict("records")]
+    return write_csv(path, sheet.columns, records, header="label")

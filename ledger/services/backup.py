@@ -7,6 +7,11 @@ Layout of an export folder:
   count and the SHA-256 of its file, plus the digest of all chain heads.
 
 This is also the way from the embedded SQLite file to a PostgreSQL server.
+
+Not exported, on purpose: kept results (derived; recomputed on the next run) and the web
+accounts tables (`ACCOUNTS_NOT_EXPORTED`): users, sessions and failed logins belong to one
+installation, and an export folder must never carry password hashes. After a restore, add the
+users again with `refledger user add`.
 """
 
 from __future__ import annotations
@@ -40,6 +45,8 @@ TABLE_ORDER = (
     "record_version",
     "checkpoint",
 )
+# Web accounts: never exported (password hashes stay in the database they were made in).
+ACCOUNTS_NOT_EXPORTED = ("app_user", "web_session", "login_failure")
 
 
 @dataclass(frozen=True, slots=True)

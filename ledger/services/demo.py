@@ -17,6 +17,16 @@ DEMO_AS_OF = date(2026, 12, 1)
 DEMO_RECORDS_FROM = date(2023, 12, 1)
 
 
+# Web app users of the demo (login, role, technician record, sites): invented like the rest.
+DEMO_USERS: tuple[tuple[str, str, str | None, tuple[str, ...]], ...] = (
+    ("jana", "technician", "Jana Köhler", ("DE-LEJ", "DE-HAJ")),
+    ("marisol", "technician", "Marisol Vega", ("TX-HOU", "TX-DAL")),
+    ("greta", "officer", None, ()),
+    ("audit", "auditor", None, ()),
+    ("admin", "admin", None, ()),
+)
+
+
 @dataclass(slots=True)
 class DemoResult:
     """What `refledger demo` built and wrote."""
@@ -29,9 +39,11 @@ class DemoResult:
     due: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     files: list[Path] = field(default_factory=list)
+    users: list[tuple[str, str, str]] = field(default_factory=list)  # (login, role, password)
 
 
-def build_demo(location: Location, *, records: Path, out: Path | None, replace: bool) -> DemoResult:
+def build_demo(location: Location, *, records: Path, out: Path | None, replace: bool,
+               password: str | None = None) -> DemoResult:
     """Create (or replace) the demo database, import the sample records, list what is due.
 
     Args:
@@ -40,6 +52,7 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         records: folder with sites.csv ... events.csv.
         out: folder for sample reports, or None.
         replace: delete an existing SQLite file first.
+        password: give every demo user this password (tests); default: a new random one each.
     """
     from ledger.services.obligations import due
 
@@ -74,6 +87,7 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         result.systems = summary.added["systems"]
         result.events = summary.added["events"] + summary.added["systems"]
         result.warnings = summary.warnings
+        result.users = add_demo_users(db, password=password)
         result.due = [
             f"{r['due_on']}  {r['status']:<8} {r['kind']:<22} "
             f"{r['site']}/{r['system'] or '(facility)'}  {r['regime']}: {r['basis']}"
@@ -88,6 +102,18 @@ def build_demo(location: Location, *, records: Path, out: Path | None, replace: 
         return result
     finally:
         db.close()
+
+
+def add_demo_users(db: Database, *, password: str | None = None) -> list[tuple[str, str, str]]:
+    """Add the demo's web app users; returns (login, role, password) for each."""
+    from ledger.services.accounts import add_user, new_password
+
+    made = []
+    for name, role, tech, sites in DEMO_USERS:
+        secret = password or new_password()
+        add_user(db, name=name, role=role, password=secret, technician=tech, sites=sites)
+        made.append((name, role, secret))
+    return made
 
 
 def load_detectors(db: Database, location: Location, folder: Path) -> list:  # type: ignore[type-arg]

@@ -423,3 +423,33 @@ def report_check(db: Database, *, site_code: str | None = None, system_ids: list
     return {"verified": not problems, "problems": problems, "digest": v.digest, "systems": v.systems,
             "heads": v.heads, "records_head": v.records_head, "checkpoint": cover, "covered_names": covered}
 
+
+
+def verification_json(result: Verification, found: Any = None, signed: Any = None) -> dict[str, Any]:
+    """A verification as the `verify --json` contract (and the web API) has it; ``found`` and
+    ``signed`` are the checkpoint checked against and its signature check, if one was given."""
+    return {
+        "ok": result.ok and (signed is None or signed.ok),
+        "systems": result.systems,
+        "events": result.events,
+        "heads_digest": result.digest,
+        "heads": result.heads,
+        "records": {"head": result.records_head, "versions": result.record_versions},
+        "breaks": [
+            {"site": b.site, "system": b.system, "event": b.event_id, "what": b.what, "detail": b.detail}
+            for b in result.breaks
+        ],
+        "record_breaks": [
+            {"table": b.table, "key": b.key, "row": b.row_id, "what": b.what, "detail": b.detail}
+            for b in result.record_breaks
+        ],
+        "guards": result.guards,
+        "kept": result.kept,
+        "checkpoint": None if found is None else {
+            "id": found.id, "made_at": found.made_at, "key_id": found.key_id,
+            "signature_ok": signed.ok, "checked_against": signed.key_source,
+            "signature_problems": list(signed.problems),
+            "breaks": [{"chain": b.chain, "what": b.what, "detail": b.detail}
+                       for b in result.checkpoint_breaks],
+        },
+    }

@@ -22,6 +22,7 @@ from ledger.domain.records import (
     Severity,
     SystemHistory,
 )
+from ledger.errors import InputError
 from ledger.reference import load_reference
 from ledger.services.queries import obligation_json
 from ledger.store import repository as repo
@@ -509,6 +510,8 @@ def due(
     site_code: str | None = None,
     overdue_only: bool = False,
     recompute: bool = False,
+    regime: str | None = None,
+    kind: str | None = None,
 ) -> DueList:
     """Open and overdue obligations across the estate (or one site), earliest first.
 
@@ -520,13 +523,18 @@ def due(
         overdue_only: only overdue obligations.
         recompute: ignore kept rows: run the rules over every site's records (and keep the
             result).
+        regime: only obligations under this regime (a `REGIMES` code).
+        kind: only obligations of this kind (e.g. ``leak-check``).
     """
+    check_due_filters(regime=regime, kind=kind)
     with repo.gc_paused():
         shown, places = _shown_on(db, as_of, site_code, recompute)
     labels = {sid: (code, tag) for sid, (code, tag, _) in places.items()}
     rows = []
     for ob, missed in zip(shown.obligations, shown.missed, strict=True):
         if overdue_only and ob.status is not ObligationStatus.OVERDUE:
+            continue
+        if (regime is not None and ob.regime != regime) or (kind is not None and ob.kind.value != kind):
             continue
         if within_days is not None and ob.status is ObligationStatus.OPEN and (ob.due_on - as_of).days > within_days:
             continue
@@ -536,3 +544,15 @@ def due(
     rows.sort(key=lambda r: (r["due_on"], r["site"] or "", r["system"] or "", r["kind"], r["regime"],
                              r["caused_by"] or 0, r["detail"]))
     return DueList(as_of, rows, shown.findings)
+
+
+def check_due_filters(*, regime: str | None, kind: str | None) -> None:
+    """Refuse a regime or obligation kind the ledger does not know (naming the allowed ones)."""
+    from ledger.domain.records import ObligationKind
+    from ledger.rules import REGIMES
+
+    if regime is not None and regime not in REGIMES:
+        raise InputError("--regime", regime, f"is not one of {', '.join(REGIMES)}")
+    kinds = [k.value for k in ObligationKind]
+    if kind is not None and kind not in kinds:
+        raise InputError("--kind", kind, f"is not one of {', '.join(kinds)}")

@@ -46,6 +46,12 @@ def sites(db: Database) -> list[dict[str, Any]]:
         ]
 
 
+def site_codes(db: Database) -> list[str]:
+    """The code of every site, sorted (a filter's choices: one small query)."""
+    with db.read() as conn:
+        return sorted(s.code for s in repo.list_sites(conn=conn))
+
+
 def technicians(db: Database) -> list[dict[str, Any]]:
     """Every technician with certificates."""
     with db.read() as conn:
@@ -87,6 +93,69 @@ def cylinders(db: Database) -> list[dict[str, Any]]:
             {"id": c.id, "refrigerant": c.refrigerant, "kind": c.kind.value, "tare_kg": kg(c.tare_mg)}
             for c in repo.list_cylinders(conn=conn)
         ]
+
+
+def find_systems(
+    db: Database,
+    *,
+    text: str,
+    sites: Sequence[str] | None = None,
+    exact: tuple[str, str] | None = None,
+    limit: int = 50,
+) -> list[dict[str, Any]]:
+    """Systems whose code (SITE/TAG), tag or description contains ``text`` (any case).
+
+    Args:
+        text: what was typed or scanned.
+        sites: only these sites (None: every site).
+        exact: (site code, tag) to match exactly instead, e.g. a code read from a label.
+        limit: at most this many rows.
+    """
+    needle = text.strip().casefold()
+    with db.read() as conn:
+        systems = repo.list_systems(conn=conn)
+    rows = []
+    for s in systems:
+        if sites is not None and s.site_code not in sites:
+            continue
+        code = f"{s.site_code}/{s.tag}"
+        if exact is not None:
+            if (s.site_code.casefold(), s.tag.casefold()) != (exact[0].casefold(), exact[1].casefold()):
+                continue
+        elif needle not in code.casefold() and needle not in s.description.casefold():
+            continue
+        rows.append({"site": s.site_code, "tag": s.tag, "code": code, "description": s.description,
+                     "application": s.application.value})
+        if len(rows) >= limit:
+            break
+    return rows
+
+
+def label_rows(db: Database, *, site_code: str, base_url: str) -> list[dict[str, Any]]:
+    """One row per system of a site for its label: code, description, refrigerant and page URL."""
+    from urllib.parse import quote, urlsplit
+
+    from ledger.errors import InputError
+
+    parts = urlsplit(base_url)
+    if parts.scheme not in ("http", "https") or not parts.netloc:
+        raise InputError("--base-url", base_url, "must be an http:// or https:// address")
+    root = base_url.rstrip("/")
+    with db.read() as conn:
+        repo.get_site(site_code, conn=conn)
+        histories = repo.load_histories(site_code, conn=conn)
+    rows = []
+    for h in histories:
+        state = state_of(h.events, date.max)
+        if not state.in_service:
+            continue
+        rows.append({
+            "code": f"{h.site.code}/{h.system.tag}",
+            "description": h.system.description,
+            "refrigerant": state.refrigerant,
+            "url": f"{root}/systems/{quote(h.site.code, safe='')}/{quote(h.system.tag, safe='')}",
+        })
+    return rows
 
 
 def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:

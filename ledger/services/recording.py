@@ -15,7 +15,7 @@ from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from ledger.domain.certificates import WorkFacts
-from ledger.domain.drafts import EventDraft, cylinder_mass_mg, validate_event
+from ledger.domain.drafts import EventDraft, confirmation_reasons, cylinder_mass_mg, validate_event
 from ledger.domain.records import (
     Application,
     Certificate,
@@ -30,7 +30,7 @@ from ledger.domain.records import (
     SystemState,
 )
 from ledger.domain.state import state_of
-from ledger.errors import Conflict, InputError, Rejected
+from ledger.errors import Conflict, InputError, LedgerError, NeedsConfirmation, Rejected
 from ledger.reference import load_reference
 from ledger.services import places
 from ledger.store import repository as repo
@@ -340,74 +340,138 @@ def _technician_for(name: str | None, facts: WorkFacts, *, conn) -> tuple[int | 
     return tech.id, (cert_ids[cert.number] if cert else None), certificate_findings(tech, facts)
 
 
-def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> Logged:
-    """Validate an event against the system's state and append it.
-
-    Raises:
-        InputError: the first error finding; nothing is written.
-        NotFound: unknown site, system, technician or cylinder.
-    """
-    reference = load_reference()
+def _prepared(draft: EventDraft, reference: Any) -> EventDraft:
+    """The draft with its mass worked out (``--mass`` or cylinder weights) and its gas named."""
     mass_mg, weight_findings = cylinder_mass_mg(draft)
     _raise_first_error(weight_findings)
     draft = replace(draft, mass_mg=mass_mg)
     if draft.kind in (EventKind.RETROFIT,) and draft.refrigerant:
         draft = replace(draft, refrigerant=reference.lookup(draft.refrigerant).designation)
+    return draft
+
+
+def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, reference: Any, *,  # type: ignore[no-untyped-def]
+                    confirm: bool) -> tuple[int, str, list[Finding]]:
+    """Check one prepared draft against the system's state inside the caller's transaction and
+    append it: the one step every event-recording use case goes through.
+
+    Raises:
+        Rejected: the first error finding (the caller's transaction rolls back).
+        NeedsConfirmation: the draft looks like a mistake and ``confirm`` is False.
+    """
+    events = repo.load_events([sys_.id], conn=conn).get(sys_.id, ())
+    state = state_of(events, draft.performed_on)
+    cylinder = cyl_id = None
+    cylinder_matches = None
+    if draft.cylinder_code:
+        cyl_id, cylinder = repo.get_cylinder(draft.cylinder_code, conn=conn)
+        cylinder_matches = cylinder.refrigerant == state.refrigerant
+    same = None
+    if draft.refrigerant and draft.kind in (EventKind.ADD, EventKind.RECOVER):
+        same = reference.lookup(draft.refrigerant).designation == state.refrigerant
+    tech = None
+    if draft.technician:
+        tech, _ = repo.get_technician(draft.technician, conn=conn)
+    facts = work_facts(draft, state, the_site, sys_)
+    findings = validate_event(
+        draft,
+        state,
+        today=site_today(the_site.timezone),
+        same_refrigerant=same,
+        cylinder=cylinder,
+        cylinder_matches=cylinder_matches,
+        technician=tech,
+        placed_on=placed_on(events),
+        work=facts,
+    )
+    _raise_first_error(findings)
+    if not confirm:
+        reasons = confirmation_reasons(draft, events, sys_)
+        if reasons:
+            raise NeedsConfirmation(reasons)
+    tech_id, cert_id, _ = _technician_for(draft.technician, facts, conn=conn)
+    values = {
+        "system_id": sys_.id,
+        "kind": draft.kind.value,
+        "performed_on": draft.performed_on,
+        "mass_mg": draft.mass_mg,
+        "refrigerant": draft.refrigerant if draft.kind is EventKind.RETROFIT else None,
+        "charge_mg": draft.charge_mg,
+        "result": draft.result,
+        "location": draft.location,
+        "method": draft.method,
+        "destination": draft.destination,
+        "cylinder_id": cyl_id,
+        "cylinder_before_mg": draft.cylinder_before_mg,
+        "cylinder_after_mg": draft.cylinder_after_mg,
+        "technician_id": tech_id,
+        "certificate_id": cert_id,
+        "recorded_by": draft.recorded_by,
+        "note": draft.note,
+        "attachments": " ".join(draft.attachments),
+        "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
+    }
+    findings = [*findings, *servicing_warnings(reference, the_site, sys_, state, draft.kind,
+                                               draft.performed_on, values["reclaimed"])]
+    event_id, head = repo.append_event(conn=conn, values=values)
+    return event_id, head, findings
+
+
+def _warnings(findings: Sequence[Finding]) -> tuple[Finding, ...]:
+    return tuple(f for f in findings if f.severity is Severity.WARNING)
+
+
+def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft, confirm: bool = False) -> Logged:
+    """Validate an event against the system's state and append it.
+
+    Raises:
+        InputError: the first error finding; nothing is written.
+        NotFound: unknown site, system, technician or cylinder.
+        NeedsConfirmation: the event looks like a duplicate and ``confirm`` is False.
+    """
+    reference = load_reference()
+    draft = _prepared(draft, reference)
     with db.write() as conn:
         the_site, sys_ = repo.get_system(site_code, tag, conn=conn)
-        events = repo.load_events([sys_.id], conn=conn).get(sys_.id, ())
-        state = state_of(events, draft.performed_on)
-        cylinder = cyl_id = None
-        cylinder_matches = None
-        if draft.cylinder_code:
-            cyl_id, cylinder = repo.get_cylinder(draft.cylinder_code, conn=conn)
-            cylinder_matches = cylinder.refrigerant == state.refrigerant
-        same = None
-        if draft.refrigerant and draft.kind in (EventKind.ADD, EventKind.RECOVER):
-            same = reference.lookup(draft.refrigerant).designation == state.refrigerant
-        tech = None
-        if draft.technician:
-            tech, _ = repo.get_technician(draft.technician, conn=conn)
-        facts = work_facts(draft, state, the_site, sys_)
-        findings = validate_event(
-            draft,
-            state,
-            today=site_today(the_site.timezone),
-            same_refrigerant=same,
-            cylinder=cylinder,
-            cylinder_matches=cylinder_matches,
-            technician=tech,
-            placed_on=placed_on(events),
-            work=facts,
-        )
-        _raise_first_error(findings)
-        tech_id, cert_id, _ = _technician_for(draft.technician, facts, conn=conn)
-        values = {
-            "system_id": sys_.id,
-            "kind": draft.kind.value,
-            "performed_on": draft.performed_on,
-            "mass_mg": draft.mass_mg,
-            "refrigerant": draft.refrigerant if draft.kind is EventKind.RETROFIT else None,
-            "charge_mg": draft.charge_mg,
-            "result": draft.result,
-            "location": draft.location,
-            "method": draft.method,
-            "destination": draft.destination,
-            "cylinder_id": cyl_id,
-            "cylinder_before_mg": draft.cylinder_before_mg,
-            "cylinder_after_mg": draft.cylinder_after_mg,
-            "technician_id": tech_id,
-            "certificate_id": cert_id,
-            "recorded_by": draft.recorded_by,
-            "note": draft.note,
-            "attachments": " ".join(draft.attachments),
-            "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
-        }
-        findings = [*findings, *servicing_warnings(reference, the_site, sys_, state, draft.kind,
-                                                   draft.performed_on, values["reclaimed"])]
-        event_id, head = repo.append_event(conn=conn, values=values)
-    warnings = tuple(f for f in findings if f.severity is Severity.WARNING)
-    return Logged(event_id, head, warnings, site_code, tag)
+        event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm)
+    return Logged(event_id, head, _warnings(findings), site_code, tag)
+
+
+def record_visit(
+    db: Database, *, site_code: str, tag: str, drafts: Sequence[EventDraft], confirm: bool = False
+) -> tuple[Logged, ...]:
+    """Record one visit to a system (e.g. leak check, repair, top-up, follow-up) as one unit.
+
+    The drafts are checked and appended in the order given, each against the state the earlier
+    ones left, all in one transaction: an error in any of them writes none.
+
+    Raises:
+        Rejected / InputError: the first error finding; nothing is written.
+        NotFound: unknown site, system, technician or cylinder.
+        NeedsConfirmation: one of the drafts looks like a duplicate and ``confirm`` is False.
+    Each error carries ``visit_part``: the kind of the draft it is about.
+    """
+    if not drafts:
+        raise InputError("visit", "", "records nothing: fill in at least one part of the visit")
+    reference = load_reference()
+    prepared = []
+    for d in drafts:
+        try:
+            prepared.append(_prepared(d, reference))
+        except LedgerError as exc:
+            exc.visit_part = d.kind  # type: ignore[attr-defined]
+            raise
+    logged: list[Logged] = []
+    with db.write() as conn:
+        the_site, sys_ = repo.get_system(site_code, tag, conn=conn)
+        for draft in prepared:
+            try:
+                event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm)
+            except LedgerError as exc:
+                exc.visit_part = draft.kind  # type: ignore[attr-defined]  # which part, for the form
+                raise
+            logged.append(Logged(event_id, head, _warnings(findings), site_code, tag))
+    return tuple(logged)
 
 
 def servicing_warnings(reference: Any, site: Site, system: System, state: SystemState, kind: EventKind,

@@ -61,6 +61,22 @@ class Location:
         return default_path().parent / "readings"
 
 
+ATTACHMENTS_ENV_VAR = "REFLEDGER_ATTACHMENTS"
+
+
+def attachments_root(location: Location) -> Path:
+    """Where attached files (photos, service reports) are kept, each named by its SHA-256:
+    $REFLEDGER_ATTACHMENTS, else beside an SQLite file (``<name>-attachments/``), else in the
+    per-user data folder."""
+    env = os.environ.get(ATTACHMENTS_ENV_VAR)
+    if env:
+        return Path(env).expanduser()
+    path = location.sqlite_path
+    if path is not None:
+        return path.with_name(path.stem + "-attachments")
+    return default_path().parent / "attachments"
+
+
 def default_path() -> Path:
     """The per-user data file used when no database is named."""
     base = os.environ.get("XDG_DATA_HOME") or str(Path.home() / ".local" / "share")

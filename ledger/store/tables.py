@@ -337,3 +337,41 @@ checkpoint = Table(
     Column("key_id", String(16), nullable=False),
     Column("public_key", String(64), nullable=False),  # raw Ed25519 public key, hex
 )
+
+# --- web accounts (migration 0005) -------------------------------------------------------------
+# Who may use the web app (`refledger serve`) and in which role. Not records of the ledger:
+# neither exported nor restored (see services/backup.py), so password hashes never leave the
+# database they were made in.
+app_user = Table(
+    "app_user",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("name", String(100), nullable=False, unique=True),
+    Column("role", String(20), nullable=False),  # technician, officer, auditor, admin
+    Column("password_hash", Text, nullable=False),  # argon2id, PHC string
+    Column("technician_id", Integer, ForeignKey("technician.id")),  # the technician record they are
+    Column("sites", String(400), nullable=False, server_default=""),  # comma-separated; empty: every site
+    Column("disabled", Boolean, nullable=False, server_default="0"),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+)
+
+# A logged-in browser: only the SHA-256 of the cookie's token is stored.
+web_session = Table(
+    "web_session",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("token_hash", String(64), nullable=False, unique=True),
+    Column("user_id", Integer, ForeignKey("app_user.id"), nullable=False, index=True),
+    Column("csrf", String(64), nullable=False),
+    Column("created_at", DateTime(timezone=True), nullable=False),
+    Column("last_seen_at", DateTime(timezone=True), nullable=False),
+)
+
+# Failed logins, counted per name over a window to limit guessing.
+login_failure = Table(
+    "login_failure",
+    metadata,
+    Column("id", Integer, primary_key=True),
+    Column("name", String(100), nullable=False, index=True),
+    Column("at", DateTime(timezone=True), nullable=False),
+)

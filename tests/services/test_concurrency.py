@@ -28,6 +28,7 @@ def _writer(url: str, worker: int) -> int:
             draft=EventDraft(
                 kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_mg=1000 + i, note=f"w{worker}-{i}"
             ),
+            confirm=True,  # workers write the same entries on the shared system on purpose
         )
     db.close()
     return EVENTS_EACH
