@@ -20,27 +20,27 @@ from typing import Any
 
 from ledger.errors import UnitError
 
-MG_PER_LB = Decimal("453592.37")  # exact by the 1959 definition of the international pound
-MG_PER_OZ = MG_PER_LB / 16  # avoirdupois ounce = 1/16 lb = 28 349.523125 mg, exact
-MG_PER_KG = Decimal(1_000_000)
+NG_PER_LB = Decimal("453592.37")  # exact by the 1959 definition of the international pound
+NG_PER_OZ = NG_PER_LB / 16  # avoirdupois ounce = 1/16 lb = 28 349.523125 mg, exact
+NG_PER_KG = Decimal(1_000_000)
 
 # Exact factors for the units technicians type; keys are lower-case.
 _FAST_UNITS: dict[str, Decimal] = {
-    "kg": MG_PER_KG,
-    "kgs": MG_PER_KG,
-    "kilogram": MG_PER_KG,
-    "kilograms": MG_PER_KG,
+    "kg": NG_PER_KG,
+    "kgs": NG_PER_KG,
+    "kilogram": NG_PER_KG,
+    "kilograms": NG_PER_KG,
     "g": Decimal(1000),
     "gram": Decimal(1000),
     "grams": Decimal(1000),
     "mg": Decimal(1),
-    "lb": MG_PER_LB,
-    "lbs": MG_PER_LB,
-    "pound": MG_PER_LB,
-    "pounds": MG_PER_LB,
-    "oz": MG_PER_OZ,
-    "ounce": MG_PER_OZ,
-    "ounces": MG_PER_OZ,
+    "lb": NG_PER_LB,
+    "lbs": NG_PER_LB,
+    "pound": NG_PER_LB,
+    "pounds": NG_PER_LB,
+    "oz": NG_PER_OZ,
+    "ounce": NG_PER_OZ,
+    "ounces": NG_PER_OZ,
     "t": Decimal(1_000_000_000),
     "tonne": Decimal(1_000_000_000),
     "tonnes": Decimal(1_000_000_000),
@@ -49,7 +49,7 @@ _FAST_UNITS: dict[str, Decimal] = {
 _PAIR = re.compile(r"\s*([+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)\s*([^\d\s.,+-][^\d\s]*)?")
 
 DISPLAY_UNITS = ("kg", "lb")
-MAX_MG = Decimal(10) ** 15  # a million tonnes: certainly a typing error
+MAX_NG = Decimal(10) ** 15  # a million tonnes: certainly a typing error
 
 
 @cache
@@ -60,7 +60,7 @@ def registry() -> Any:
     return pint.UnitRegistry(non_int_type=Decimal)
 
 
-def _factor_mg(unit: str, text: str, field: str) -> Decimal:
+def _factor_ng(unit: str, text: str, field: str) -> Decimal:
     key = unit.lower()
     if key in _FAST_UNITS:
         return _FAST_UNITS[key]
@@ -102,7 +102,7 @@ def parse_mass_exact(text: str, *, field: str = "mass") -> Decimal:
             value = Decimal(number.replace(",", "."))
         except InvalidOperation as exc:
             raise UnitError(field, text, "is not a number") from exc
-        total += value * _factor_mg(unit, text, field)
+        total += value * _factor_ng(unit, text, field)
         pairs += 1
         pos = match.end()
     if not total.is_finite():
@@ -110,7 +110,7 @@ def parse_mass_exact(text: str, *, field: str = "mass") -> Decimal:
     return total
 
 
-def parse_mass_mg(text: str, *, field: str = "mass", allow_zero: bool = False) -> int:
+def parse_mass_ng(text: str, *, field: str = "mass", allow_zero: bool = False) -> int:
     """Parse a typed mass into integer milligrams, rounded half-up.
 
     Args:
@@ -125,24 +125,24 @@ def parse_mass_mg(text: str, *, field: str = "mass", allow_zero: bool = False) -
     exact = parse_mass_exact(text, field=field)
     if exact < 0 or (exact == 0 and not allow_zero):
         raise UnitError(field, text, "must be greater than zero")
-    if exact > MAX_MG:
+    if exact > MAX_NG:
         raise UnitError(field, text, "is implausibly large")
     return int(exact.quantize(Decimal(1), rounding=ROUND_HALF_UP))
 
 
-def mg_to_kg(mg: int) -> Decimal:
+def ng_to_kg(mg: int) -> Decimal:
     """Exact kilograms from milligrams."""
-    return Decimal(mg) / MG_PER_KG
+    return Decimal(mg) / NG_PER_KG
 
 
-def mg_to_lb(mg: int) -> Decimal:
+def ng_to_lb(mg: int) -> Decimal:
     """Pounds from milligrams (exact to Decimal's 28 digits)."""
-    return Decimal(mg) / MG_PER_LB
+    return Decimal(mg) / NG_PER_LB
 
 
-def lb_to_mg(lb: Decimal | int | str) -> Decimal:
+def lb_to_ng(lb: Decimal | int | str) -> Decimal:
     """Exact milligrams of a pound figure (thresholds in the US rules)."""
-    return Decimal(lb) * MG_PER_LB
+    return Decimal(lb) * NG_PER_LB
 
 
 def format_mass(mg: int | None, unit: str = "kg", places: int = 2) -> str:
@@ -155,6 +155,6 @@ def format_mass(mg: int | None, unit: str = "kg", places: int = 2) -> str:
     """
     if mg is None:
         return ""
-    value = mg_to_lb(mg) if unit == "lb" else mg_to_kg(mg)
+    value = ng_to_lb(mg) if unit == "lb" else ng_to_kg(mg)
     q = Decimal(1).scaleb(-places)
     return f"{value.quantize(q, rounding=ROUND_HALF_UP)} {unit}"

@@ -15,11 +15,11 @@ from hypothesis import strategies as st
 from ledger.errors import UnitError
 from ledger.units import (
     _FAST_UNITS,
-    MG_PER_LB,
+    NG_PER_LB,
     format_mass,
-    mg_to_lb,
+    ng_to_lb,
     parse_mass_exact,
-    parse_mass_mg,
+    parse_mass_ng,
     registry,
 )
 
@@ -27,7 +27,7 @@ POUND_KG = Decimal("0.45359237")  # 1959 definition
 
 
 @pytest.mark.parametrize(
-    ("text", "exact_mg"),
+    ("text", "exact_ng"),
     [
         ("1 lb", POUND_KG * 1_000_000),
         ("100 lb", POUND_KG * 100 * 1_000_000),  # 45.359237 kg, exact in mg
@@ -40,16 +40,16 @@ POUND_KG = Decimal("0.45359237")  # 1959 definition
         ("12kg", Decimal(12_000_000)),
     ],
 )
-def test_parse_exact_against_the_international_pound(text: str, exact_mg: Decimal) -> None:
-    assert parse_mass_exact(text) == exact_mg
+def test_parse_exact_against_the_international_pound(text: str, exact_ng: Decimal) -> None:
+    assert parse_mass_exact(text) == exact_ng
 
 
 def test_stored_milligrams_round_half_up() -> None:
     # 1 lb = 453 592.37 mg (1959 definition) -> 453 592 mg stored
-    assert parse_mass_mg("1 lb") == 453_592
+    assert parse_mass_ng("1 lb") == 453_592
     # 1 oz = 28 349.523125 mg -> 28 350 mg
-    assert parse_mass_mg("1 oz") == 28_350
-    assert parse_mass_mg("100 lb") == 45_359_237
+    assert parse_mass_ng("1 oz") == 28_350
+    assert parse_mass_ng("100 lb") == 45_359_237
 
 
 def test_fast_units_agree_with_pint() -> None:
@@ -57,8 +57,8 @@ def test_fast_units_agree_with_pint() -> None:
     # pint knows no plural "kgs"/"lbs" abbreviations; compare them under their singular.
     for unit, factor in _FAST_UNITS.items():
         name = {"kgs": "kg", "lbs": "lb"}.get(unit, unit)
-        pint_mg = ureg.Quantity(Decimal(1), name).to("milligram").magnitude
-        assert Decimal(pint_mg) == factor, unit
+        pint_ng = ureg.Quantity(Decimal(1), name).to("milligram").magnitude
+        assert Decimal(pint_ng) == factor, unit
 
 
 @pytest.mark.parametrize(
@@ -78,7 +78,7 @@ def test_fast_units_agree_with_pint() -> None:
 )
 def test_bad_masses_name_the_field_and_value(text: str, fragment: str) -> None:
     with pytest.raises(UnitError) as info:
-        parse_mass_mg(text, field="--mass")
+        parse_mass_ng(text, field="--mass")
     message = str(info.value)
     assert message.startswith("--mass: ")
     assert repr(text) in message
@@ -86,19 +86,19 @@ def test_bad_masses_name_the_field_and_value(text: str, fragment: str) -> None:
 
 
 def test_zero_allowed_where_asked() -> None:
-    assert parse_mass_mg("0 kg", allow_zero=True) == 0
+    assert parse_mass_ng("0 kg", allow_zero=True) == 0
 
 
 def test_format_mass_kg_and_lb() -> None:
     assert format_mass(45_359_237, "lb") == "100.00 lb"
     assert format_mass(2_500_000, "kg") == "2.50 kg"
     assert format_mass(None) == ""
-    assert mg_to_lb(int(MG_PER_LB * 50)) == Decimal(int(MG_PER_LB * 50)) / MG_PER_LB
+    assert ng_to_lb(int(NG_PER_LB * 50)) == Decimal(int(NG_PER_LB * 50)) / NG_PER_LB
 
 
 @given(st.integers(min_value=1, max_value=10**12))
 def test_kg_text_round_trips_exactly(mg: int) -> None:
-    assert parse_mass_mg(format_mass(mg, "kg", places=6)) == mg
+    assert parse_mass_ng(format_mass(mg, "kg", places=6)) == mg
 
 
 @given(st.integers(min_value=0, max_value=2000), st.integers(min_value=0, max_value=15))

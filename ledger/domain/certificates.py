@@ -32,7 +32,7 @@ from dataclasses import dataclass
 from datetime import date
 
 from ledger.domain.records import Certificate, Event, EventKind, Finding, Severity, Technician
-from ledger.units import MG_PER_KG, MG_PER_LB
+from ledger.units import NG_PER_KG, NG_PER_LB
 
 
 class Scope(enum.StrEnum):
@@ -97,7 +97,7 @@ class WorkFacts:
     kind: EventKind
     on: date
     site_regimes: tuple[str, ...]
-    charge_mg: int
+    charge_ng: int
     hermetic: bool
     refrigerant: str | None
 
@@ -113,7 +113,7 @@ def normal_category(scope: str, category: str) -> str | None:
 
 def _small(facts: WorkFacts) -> bool:
     limit = SMALL_HERMETIC_KG if facts.hermetic else SMALL_KG
-    return facts.charge_mg < limit * MG_PER_KG
+    return facts.charge_ng < limit * NG_PER_KG
 
 
 def why_not(cert: Certificate, facts: WorkFacts) -> str | None:
@@ -132,7 +132,7 @@ def why_not(cert: Certificate, facts: WorkFacts) -> str | None:
     cat = cert.category
     if scope is Scope.US_608:
         # whole units, as a typed "5 lb" is stored (exact once masses are exact in every unit)
-        small = facts.hermetic and facts.charge_mg <= round(SMALL_APPLIANCE_LB * MG_PER_LB)
+        small = facts.hermetic and facts.charge_ng <= round(SMALL_APPLIANCE_LB * NG_PER_LB)
         low = facts.refrigerant in LOW_PRESSURE
         if cat == "Universal" or (cat == "Type I" and small) or (cat == "Type II" and not small and not low) or (
             cat == "Type III" and not small and low

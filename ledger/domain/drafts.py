@@ -37,16 +37,16 @@ class EventDraft:
 
     kind: EventKind
     performed_on: date
-    mass_mg: int | None = None
+    mass_ng: int | None = None
     refrigerant: str | None = None  # in-service / retrofit; for add/recover an assertion
-    charge_mg: int | None = None
+    charge_ng: int | None = None
     result: str | None = None
     location: str | None = None
     method: str | None = None
     destination: str | None = None
     cylinder_code: str | None = None
-    cylinder_before_mg: int | None = None
-    cylinder_after_mg: int | None = None
+    cylinder_before_ng: int | None = None
+    cylinder_after_ng: int | None = None
     technician: str | None = None
     recorded_by: str | None = None
     note: str = ""
@@ -61,14 +61,14 @@ def error(field: str, message: str, source: str = "input") -> Finding:
     return Finding(source=source, message=f"{field}: {message}", severity=Severity.ERROR, field=field)
 
 
-def cylinder_mass_mg(draft: EventDraft) -> tuple[int | None, list[Finding]]:
+def cylinder_mass_ng(draft: EventDraft) -> tuple[int | None, list[Finding]]:
     """The mass moved, from ``--mass`` or from cylinder weights before/after.
 
     Charging empties the cylinder (before > after); recovering fills it (after > before).
     """
-    before, after = draft.cylinder_before_mg, draft.cylinder_after_mg
+    before, after = draft.cylinder_before_ng, draft.cylinder_after_ng
     if before is None and after is None:
-        return draft.mass_mg, []
+        return draft.mass_ng, []
     if before is None or after is None:
         return None, [error("--before/--after", "give both cylinder weights, or --mass")]
     moved = before - after if draft.kind is EventKind.ADD else after - before
@@ -76,7 +76,7 @@ def cylinder_mass_mg(draft: EventDraft) -> tuple[int | None, list[Finding]]:
         if draft.kind is EventKind.ADD:
             return None, [error("--before", f"{before} mg is not heavier than --after {after} mg")]
         return None, [error("--after", f"{after} mg is not heavier than --before {before} mg")]
-    if draft.mass_mg is not None and draft.mass_mg != moved:
+    if draft.mass_ng is not None and draft.mass_ng != moved:
         return None, [error("--mass", "disagrees with the cylinder weights; give one or the other")]
     return moved, []
 
@@ -128,9 +128,9 @@ def validate_event(
                 )
             )
     kind = draft.kind
-    if kind in (EventKind.ADD, EventKind.RECOVER) and draft.mass_mg is None:
+    if kind in (EventKind.ADD, EventKind.RECOVER) and draft.mass_ng is None:
         found.append(error("--mass", "is required (or --cylinder with --before and --after)"))
-    if kind is EventKind.RETIRE and draft.mass_mg is None:
+    if kind is EventKind.RETIRE and draft.mass_ng is None:
         found.append(error("--recovered", "is required (0 kg if nothing could be recovered)"))
     if same_refrigerant is False:
         found.append(
@@ -202,7 +202,7 @@ def confirmation_reasons(draft: EventDraft, history: Sequence[Event], system: Sy
             and e.system_id == system.id
             and e.kind is draft.kind
             and e.performed_on == draft.performed_on
-            and e.mass_mg == draft.mass_mg
+            and e.mass_ng == draft.mass_ng
             and (e.technician or None) == (draft.technician or None)
         ):
             return (

@@ -103,9 +103,9 @@ def in_unit(kg: Any, unit: str) -> Decimal | None:
     """A mass given in kg, in a site's display unit (kg or lb; exact Decimal, None stays None)."""
     if kg is None:
         return None
-    from ledger.units import MG_PER_KG, MG_PER_LB
+    from ledger.units import NG_PER_KG, NG_PER_LB
 
-    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+    return Decimal(kg) * NG_PER_KG / NG_PER_LB if unit == "lb" else Decimal(kg)
 
 
 def fmt(value: Any, kind: str, places: int | None = None) -> str:

@@ -83,13 +83,13 @@ def _applies_to(ban: ServicingBan, application: str) -> bool:
 
 
 def covers(ban: ServicingBan, reference: ReferenceLike, designation: str, application: str,
-           charge_mg: int) -> tuple[Decimal, Decimal] | None:
+           charge_ng: int) -> tuple[Decimal, Decimal] | None:
     """(GWP, t CO2e) of the charge when ``ban`` covers this refrigerant and equipment, else None."""
     if not _applies_to(ban, application):
         return None
     basis = BASIS_OF.get(ban.regime, "ar4")
     gwp = Decimal(reference.gwp(designation, basis).value)
-    tonnes = kg_of(charge_mg) * gwp / 1000
+    tonnes = kg_of(charge_ng) * gwp / 1000
     is_ods = bool(reference.chem_classes(designation) & ODS_CLASSES)
     if ban.ods != is_ods:
         return None
@@ -144,16 +144,16 @@ def exposure(histories: Iterable[SystemHistory], reference: ReferenceLike,
             for ban in bans:
                 if ban.regime != regime:
                     continue
-                hit = covers(ban, reference, designation, application, state.full_charge_mg)
+                hit = covers(ban, reference, designation, application, state.full_charge_ng)
                 if hit is None:
                     continue
                 gwp, tonnes = hit
                 basis = BASIS_OF.get(regime, "ar4")
                 retro = _retrofit(targets, reference, designation, application, gwp, basis)
-                saved = None if retro is None else kg_of(state.full_charge_mg) * (gwp - retro[1]) / 1000
+                saved = None if retro is None else kg_of(state.full_charge_ng) * (gwp - retro[1]) / 1000
                 found.append(Exposure(h.site.code, h.system.tag, h.system.id, regime, ban,
                                       ban.from_on <= as_of, designation, gwp,
-                                      kg_of(state.full_charge_mg), tonnes,
+                                      kg_of(state.full_charge_ng), tonnes,
                                       None if retro is None else retro[0],
                                       None if retro is None else retro[1], saved))
             out.extend(_strictest(found))
@@ -203,7 +203,7 @@ def top_up_findings(system: System, regimes: Sequence[str], state: SystemState, 
         if ban.refrigerant_use in ("virgin", "reclaimed only") and event.reclaimed:
             continue
         if covers(ban, reference, designation, system.application.value,
-                  state.full_charge_mg) is None:
+                  state.full_charge_ng) is None:
             continue
         gas = "recycled or reclaimed" if event.reclaimed else "virgin (not marked reclaimed)"
         out.append(Finding(source, f"servicing prohibited: {gas} {designation} added on "

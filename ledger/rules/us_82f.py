@@ -130,7 +130,7 @@ def covers(reference: ReferenceLike, state: SystemState) -> bool:
     """True when an in-service state is an ODS appliance of 50 lb or more."""
     designation = resolve(reference, state.refrigerant)
     return (designation is not None and is_ods(reference, designation)
-            and at_least_lb(state.full_charge_mg, FULL_CHARGE_LB))
+            and at_least_lb(state.full_charge_ng, FULL_CHARGE_LB))
 
 
 def rule(reference: ReferenceLike) -> LeakRateRule:
@@ -174,8 +174,8 @@ def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Ti
     if not is_ods(reference, designation):
         return Tier(REGIME, OUT_OF_SCOPE, None, B_APPLIES,
                     f"{designation} is not ozone-depleting: out of scope of Subpart F")
-    charge = fmt_lb(state.full_charge_mg)
-    if not at_least_lb(state.full_charge_mg, FULL_CHARGE_LB):
+    charge = fmt_lb(state.full_charge_ng)
+    if not at_least_lb(state.full_charge_ng, FULL_CHARGE_LB):
         return Tier(REGIME, BELOW_THRESHOLD, None, B_APPLIES,
                     f"{designation}, {charge} full charge: under 50 lb")
     threshold = THRESHOLD_PERCENT[history.system.application]

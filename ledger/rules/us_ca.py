@@ -38,8 +38,8 @@ from ledger.domain.records import (
 from ledger.domain.state import state_of
 from ledger.rules.common import (
     BELOW_THRESHOLD,
-    MG_PER_LB,
     MONTH,
+    NG_PER_LB,
     OUT_OF_SCOPE,
     QUARTER,
     UNKNOWN_REFRIGERANT,
@@ -131,8 +131,8 @@ CONSTANTS: tuple[Constant, ...] = (
 )
 
 
-def _over_lb(mass_mg: int, pounds: Decimal) -> bool:
-    return Decimal(mass_mg) > pounds * MG_PER_LB
+def _over_lb(mass_ng: int, pounds: Decimal) -> bool:
+    return Decimal(mass_ng) > pounds * NG_PER_LB
 
 
 def _excluded(reference: ReferenceLike, state: SystemState) -> tuple[str, str] | None:
@@ -146,16 +146,16 @@ def _excluded(reference: ReferenceLike, state: SystemState) -> tuple[str, str] |
         unlisted = getattr(figure, "unlisted", ())
         note = f" ({', '.join(unlisted)} not listed in AR4, counted as 0)" if unlisted else ""
         return OUT_OF_SCOPE, f"{designation} has GWP {gwp.normalize():f}{note}, under 150"
-    if not _over_lb(state.full_charge_mg, SYSTEM_OVER_LB):
-        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_mg)}: not over 50 lb")
+    if not _over_lb(state.full_charge_ng, SYSTEM_OVER_LB):
+        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_ng)}: not over 50 lb")
     return None
 
 
-def size_of(full_charge_mg: int) -> str:
+def size_of(full_charge_ng: int) -> str:
     """Size class of a covered system (or of a facility, by its largest system)."""
-    if at_least_lb(full_charge_mg, LARGE_LB):
+    if at_least_lb(full_charge_ng, LARGE_LB):
         return "large"
-    if at_least_lb(full_charge_mg, MEDIUM_LB):
+    if at_least_lb(full_charge_ng, MEDIUM_LB):
         return "medium"
     return "small"
 
@@ -173,13 +173,13 @@ def cadence_of(reference: ReferenceLike, state: SystemState) -> Cadence | None:
     """
     if not covered(reference, state):
         return None
-    if at_least_lb(state.full_charge_mg, LARGE_LB):
+    if at_least_lb(state.full_charge_ng, LARGE_LB):
         if state.detection_system:
             return None
         return Cadence("monthly leak inspection (≥ 2 000 lb, no automatic leak detection; "
                        "applies to a circuit inside an enclosed building)", B_INSPECTION_LARGE,
                        period=MONTH)
-    if at_least_lb(state.full_charge_mg, MEDIUM_LB):
+    if at_least_lb(state.full_charge_ng, MEDIUM_LB):
         if state.detection_system:
             return None
         return Cadence("quarterly leak inspection (200 to < 2 000 lb, no automatic leak "
@@ -206,17 +206,17 @@ def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Ti
     if excluded is not None:
         return Tier(REGIME, excluded[0], None, B_SCOPE, excluded[1])
     cadence = cadence_of(reference, state)
-    size = size_of(state.full_charge_mg)
+    size = size_of(state.full_charge_ng)
     band = {"large": "≥ 2 000 lb", "medium": "200–2 000 lb", "small": "50–200 lb"}[size]
     designation = resolve(reference, state.refrigerant)
     if cadence is None:
         waiver = B_ALD_WAIVER_LARGE if size == "large" else B_ALD_WAIVER_MEDIUM
         return Tier(REGIME, band, None, waiver,
-                    f"{designation}, {fmt_lb(state.full_charge_mg)}: automatic leak detection "
+                    f"{designation}, {fmt_lb(state.full_charge_ng)}: automatic leak detection "
                     f"used, periodic inspections waived ({waiver.citation})")
     assert cadence.period is not None
     return Tier(REGIME, band, _MONTHS[cadence.period], cadence.basis,
-                f"{designation}, {fmt_lb(state.full_charge_mg)}: {cadence.label}")
+                f"{designation}, {fmt_lb(state.full_charge_ng)}: {cadence.label}")
 
 
 def _system_obligations(history: SystemHistory, reference: ReferenceLike,
@@ -280,8 +280,8 @@ def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLik
                 continue
         if _excluded(reference, st) is not None:
             continue
-        if best is None or st.full_charge_mg > best[0]:
-            best = (st.full_charge_mg, h.system.tag)
+        if best is None or st.full_charge_ng > best[0]:
+            best = (st.full_charge_ng, h.system.tag)
     return best
 
 

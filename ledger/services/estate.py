@@ -9,7 +9,7 @@ from ledger.reference import load_reference
 from ledger.services.recording import site_today
 from ledger.store import repository as repo
 from ledger.store.db import Database
-from ledger.units import format_mass, mg_to_kg
+from ledger.units import format_mass, ng_to_kg
 
 
 def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict[str, Any]]:
@@ -26,15 +26,15 @@ def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict
         basis = site_basis(h.site)
         co2e = None
         if state.refrigerant:
-            co2e = charge_co2e_t(state.full_charge_mg, reference.gwp(state.refrigerant, basis).value)
+            co2e = charge_co2e_t(state.full_charge_ng, reference.gwp(state.refrigerant, basis).value)
         rows.append(
             {
                 "site": h.site.code,
                 "tag": h.system.tag,
                 "application": h.system.application.value,
                 "refrigerant": state.refrigerant,
-                "full_charge_kg": mg_to_kg(state.full_charge_mg),
-                "charge": format_mass(state.full_charge_mg, h.site.mass_unit, 1),
+                "full_charge_kg": ng_to_kg(state.full_charge_ng),
+                "charge": format_mass(state.full_charge_ng, h.site.mass_unit, 1),
                 "gwp_basis": basis,
                 "co2e_t": co2e,
                 "co2e_t_display": fmt(co2e, TONNES),

@@ -15,7 +15,7 @@ from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from ledger.domain.certificates import WorkFacts
-from ledger.domain.drafts import EventDraft, confirmation_reasons, cylinder_mass_mg, validate_event
+from ledger.domain.drafts import EventDraft, confirmation_reasons, cylinder_mass_ng, validate_event
 from ledger.domain.records import (
     Application,
     Certificate,
@@ -142,7 +142,7 @@ def add_system(
     site_code: str,
     tag: str,
     refrigerant: str,
-    charge_mg: int,
+    charge_ng: int,
     application: str,
     in_service_on: date,
     hermetic: bool = False,
@@ -167,7 +167,7 @@ def add_system(
         today = site_today(the_site.timezone)
         if in_service_on > today:
             raise InputError("--in-service", in_service_on.isoformat(), f"is in the future (today is {today})")
-        facts = WorkFacts(EventKind.IN_SERVICE, in_service_on, the_site.regimes, charge_mg, hermetic, ref.designation)
+        facts = WorkFacts(EventKind.IN_SERVICE, in_service_on, the_site.regimes, charge_ng, hermetic, ref.designation)
         tech_id, cert_id, warnings = _technician_for(technician, facts, conn=conn)
         system_id = repo.insert_system(
             conn=conn,
@@ -198,7 +198,7 @@ def add_system(
                 **common,
                 "kind": EventKind.IN_SERVICE.value,
                 "refrigerant": ref.designation,
-                "charge_mg": charge_mg,
+                "charge_ng": charge_ng,
                 "note": note,
             },
         )
@@ -307,14 +307,14 @@ def add_company_certificate(
             company.strip(), scope, cert.number, issuer.strip(), cert.valid_from, cert.valid_to))
 
 
-def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_mg: int | None) -> None:
+def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_ng: int | None) -> None:
     """Add a refrigerant cylinder."""
     ref = load_reference().lookup(refrigerant)
     the_kind = _enum(CylinderKind, kind, "--kind")
     with db.write() as conn:
         repo.insert_cylinder(
             conn=conn,
-            values={"code": code, "refrigerant": ref.designation, "kind": the_kind.value, "tare_mg": tare_mg},
+            values={"code": code, "refrigerant": ref.designation, "kind": the_kind.value, "tare_ng": tare_ng},
         )
 
 
@@ -342,9 +342,9 @@ def _technician_for(name: str | None, facts: WorkFacts, *, conn) -> tuple[int | 
 
 def _prepared(draft: EventDraft, reference: Any) -> EventDraft:
     """The draft with its mass worked out (``--mass`` or cylinder weights) and its gas named."""
-    mass_mg, weight_findings = cylinder_mass_mg(draft)
+    mass_ng, weight_findings = cylinder_mass_ng(draft)
     _raise_first_error(weight_findings)
-    draft = replace(draft, mass_mg=mass_mg)
+    draft = replace(draft, mass_ng=mass_ng)
     if draft.kind in (EventKind.RETROFIT,) and draft.refrigerant:
         draft = replace(draft, refrigerant=reference.lookup(draft.refrigerant).designation)
     return draft
@@ -394,16 +394,16 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
         "system_id": sys_.id,
         "kind": draft.kind.value,
         "performed_on": draft.performed_on,
-        "mass_mg": draft.mass_mg,
+        "mass_ng": draft.mass_ng,
         "refrigerant": draft.refrigerant if draft.kind is EventKind.RETROFIT else None,
-        "charge_mg": draft.charge_mg,
+        "charge_ng": draft.charge_ng,
         "result": draft.result,
         "location": draft.location,
         "method": draft.method,
         "destination": draft.destination,
         "cylinder_id": cyl_id,
-        "cylinder_before_mg": draft.cylinder_before_mg,
-        "cylinder_after_mg": draft.cylinder_after_mg,
+        "cylinder_before_ng": draft.cylinder_before_ng,
+        "cylinder_after_ng": draft.cylinder_after_ng,
         "technician_id": tech_id,
         "certificate_id": cert_id,
         "recorded_by": draft.recorded_by,
@@ -493,7 +493,7 @@ def servicing_warnings(reference: Any, site: Site, system: System, state: System
 
 def work_facts(draft: EventDraft, state: SystemState, site: Site, system: System) -> WorkFacts:
     """What a certificate is judged against for this draft on this system (see domain.certificates)."""
-    charge = draft.charge_mg if draft.kind is EventKind.IN_SERVICE and draft.charge_mg else state.full_charge_mg
+    charge = draft.charge_ng if draft.kind is EventKind.IN_SERVICE and draft.charge_ng else state.full_charge_ng
     return WorkFacts(draft.kind, draft.performed_on, site.regimes, charge or 0, system.hermetic, state.refrigerant)
 
 

@@ -29,16 +29,16 @@ CANONICAL_FIELDS: tuple[str, ...] = (
     "kind",
     "performed_on",
     "recorded_at",
-    "mass_mg",
+    "mass_ng",
     "refrigerant",
-    "charge_mg",
+    "charge_ng",
     "result",
     "location",
     "method",
     "destination",
     "cylinder",  # cylinder id as marked on it
-    "cylinder_before_mg",
-    "cylinder_after_mg",
+    "cylinder_before_ng",
+    "cylinder_after_ng",
     "technician",  # name
     "certificate",  # "scheme|number" of the certificate valid on the day
     "recorded_by",

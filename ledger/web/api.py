@@ -120,19 +120,19 @@ class Visit(BaseModel):
 
 
 def _part_draft(part: VisitPart, *, on: Any, tech: str | None, by: str, note: str) -> EventDraft:
-    from ledger.units import parse_mass_mg
+    from ledger.units import parse_mass_ng
 
     if part.kind not in VISIT_KINDS:
         raise InputError("kind", part.kind, f"is not one of {', '.join(VISIT_KINDS)}")
 
     def mass(text: str | None, field: str) -> int | None:
-        return parse_mass_mg(text, field=field) if text else None
+        return parse_mass_ng(text, field=field) if text else None
 
     return EventDraft(
         kind=EventKind(part.kind), performed_on=on, technician=tech, recorded_by=by, note=note,
-        result=part.result, location=part.where, method=part.method, mass_mg=mass(part.mass, "--mass"),
-        cylinder_code=part.cylinder, cylinder_before_mg=mass(part.before, "--before"),
-        cylinder_after_mg=mass(part.after, "--after"),
+        result=part.result, location=part.where, method=part.method, mass_ng=mass(part.mass, "--mass"),
+        cylinder_code=part.cylinder, cylinder_before_ng=mass(part.before, "--before"),
+        cylinder_after_ng=mass(part.after, "--after"),
     )
 
 

@@ -17,7 +17,7 @@ from ledger.domain.drafts import EventDraft
 from ledger.domain.records import EventKind
 from ledger.errors import InputError, LedgerError
 from ledger.inputs import parse_day
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 BARE_NUMBER = re.compile(r"^\s*\d+(?:[.,]\d*)?\s*$")
 # The CLI's option names, per part of the visit, to the form field beside which an error shows.
@@ -55,7 +55,7 @@ def _mass(form: VisitForm, name: str, unit: str, label: str) -> int | None:
     if BARE_NUMBER.match(text):
         text = f"{text.replace(',', '.')} {unit}"
     try:
-        return parse_mass_mg(text, field=label)
+        return parse_mass_ng(text, field=label)
     except InputError as exc:
         form.errors[name] = str(exc)
         return None
@@ -87,7 +87,7 @@ def drafts_from(form: VisitForm, *, unit: str, technician: str | None, recorded_
         parts.append((EventKind.REPAIR, {"location": _text(form, "repair_where")}))
     mode = form.get("topup")
     if mode == "mass":
-        parts.append((EventKind.ADD, {"mass_mg": _mass(form, "topup_mass", unit, "--mass")}))
+        parts.append((EventKind.ADD, {"mass_ng": _mass(form, "topup_mass", unit, "--mass")}))
         if not form.get("topup_mass").strip() and "topup_mass" not in form.errors:
             form.errors["topup_mass"] = "--mass: give the mass added"
     elif mode == "cylinder":
@@ -96,7 +96,7 @@ def drafts_from(form: VisitForm, *, unit: str, technician: str | None, recorded_
         if not form.get("cylinder"):
             form.errors["cylinder"] = "--cylinder: choose the cylinder the gas came from"
         parts.append((EventKind.ADD, {"cylinder_code": form.get("cylinder") or None,
-                                      "cylinder_before_mg": before, "cylinder_after_mg": after}))
+                                      "cylinder_before_ng": before, "cylinder_after_ng": after}))
     elif mode:
         form.errors["topup"] = f"top-up: {mode!r} is not one of mass, cylinder"
     if form.get("followup_result"):

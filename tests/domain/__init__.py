@@ -25,7 +25,7 @@ from ledger.domain.records import (
 )
 
 D = date
-MG_PER_LB = Decimal("453592.37")  # exact: the international avoirdupois pound (1959)
+NG_PER_LB = Decimal("453592.37")  # exact: the international avoirdupois pound (1959)
 
 
 def kg(value: str | int) -> int:
@@ -37,7 +37,7 @@ def kg(value: str | int) -> int:
 
 def lb(value: str | int) -> int:
     """Milligrams of a pound figure, rounded up to the next whole mg (so it is >= value lb)."""
-    mg = Decimal(str(value)) * MG_PER_LB
+    mg = Decimal(str(value)) * NG_PER_LB
     return int(mg.to_integral_value(rounding="ROUND_CEILING"))
 
 
@@ -71,8 +71,8 @@ class Log:
         self.events.append(event)
         return event
 
-    def in_service(self, on: date, refrigerant: str, charge_mg: int) -> Event:
-        return self.add(EventKind.IN_SERVICE, on, refrigerant=refrigerant, charge_mg=charge_mg)
+    def in_service(self, on: date, refrigerant: str, charge_ng: int) -> Event:
+        return self.add(EventKind.IN_SERVICE, on, refrigerant=refrigerant, charge_ng=charge_ng)
 
     def check(self, on: date, leak: bool = False, location: str | None = None) -> Event:
         result = CheckResult.LEAK_FOUND if leak else CheckResult.NO_LEAK
@@ -85,8 +85,8 @@ class Log:
         result = FollowUpResult.PASS if passed else FollowUpResult.FAIL
         return self.add(EventKind.FOLLOW_UP, on, result=result.value)
 
-    def top_up(self, on: date, mass_mg: int) -> Event:
-        return self.add(EventKind.ADD, on, mass_mg=mass_mg)
+    def top_up(self, on: date, mass_ng: int) -> Event:
+        return self.add(EventKind.ADD, on, mass_ng=mass_ng)
 
     def detection_on(self, on: date) -> Event:
         return self.add(EventKind.DETECTION_ON, on)
@@ -97,11 +97,11 @@ class Log:
     def detection_check(self, on: date) -> Event:
         return self.add(EventKind.DETECTION_CHECK, on)
 
-    def revise(self, on: date, charge_mg: int) -> Event:
-        return self.add(EventKind.CHARGE_REVISED, on, charge_mg=charge_mg)
+    def revise(self, on: date, charge_ng: int) -> Event:
+        return self.add(EventKind.CHARGE_REVISED, on, charge_ng=charge_ng)
 
-    def retrofit(self, on: date, refrigerant: str, charge_mg: int) -> Event:
-        return self.add(EventKind.RETROFIT, on, refrigerant=refrigerant, charge_mg=charge_mg)
+    def retrofit(self, on: date, refrigerant: str, charge_ng: int) -> Event:
+        return self.add(EventKind.RETROFIT, on, refrigerant=refrigerant, charge_ng=charge_ng)
 
     def retire(self, on: date) -> Event:
         return self.add(EventKind.RETIRE, on)

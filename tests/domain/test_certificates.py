@@ -24,7 +24,7 @@ from ledger.domain.certificates import (
     why_not,
 )
 from ledger.domain.records import Certificate, Event, EventKind, Technician
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 ON = date(2026, 3, 2)
 EU_SITE = ("eu",)
@@ -33,7 +33,7 @@ US_SITE = ("us-82f", "us-84c")
 
 def facts(kind: EventKind, charge: str, regimes: tuple[str, ...] = EU_SITE, *, hermetic: bool = False,
           refrigerant: str = "R-404A") -> WorkFacts:
-    return WorkFacts(kind, ON, regimes, parse_mass_mg(charge), hermetic, refrigerant)
+    return WorkFacts(kind, ON, regimes, parse_mass_ng(charge), hermetic, refrigerant)
 
 
 def cert(scope: str, category: str, **kw) -> Certificate:  # type: ignore[no-untyped-def]

@@ -23,10 +23,10 @@ OPEN, MET, OVERDUE = ObligationStatus.OPEN, ObligationStatus.MET, ObligationStat
 EU_SITE = site("DE1", "DE", ("eu",))
 
 
-def _tier(refrigerant, charge_mg, *, on=D(2025, 6, 1), hermetic=False, residential=False,
+def _tier(refrigerant, charge_ng, *, on=D(2025, 6, 1), hermetic=False, residential=False,
           detection=False):
     log = Log()
-    log.in_service(D(2025, 1, 10), refrigerant, charge_mg)
+    log.in_service(D(2025, 1, 10), refrigerant, charge_ng)
     if detection:
         log.detection_on(D(2025, 1, 10))
     return eu.tier_of(log.history(EU_SITE, system(1, "DE1", hermetic=hermetic,

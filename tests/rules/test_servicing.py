@@ -19,7 +19,7 @@ from ledger.domain.state import state_of
 from ledger.reference import load_reference
 from ledger.reference.servicing import load_retrofits, load_servicing
 from ledger.rules import servicing
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 from tests.domain import D, Log, site, system
 
 REF = load_reference()
@@ -29,7 +29,7 @@ TARGETS = load_retrofits()
 
 def _history(regimes, country, refrigerant, charge, application=Application.COMMERCIAL_REFRIGERATION):
     log = Log()
-    log.in_service(D(2015, 1, 1), refrigerant, parse_mass_mg(charge))
+    log.in_service(D(2015, 1, 1), refrigerant, parse_mass_ng(charge))
     return log, log.history(site("S1", country, regimes), system(1, "S1", application=application))
 
 
@@ -75,18 +75,18 @@ def test_2026_12_virgin_hcfc_top_up_in_gb_is_recorded_with_a_warning():
     # no HCFC for servicing after 2014. The event is recorded; the finding says so.
     log, h = _history(("gb",), "GB", "R-22", "5.6 kg")
     add = Event(id=99, system_id=1, kind=EventKind.ADD, performed_on=D(2026, 2, 11),
-                mass_mg=parse_mass_mg("1.2 kg"))
+                mass_ng=parse_mass_ng("1.2 kg"))
     state = state_of(h.events, D(2026, 2, 11))
     found = servicing.top_up_findings(h.system, ("gb",), state, add, REF, BANS, "S1/SYS1")
     assert len(found) == 1 and "servicing prohibited" in found[0].message
     assert "recorded as done" in found[0].message
     before = Event(id=98, system_id=1, kind=EventKind.ADD, performed_on=D(2014, 6, 1),
-                   mass_mg=parse_mass_mg("1 kg"))
+                   mass_ng=parse_mass_ng("1 kg"))
     assert servicing.top_up_findings(h.system, ("gb",), state_of(h.events, D(2014, 6, 1)), before,
                                      REF, BANS, "S1/SYS1") == []
     # reclaimed HFC of GWP >= 2 500 into big EU refrigeration is allowed until 2030
     _, big = _history(("eu",), "DE", "R-404A", "12 kg")
     reclaimed = Event(id=97, system_id=1, kind=EventKind.ADD, performed_on=D(2026, 3, 1),
-                      mass_mg=parse_mass_mg("1 kg"), reclaimed=True)
+                      mass_ng=parse_mass_ng("1 kg"), reclaimed=True)
     st = state_of(big.events, D(2026, 3, 1))
     assert servicing.top_up_findings(big.system, ("eu",), st, reclaimed, REF, BANS, "x") == []

@@ -29,9 +29,9 @@ def _run(log, as_of, **kw):
     return us_82f.compute_obligations([_history(log, **kw)], REF, as_of)
 
 
-def _tier(refrigerant, charge_mg):
+def _tier(refrigerant, charge_ng):
     log = Log()
-    log.in_service(D(2024, 1, 1), refrigerant, charge_mg)
+    log.in_service(D(2024, 1, 1), refrigerant, charge_ng)
     return us_82f.tier_of(_history(log), REF, D(2024, 6, 1))
 
 

@@ -27,9 +27,9 @@ def _run(log, as_of, **kw):
     return us_84c.compute_obligations([_history(log, **kw)], REF, as_of)
 
 
-def _tier(refrigerant, charge_mg, **kw):
+def _tier(refrigerant, charge_ng, **kw):
     log = Log()
-    log.in_service(D(2026, 1, 5), refrigerant, charge_mg)
+    log.in_service(D(2026, 1, 5), refrigerant, charge_ng)
     return us_84c.tier_of(_history(log, **kw), REF, D(2026, 6, 1))
 
 

@@ -29,9 +29,9 @@ def _run(logs, as_of):
     return us_ca.compute_obligations([_history(log, log.system_id) for log in logs], REF, as_of)
 
 
-def _tier(refrigerant, charge_mg, detection=False):
+def _tier(refrigerant, charge_ng, detection=False):
     log = Log()
-    log.in_service(D(2025, 1, 1), refrigerant, charge_mg)
+    log.in_service(D(2025, 1, 1), refrigerant, charge_ng)
     if detection:
         log.detection_on(D(2025, 1, 1))
     return us_ca.tier_of(_history(log), REF, D(2025, 6, 1))

@@ -101,10 +101,10 @@ def test_a_checkpoint_still_holds_after_a_move_to_another_database(db, tmp_path:
     from ledger.services.integrity import verify
     from ledger.services.recording import add_site, add_system
     from ledger.store.db import Database, locate
-    from ledger.units import parse_mass_mg
+    from ledger.units import parse_mass_ng
 
     add_site(db, code="S", name="S", country="DE")
-    add_system(db, site_code="S", tag="A", refrigerant="R-134a", charge_mg=parse_mass_mg("5 kg"),
+    add_system(db, site_code="S", tag="A", refrigerant="R-134a", charge_ng=parse_mass_ng("5 kg"),
                application="other", in_service_on=date(2024, 1, 1))
     key = cp.new_key(tmp_path / "k")
     cp.make_checkpoint(db, key_path=key.private_path, out=tmp_path / "cp.json")

@@ -113,7 +113,7 @@ def test_validate_event_reads_only_the_refrigerant_and_the_retirement() -> None:
                 for cyl in (None, cylinder):
                     reads = _Reads(state)
                     draft = EventDraft(
-                        kind=kind, performed_on=day, mass_mg=mass, refrigerant=refrigerant, result=result,
+                        kind=kind, performed_on=day, mass_ng=mass, refrigerant=refrigerant, result=result,
                         cylinder_code=cyl.id if cyl else None, technician="Ada", destination="bin", reason="r",
                     )
                     validate_event(
@@ -144,7 +144,7 @@ def histories(draw: st.DrawFn) -> list[Event]:
                 kind=kind,
                 performed_on=day,
                 refrigerant=draw(st.sampled_from(["R-404A", "R-448A", None])),
-                charge_mg=draw(st.sampled_from([None, 10**6])),
+                charge_ng=draw(st.sampled_from([None, 10**6])),
                 result=draw(st.sampled_from([None, "leak-found", "no-leak"])),
                 voids_id=voids,
             )
@@ -174,9 +174,9 @@ def test_rows_written_as_tuples_are_the_rows_insert_writes(db: Database, tmp_pat
         system_id = conn.execute(select(event.c.system_id)).scalar_one()
         values = {
             "system_id": system_id, "kind": "add", "performed_on": date(2024, 2, 29),
-            "recorded_at": datetime(2024, 3, 1, 8, 30, 1, 250, tzinfo=UTC), "mass_mg": 1_500_000,
-            "refrigerant": None, "charge_mg": None, "result": None, "location": "valve ü", "method": None,
-            "destination": None, "cylinder_id": None, "cylinder_before_mg": 14_000_000, "cylinder_after_mg": None,
+            "recorded_at": datetime(2024, 3, 1, 8, 30, 1, 250, tzinfo=UTC), "mass_ng": 1_500_000,
+            "refrigerant": None, "charge_ng": None, "result": None, "location": "valve ü", "method": None,
+            "destination": None, "cylinder_id": None, "cylinder_before_ng": 14_000_000, "cylinder_after_ng": None,
             "technician_id": None, "certificate_id": None, "recorded_by": "Office", "note": "a \"note\"",
             "attachments": "", "reclaimed": True, "content_key": "k" * 64, "voids_id": None, "reason": None,
             "prev_hash": chain.GENESIS, "chain_hash": "1" * 64,
@@ -270,7 +270,7 @@ def test_each_row_is_checked_against_the_state_the_rows_before_it_leave(db: Data
         ("void", "2024-07-01"), ("add", "2024-07-03"),
     ]
     added = events[2]
-    assert (added.mass_mg, added.cylinder_id, added.reclaimed, added.technician) == (10**6, "C-448", True, None)
+    assert (added.mass_ng, added.cylinder_id, added.reclaimed, added.technician) == (10**6, "C-448", True, None)
     assert events[1].refrigerant == "R-448A" and events[1].certificate == "EU 2015/2067 NL-1"
     assert events[4].recorded_at == datetime(2024, 5, 1, 16, 0, tzinfo=UTC)
     assert events[5].voids_id == events[4].id and events[8].voids_id == events[7].id

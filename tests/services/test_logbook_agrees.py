@@ -11,7 +11,7 @@ from ledger.domain.records import EventKind
 from ledger.services import reporting
 from ledger.services.recording import add_site, add_system, log_event
 from ledger.store.db import Database
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 # --- findings are narrowed by system name, not by string prefix -------------------------------
 
@@ -21,9 +21,9 @@ def test_a_tag_does_not_get_the_findings_of_a_longer_tag(db: Database) -> None:
     # R-404A is an Annex I F-gas (2024/573), so the eu regime covers LT; R-744 (CO2) is not an
     # F-gas, so LT-RACK gets the finding "no covered regime applies" (common practice: CO2 is
     # outside the F-gas leak-check duties).
-    add_system(db, site_code="DE-HAM", tag="LT", refrigerant="R-404A", charge_mg=parse_mass_mg("20 kg"),
+    add_system(db, site_code="DE-HAM", tag="LT", refrigerant="R-404A", charge_ng=parse_mass_ng("20 kg"),
                application="commercial-refrigeration", in_service_on=date(2024, 1, 10))
-    add_system(db, site_code="DE-HAM", tag="LT-RACK", refrigerant="R-744", charge_mg=parse_mass_mg("40 kg"),
+    add_system(db, site_code="DE-HAM", tag="LT-RACK", refrigerant="R-744", charge_ng=parse_mass_ng("40 kg"),
                application="commercial-refrigeration", in_service_on=date(2024, 1, 10))
     books = {b["system"]["tag"]: b for b in reporting.site_logbooks(db, site_code="DE-HAM", to_on=date(2024, 6, 30))}
     assert {f["source"] for f in books["LT-RACK"]["findings"]} == {"DE-HAM/LT-RACK"}
@@ -61,7 +61,7 @@ def test_a_site_without_a_regime_shows_one_co2e_everywhere(db: Database, capsys)
     # use the fallback basis "eu" (reporting.FALLBACK_BASIS). Swiss law (ChemRRV) was not read
     # for this test; local regulation governs.
     add_site(db, code="CH-ZH", name="Lager", country="CH")
-    add_system(db, site_code="CH-ZH", tag="CU-1", refrigerant="R-1234yf", charge_mg=parse_mass_mg("160 kg"),
+    add_system(db, site_code="CH-ZH", tag="CU-1", refrigerant="R-1234yf", charge_ng=parse_mass_ng("160 kg"),
                application="commercial-refrigeration", in_service_on=date(2024, 2, 1))
     # R-1234yf under the eu basis: 0.501, as Regulation (EU) 2024/573 Annex II prints it
     # ("HFC-1234yf 0,501", bfs-kaelte-klima.de extract of Annex II; reference notes "Checked in
@@ -90,7 +90,7 @@ def test_an_addition_after_a_failed_follow_up_is_for_the_leak(db: Database) -> N
 
     add_site(db, code="DE-1", name="Store", country="DE")
     # R-404A 20 kg = 78.4 t CO2e (EU 517/2014 Annex IV figure 3 922): in the eu leak-check scope
-    add_system(db, site_code="DE-1", tag="RACK", refrigerant="R-404A", charge_mg=parse_mass_mg("20 kg"),
+    add_system(db, site_code="DE-1", tag="RACK", refrigerant="R-404A", charge_ng=parse_mass_ng("20 kg"),
                application="commercial-refrigeration", in_service_on=date(2023, 5, 1))
 
     def log(**kw) -> int:  # type: ignore[no-untyped-def]
@@ -102,7 +102,7 @@ def test_an_addition_after_a_failed_follow_up_is_for_the_leak(db: Database) -> N
     # operation and within one month (Landesinnung quote, reference notes "Checked in December
     # 2026"); it failed: the repair did not hold.
     failed = log(kind=EventKind.FOLLOW_UP, performed_on=date(2024, 3, 20), result="fail")
-    added = log(kind=EventKind.ADD, performed_on=date(2024, 3, 25), mass_mg=parse_mass_mg("1.5 kg"))
+    added = log(kind=EventKind.ADD, performed_on=date(2024, 3, 25), mass_ng=parse_mass_ng("1.5 kg"))
     # the rules hold a repair of the leak the failed follow-up found open on the day of the addition
     view = system_view(db, site_code="DE-1", tag="RACK", as_of=date(2024, 3, 25))
     repair = [o for o in view["obligations"] if o["kind"] == "repair" and o["caused_by"] == failed]
@@ -116,7 +116,7 @@ def test_an_addition_after_a_failed_follow_up_is_for_the_leak(db: Database) -> N
     assert book["open_leaks"] == [failed]
     # once repaired again, a later addition is servicing again
     log(kind=EventKind.REPAIR, performed_on=date(2024, 3, 27), location="suction header")
-    later = log(kind=EventKind.ADD, performed_on=date(2024, 4, 10), mass_mg=parse_mass_mg("0.5 kg"))
+    later = log(kind=EventKind.ADD, performed_on=date(2024, 4, 10), mass_ng=parse_mass_ng("0.5 kg"))
     book = reporting.logbook(db, site_code="DE-1", tag="RACK", to_on=date(2024, 4, 10))
     labels = {r["id"]: r["added_for"] for r in book["events"] if r["kind"] == "add"}
     assert labels == {added: "leak", later: "servicing"}

@@ -13,15 +13,15 @@ from ledger.domain.records import EventKind
 from ledger.services.recording import add_site, add_system, log_event
 from ledger.services.reporting import annual_summary
 from ledger.store.db import Database
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 
 def test_2026_12_virgin_hcfc_top_up_in_gb_is_recorded_warned_and_counted(db: Database) -> None:
     add_site(db, code="GB-X", name="GB store", country="GB")
-    add_system(db, site_code="GB-X", tag="CU-22", refrigerant="R-22", charge_mg=parse_mass_mg("5.6 kg"),
+    add_system(db, site_code="GB-X", tag="CU-22", refrigerant="R-22", charge_ng=parse_mass_ng("5.6 kg"),
                application="commercial-refrigeration", in_service_on=date(2001, 6, 12))
     logged = log_event(db, site_code="GB-X", tag="CU-22", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2026, 2, 11), mass_mg=parse_mass_mg("1.2 kg"),
+        kind=EventKind.ADD, performed_on=date(2026, 2, 11), mass_ng=parse_mass_ng("1.2 kg"),
         recorded_by="test"))
     assert logged.event_id  # never refused
     # no technician named: the uncertified-work warning (issue 13) comes first, then the ban
@@ -39,9 +39,9 @@ def test_2026_12_virgin_hcfc_top_up_in_gb_is_recorded_warned_and_counted(db: Dat
 
 def test_hfc_top_up_in_gb_is_not_warned(db: Database) -> None:
     add_site(db, code="GB-Y", name="GB store", country="GB")
-    add_system(db, site_code="GB-Y", tag="RACK", refrigerant="R-449A", charge_mg=parse_mass_mg("165 kg"),
+    add_system(db, site_code="GB-Y", tag="RACK", refrigerant="R-449A", charge_ng=parse_mass_ng("165 kg"),
                application="commercial-refrigeration", in_service_on=date(2014, 3, 24))
     logged = log_event(db, site_code="GB-Y", tag="RACK", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2026, 2, 11), mass_mg=parse_mass_mg("3 kg"),
+        kind=EventKind.ADD, performed_on=date(2026, 2, 11), mass_ng=parse_mass_ng("3 kg"),
         recorded_by="test"))
     assert not [w for w in logged.warnings if w.field == "servicing"]

@@ -28,7 +28,7 @@ from ledger.store import chain
 from ledger.store.db import Database
 from ledger.store.repository import events_with_keys
 from ledger.store.tables import event, kept_obligation, kept_site
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 from tests.services.test_integrity import _drop_triggers as _drop_event_guards
 
 TECH = "Ines Okafor"  # invented demo name
@@ -40,12 +40,12 @@ def _ledger(db: Database) -> list[int]:
     add_technician(db, name=TECH, certificate="CERT-1", scheme="Scheme X", category="I",
                    valid_from=date(2020, 1, 1), valid_to=date(2030, 1, 1))
     for tag in ("A", "B"):
-        add_system(db, site_code="S", tag=tag, refrigerant="R-134a", charge_mg=parse_mass_mg("50 kg"),
+        add_system(db, site_code="S", tag=tag, refrigerant="R-134a", charge_ng=parse_mass_ng("50 kg"),
                    application="comfort-cooling", in_service_on=date(2023, 1, 1))
     return [
         log_event(db, site_code="S", tag="A",
                   draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, day),
-                                   mass_mg=parse_mass_mg(f"{day} kg"), technician=TECH)).event_id
+                                   mass_ng=parse_mass_ng(f"{day} kg"), technician=TECH)).event_id
         for day in (1, 2, 3, 4)
     ]
 
@@ -92,7 +92,7 @@ def test_an_event_inserted_with_a_valid_hash_before_the_checkpoint_is_named(db: 
     made, _ = _checkpoint(db, tmp_path)
     rows = _rows_of(db, "A")
     forged = {k: v for k, v in rows[-1].items() if k in event.c and k != "id"}
-    forged.update(mass_mg=parse_mass_mg("0.524 kg"), performed_on=date(2024, 1, 5),
+    forged.update(mass_ng=parse_mass_ng("0.524 kg"), performed_on=date(2024, 1, 5),
                   recorded_at=datetime.fromisoformat(made.made_at) - timedelta(days=3))
     forged["prev_hash"] = rows[-1]["chain_hash"]
     forged["chain_hash"] = chain.link(forged["prev_hash"], {**rows[-1], **forged})
@@ -114,12 +114,12 @@ def test_a_recomputed_chain_is_named_by_the_checkpoint(db: Database, tmp_path: P
     prev = chain.GENESIS
     with db.engine.begin() as conn:
         for r in rows:
-            if r["kind"] == "add" and r["mass_mg"] == parse_mass_mg("2 kg"):
-                r["mass_mg"] = parse_mass_mg("0.524 kg")
+            if r["kind"] == "add" and r["mass_ng"] == parse_mass_ng("2 kg"):
+                r["mass_ng"] = parse_mass_ng("0.524 kg")
             r["prev_hash"] = prev
             r["chain_hash"] = prev = chain.link(prev, r)
-            conn.execute(text("UPDATE event SET mass_mg = :m, prev_hash = :p, chain_hash = :h WHERE id = :i"),
-                         {"m": r["mass_mg"], "p": r["prev_hash"], "h": r["chain_hash"], "i": r["id"]})
+            conn.execute(text("UPDATE event SET mass_ng = :m, prev_hash = :p, chain_hash = :h WHERE id = :i"),
+                         {"m": r["mass_ng"], "p": r["prev_hash"], "h": r["chain_hash"], "i": r["id"]})
     assert verify(db).breaks == []  # internally consistent again
     assert _against(db, tmp_path) == [("S/A", "changed")]
 
@@ -141,7 +141,7 @@ def test_a_site_regime_change_and_a_removed_cylinder_row_are_named(db: Database)
     from ledger.services.recording import add_cylinder
 
     _ledger(db)
-    add_cylinder(db, code="C-1", refrigerant="R-134a", kind="virgin", tare_mg=parse_mass_mg("12 kg"))
+    add_cylinder(db, code="C-1", refrigerant="R-134a", kind="virgin", tare_ng=parse_mass_ng("12 kg"))
     with db.engine.begin() as conn:
         conn.execute(text("UPDATE site SET regimes = 'gb' WHERE code = 'S'"))
         conn.execute(text("DELETE FROM cylinder WHERE code = 'C-1'"))
@@ -255,7 +255,7 @@ def test_an_intact_ledger_holds_against_its_checkpoint_and_later_events_are_fine
     _ledger(db)
     _checkpoint(db, tmp_path)
     log_event(db, site_code="S", tag="B", draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 2, 1),
-                                                           mass_mg=parse_mass_mg("1 kg")))
+                                                           mass_ng=parse_mass_ng("1 kg")))
     assert _against(db, tmp_path) == []
     assert verify(db).ok
 

@@ -13,14 +13,14 @@ from ledger.errors import NeedsConfirmation, Rejected
 from ledger.services.recording import add_cylinder, add_site, add_system, add_technician, log_event, record_visit
 from ledger.store.db import Database
 from ledger.store.tables import event
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 
 def _ledger(db: Database) -> None:
     add_site(db, code="US-1", name="Store", country="US", subdivision="US-TX")
     add_technician(db, name="Ada Novak", certificate="EPA-1", scheme="EPA 608 universal")
-    add_cylinder(db, code="CY-1", refrigerant="R-404A", kind="virgin", tare_mg=None)
-    add_system(db, site_code="US-1", tag="RACK", refrigerant="R-404A", charge_mg=parse_mass_mg("400 lb"),
+    add_cylinder(db, code="CY-1", refrigerant="R-404A", kind="virgin", tare_ng=None)
+    add_system(db, site_code="US-1", tag="RACK", refrigerant="R-404A", charge_ng=parse_mass_ng("400 lb"),
                application="commercial-refrigeration", in_service_on=date(2022, 4, 1), technician="Ada Novak")
 
 
@@ -35,8 +35,8 @@ def _visit() -> list[EventDraft]:
     return [
         EventDraft(kind=EventKind.CHECK, result="leak-found", location="LT header", **common),
         EventDraft(kind=EventKind.REPAIR, location="brazed joint", **common),
-        EventDraft(kind=EventKind.ADD, cylinder_code="CY-1", cylinder_before_mg=parse_mass_mg("30 lb"),
-                   cylinder_after_mg=parse_mass_mg("27 lb 8 oz"), **common),
+        EventDraft(kind=EventKind.ADD, cylinder_code="CY-1", cylinder_before_ng=parse_mass_ng("30 lb"),
+                   cylinder_after_ng=parse_mass_ng("27 lb 8 oz"), **common),
         EventDraft(kind=EventKind.FOLLOW_UP, result="pass", **common),
     ]
 
@@ -48,9 +48,9 @@ def test_a_visit_is_recorded_in_order_with_the_cylinder_mass(db: Database) -> No
     assert len(logged) == 4 and _count(db) == before + 4
     assert [x.event_id for x in logged] == sorted(x.event_id for x in logged)
     with db.read() as conn:
-        mass = conn.execute(select(event.c.mass_mg).where(event.c.id == logged[2].event_id)).scalar_one()
+        mass = conn.execute(select(event.c.mass_ng).where(event.c.id == logged[2].event_id)).scalar_one()
     # 30 lb - 27 lb 8 oz = 2 lb 8 oz (16 oz to the lb: common practice, no source)
-    assert mass == parse_mass_mg("2.5 lb")
+    assert mass == parse_mass_ng("2.5 lb")
 
 
 def test_an_error_in_one_part_writes_nothing(db: Database) -> None:
@@ -65,7 +65,7 @@ def test_an_error_in_one_part_writes_nothing(db: Database) -> None:
 
 def test_a_duplicate_asks_for_confirmation_and_writes_nothing(db: Database) -> None:
     _ledger(db)
-    draft = EventDraft(kind=EventKind.ADD, performed_on=date(2025, 3, 14), mass_mg=parse_mass_mg("3 lb"),
+    draft = EventDraft(kind=EventKind.ADD, performed_on=date(2025, 3, 14), mass_ng=parse_mass_ng("3 lb"),
                        technician="Ada Novak")
     log_event(db, site_code="US-1", tag="RACK", draft=draft)
     before = _count(db)
@@ -80,5 +80,5 @@ def test_a_duplicate_asks_for_confirmation_and_writes_nothing(db: Database) -> N
     assert _count(db) == before + 1
     # another mass on the same day is not a duplicate
     log_event(db, site_code="US-1", tag="RACK",
-              draft=EventDraft(kind=EventKind.ADD, performed_on=date(2025, 3, 14), mass_mg=parse_mass_mg("1 lb"),
+              draft=EventDraft(kind=EventKind.ADD, performed_on=date(2025, 3, 14), mass_ng=parse_mass_ng("1 lb"),
                                technician="Ada Novak"))

@@ -18,7 +18,7 @@ from ledger.errors import LedgerError
 from ledger.services.dbroles import make_roles
 from ledger.services.recording import add_site, add_system, log_event
 from ledger.store.db import Database, Location
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 
 def _as(location: Location, login: str) -> str:
@@ -45,7 +45,7 @@ def test_writer_appends_but_never_changes_and_auditor_only_reads(location: Locat
     db = Database(location)
     try:
         add_site(db, code="DE-1", name="Store", country="DE")
-        add_system(db, site_code="DE-1", tag="RACK", refrigerant="R-404A", charge_mg=parse_mass_mg("20 kg"),
+        add_system(db, site_code="DE-1", tag="RACK", refrigerant="R-404A", charge_ng=parse_mass_ng("20 kg"),
                    application="commercial-refrigeration", in_service_on=date(2022, 4, 1))
         done = CliRunner().invoke(cli_app, ["--db", location.url, "db", "roles", "--writer", writer, "--auditor",
                                             auditor, "--grant-writer", w_login, "--grant-auditor", a_login])
@@ -54,7 +54,7 @@ def test_writer_appends_but_never_changes_and_auditor_only_reads(location: Locat
 
         as_writer = Database(Location(_as(location, w_login), "test"))
         log_event(as_writer, site_code="DE-1", tag="RACK",
-                  draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 3, 1), mass_mg=parse_mass_mg("1 kg")))
+                  draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 3, 1), mass_ng=parse_mass_ng("1 kg")))
         for sql in ("UPDATE event SET note = 'changed'", "DELETE FROM event", "TRUNCATE event",
                     "UPDATE alembic_version SET version_num = 'x'"):
             with pytest.raises(ProgrammingError, match="permission denied"), as_writer.engine.begin() as conn:

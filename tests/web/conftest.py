@@ -12,7 +12,7 @@ import pytest
 from ledger.services.accounts import add_user
 from ledger.services.recording import add_cylinder, add_site, add_system, add_technician
 from ledger.store.db import Database, Location
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 PASSWORD = "correct horse battery"  # test only
 ROLES = ("technician", "officer", "auditor", "admin")
@@ -25,12 +25,12 @@ def build_ledger(db: Database) -> None:
     add_site(db, code="DE-LEJ", name="Markt", country="DE")
     add_technician(db, name="Ada Novak", certificate="EPA-1", scheme="EPA 608 universal")
     add_technician(db, name="Jonas Weber", certificate="DE-7", scheme="EU 2015/2067 cat I")
-    add_cylinder(db, code="CY-404", refrigerant="R-404A", kind="virgin", tare_mg=None)
-    add_cylinder(db, code="CY-134", refrigerant="R-134a", kind="virgin", tare_mg=None)
-    add_system(db, site_code="US-TX", tag="RACK-A", refrigerant="R-404A", charge_mg=parse_mass_mg("400 lb"),
+    add_cylinder(db, code="CY-404", refrigerant="R-404A", kind="virgin", tare_ng=None)
+    add_cylinder(db, code="CY-134", refrigerant="R-134a", kind="virgin", tare_ng=None)
+    add_system(db, site_code="US-TX", tag="RACK-A", refrigerant="R-404A", charge_ng=parse_mass_ng("400 lb"),
                application="commercial-refrigeration", in_service_on=date(2022, 4, 1), technician="Ada Novak",
                description="Low-temp rack " + XSS, note=XSS)
-    add_system(db, site_code="DE-LEJ", tag="CAB-1", refrigerant="R-290", charge_mg=parse_mass_mg("0.15 kg"),
+    add_system(db, site_code="DE-LEJ", tag="CAB-1", refrigerant="R-290", charge_ng=parse_mass_ng("0.15 kg"),
                application="commercial-refrigeration", in_service_on=date(2023, 1, 10), hermetic=True,
                description="Ice cream cabinet")
     add_user(db, name="technician", role="technician", password=PASSWORD, technician="Ada Novak", sites=["US-TX"])

@@ -20,7 +20,7 @@ import pytest
 
 from ledger.services.recording import add_system, site_today
 from ledger.store.db import Database, Location
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 from tests.web.conftest import PASSWORD, build_ledger
 
 CHROMIUM = "/usr/bin/chromium"
@@ -78,7 +78,7 @@ def server(sqlite_location: Location, tmp_path: Path, monkeypatch: pytest.Monkey
     monkeypatch.setenv("REFLEDGER_ATTACHMENTS", str(tmp_path / "attachments"))
     db = Database(sqlite_location)
     build_ledger(db)
-    add_system(db, site_code="US-TX", tag="WALK-IN", refrigerant="R-404A", charge_mg=parse_mass_mg("30 lb"),
+    add_system(db, site_code="US-TX", tag="WALK-IN", refrigerant="R-404A", charge_ng=parse_mass_ng("30 lb"),
                application="commercial-refrigeration", in_service_on=date(2022, 4, 1), technician="Ada Novak",
                description="Dairy walk-in cooler")
     db.close()
