@@ -97,15 +97,15 @@ MEASUREMENTS = tuple(GOALS)
 DB_FREE = {"xlsx", "help"}  # do not touch the database: measured once, not per backend
 
 EVENT_COLUMNS = (
-    "id", "system_id", "kind", "performed_on", "recorded_at", "mass_mg", "refrigerant",
-    "charge_mg", "result", "location", "method", "destination", "cylinder_id",
-    "cylinder_before_mg", "cylinder_after_mg", "technician_id", "certificate_id", "recorded_by",
+    "id", "system_id", "kind", "performed_on", "recorded_at", "mass_ng", "refrigerant",
+    "charge_ng", "result", "location", "method", "destination", "cylinder_id",
+    "cylinder_before_ng", "cylinder_after_ng", "technician_id", "certificate_id", "recorded_by",
     "note", "voids_id", "reason", "attachments", "reclaimed", "content_key", "prev_hash",
     "chain_hash",
 )
 # What the rules read of an event (the `due` floor reads exactly these).
-RULE_COLUMNS = ("id", "system_id", "kind", "performed_on", "mass_mg", "refrigerant",
-                "charge_mg", "result", "location", "voids_id")
+RULE_COLUMNS = ("id", "system_id", "kind", "performed_on", "mass_ng", "refrigerant",
+                "charge_ng", "result", "location", "voids_id")
 
 
 # --- the calendar ---------------------------------------------------------------------------
@@ -206,8 +206,8 @@ def _pick(rng: random.Random, weights: dict[str, int]) -> str:
     return rng.choices(list(weights), weights=list(weights.values()))[0]
 
 
-def _mg(kg: float) -> int:
-    return int(round(kg * 1_000_000))
+def _ng(kg: float) -> int:
+    return int(round(kg * 10**12))
 
 
 @dataclass
@@ -270,7 +270,7 @@ class _Builder:
             cid = len(self.e.cylinders) + 1
             self.cyl_ids[key] = cid
             self.e.cylinders.append((cid, f"BC-{company_no:04d}-{refrigerant}", refrigerant,
-                                     "virgin", _mg(14.5)))
+                                     "virgin", _ng(14.5)))
         return self.cyl_ids[key]
 
     def site(self, n: int) -> None:
@@ -339,7 +339,7 @@ class _Builder:
             seq += 1
             return len(local) - 1
 
-        charge = _mg(charge_kg)
+        charge = _ng(charge_kg)
         old = rng.random() < 0.85
         if old:
             placed = date(rng.randint(2000, cal.start.year - 1), rng.randint(1, 12), rng.randint(1, 28))
@@ -399,7 +399,7 @@ class _Builder:
                 emit(d + timedelta(days=rng.randint(-15, 15)), "detection-check")
                 d = _add_months(d, 12)
         # occasional recoveries for service work, refilled the same day
-        if rng.random() < 0.08 and charge > _mg(2):
+        if rng.random() < 0.08 and charge > _ng(2):
             d = begin + timedelta(days=rng.randint(0, max(0, (stop - begin).days - 1)))
             m = int(charge * rng.uniform(0.3, 0.9))
             emit(d, "recover", mass=m, destination="reuse")
@@ -424,9 +424,9 @@ class _Builder:
              lo: float, hi: float, refrigerant: str, company_no: int, stop: date) -> None:
         if day >= stop:
             return
-        mass = max(_mg(0.05), int(charge * rng.uniform(lo, hi)))
+        mass = max(_ng(0.05), int(charge * rng.uniform(lo, hi)))
         if rng.random() < 0.25:
-            before = _mg(14.5) + mass + _mg(rng.uniform(1, 40))
+            before = _ng(14.5) + mass + _ng(rng.uniform(1, 40))
             emit(day, "add", mass=mass, cylinder=self.cylinder(company_no, refrigerant),
                  before=before, after=before - mass)
         else:
@@ -453,9 +453,9 @@ class _Builder:
                 "cylinder": names["cylinder"].get(p[10]),
                 "voids": None if voids is None else hash_of[voids],
                 "system_id": sid, "kind": p[2], "performed_on": p[0], "recorded_at": recorded,
-                "mass_mg": p[3], "refrigerant": p[4], "charge_mg": p[5], "result": p[6],
+                "mass_ng": p[3], "refrigerant": p[4], "charge_ng": p[5], "result": p[6],
                 "location": p[7], "method": p[8], "destination": p[9], "cylinder_id": p[10],
-                "cylinder_before_mg": p[11], "cylinder_after_mg": p[12], "technician_id": p[13],
+                "cylinder_before_ng": p[11], "cylinder_after_ng": p[12], "technician_id": p[13],
                 "certificate_id": p[14], "recorded_by": p[15], "note": p[16], "voids_id": voids,
                 "reason": p[18], "attachments": "", "reclaimed": p[19],
             }
@@ -544,13 +544,13 @@ def import_rows(estate: Estate, n_rows: int) -> tuple[list[dict[str, str]], list
         roll = rng.random()
         cells = {"site": site_code, "tag": tag, "on": day.isoformat(), "mass": "", "result": "",
                  "method": "", "tech": estate.tech_names[tech_id], "note": ""}
-        mass_mg = None
+        mass_ng = None
         if roll < 0.6 or (roll >= 0.9 and not detection):
             cells.update(kind="check", result="no-leak", method="direct")
         elif roll < 0.9:
             grams = rng.randint(200, 9000)
             cells.update(kind="add", mass=f"{grams} g")
-            mass_mg = grams * 1000
+            mass_ng = grams * 10**9
         else:
             cells.update(kind="detection-check")
         cells["note"] = f"contractor upload row {len(rows) + 1}"
@@ -561,10 +561,10 @@ def import_rows(estate: Estate, n_rows: int) -> tuple[list[dict[str, str]], list
         valid = _cert_valid(estate, cert, day)
         values = {
             "system_id": sid, "kind": cells["kind"], "performed_on": day, "recorded_at": recorded,
-            "mass_mg": mass_mg, "refrigerant": None, "charge_mg": None,
+            "mass_ng": mass_ng, "refrigerant": None, "charge_ng": None,
             "result": cells["result"] or None, "location": None, "method": cells["method"] or None,
-            "destination": None, "cylinder_id": None, "cylinder_before_mg": None,
-            "cylinder_after_mg": None, "technician_id": tech_id,
+            "destination": None, "cylinder_id": None, "cylinder_before_ng": None,
+            "cylinder_after_ng": None, "technician_id": tech_id,
             "certificate_id": cert if valid else None, "recorded_by": cells["tech"],
             "note": cells["note"], "voids_id": None, "reason": None, "attachments": "",
             "reclaimed": False, "system": names["system"][sid], "technician": cells["tech"],
@@ -574,7 +574,7 @@ def import_rows(estate: Estate, n_rows: int) -> tuple[list[dict[str, str]], list
         prev = heads.get(sid, chain.GENESIS)
         head = chain.link(prev, values)
         heads[sid] = head
-        final.append((sid, values["kind"], day, recorded, mass_mg, None, None, values["result"],
+        final.append((sid, values["kind"], day, recorded, mass_ng, None, None, values["result"],
                       None, values["method"], None, None, None, None, tech_id,
                       values["certificate_id"], cells["tech"], cells["note"], None, None, "",
                       False, key, prev, head))
@@ -604,7 +604,7 @@ TABLE_COLUMNS = {
     "technician": ("id", "name", "company_id", "created_at"),
     "certificate": ("id", "technician_id", "scheme", "number", "category", "valid_from",
                     "valid_to"),
-    "cylinder": ("id", "code", "refrigerant", "kind", "tare_mg", "created_at"),
+    "cylinder": ("id", "code", "refrigerant", "kind", "tare_ng", "created_at"),
     "system": ("id", "site_id", "tag", "description", "application", "equipment_form",
                "hermetic", "residential", "location", "maker", "model", "serial",
                "defrost_every_hours", "created_at"),
@@ -882,8 +882,8 @@ def child(name: str, side: str, ctx: dict[str, Any]) -> dict[str, Any]:
             seconds = time.perf_counter() - t0
             extra = {
                 "groups": len(rows),
-                "added_kg": str(sum(r[2] or 0 for r in rows) / 1_000_000),
-                "recovered_kg": str(sum(r[3] or 0 for r in rows) / 1_000_000),
+                "added_kg": str(sum(r[2] or 0 for r in rows) / 10**12),
+                "recovered_kg": str(sum(r[3] or 0 for r in rows) / 10**12),
                 "checks_done": sum(r[4] or 0 for r in rows),
             }
             con.close()
@@ -1051,8 +1051,8 @@ def _summary_sql(url: str) -> str:
               ON last.id = e.id
         )
         SELECT s.site_id, g.refrigerant,
-               sum(CASE WHEN e.kind = 'add' THEN e.mass_mg END) AS added_mg,
-               sum(CASE WHEN e.kind IN ('recover', 'retire') THEN e.mass_mg END) AS recovered_mg,
+               sum(CASE WHEN e.kind = 'add' THEN e.mass_ng END) AS added_ng,
+               sum(CASE WHEN e.kind IN ('recover', 'retire') THEN e.mass_ng END) AS recovered_ng,
                sum(CASE WHEN e.kind = 'check' THEN 1 ELSE 0 END) AS checks_done,
                count(DISTINCT e.system_id) AS systems
         FROM event e

@@ -34,9 +34,9 @@ After = Annotated[str | None, typer.Option("--after", help="Cylinder weight afte
 
 
 def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | None:
-    from ledger.units import parse_mass_mg
+    from ledger.units import parse_mass_ng
 
-    return parse_mass_mg(text, field=field, allow_zero=allow_zero) if text is not None else None
+    return parse_mass_ng(text, field=field, allow_zero=allow_zero) if text is not None else None
 
 
 def _log(
@@ -101,10 +101,10 @@ def add(
         note,
         by,
         attach,
-        mass_mg=_mass(mass, "--mass"),
+        mass_ng=_mass(mass, "--mass"),
         cylinder_code=cylinder,
-        cylinder_before_mg=_mass(before, "--before"),
-        cylinder_after_mg=_mass(after, "--after"),
+        cylinder_before_ng=_mass(before, "--before"),
+        cylinder_after_ng=_mass(after, "--after"),
         refrigerant=refrigerant,
         reclaimed=reclaimed,
     )
@@ -138,10 +138,10 @@ def recover(
         note,
         by,
         attach,
-        mass_mg=_mass(mass, "--mass"),
+        mass_ng=_mass(mass, "--mass"),
         cylinder_code=cylinder,
-        cylinder_before_mg=_mass(before, "--before"),
-        cylinder_after_mg=_mass(after, "--after"),
+        cylinder_before_ng=_mass(before, "--before"),
+        cylinder_after_ng=_mass(after, "--after"),
         destination=destination,
     )
 
@@ -241,7 +241,7 @@ def charge(
 
     Example: refledger log charge DE-HAM/RACK-1 --on 2025-02-01 --charge 310kg --note "by calculation"
     """
-    _log("charge-revised", ref, on, tech, note, by, attach, charge_mg=_mass(charge_, "--charge"))
+    _log("charge-revised", ref, on, tech, note, by, attach, charge_ng=_mass(charge_, "--charge"))
 
 
 @app.command("retrofit")
@@ -259,7 +259,7 @@ def retrofit(
 
     Example: refledger log retrofit DE-HAM/RACK-1 --on 2025-05-01 --refrigerant R-448A --charge 280kg
     """
-    _log("retrofit", ref, on, tech, note, by, attach, refrigerant=refrigerant, charge_mg=_mass(charge_, "--charge"))
+    _log("retrofit", ref, on, tech, note, by, attach, refrigerant=refrigerant, charge_ng=_mass(charge_, "--charge"))
 
 
 @app.command("retire")
@@ -288,7 +288,7 @@ def retire(
         note,
         by,
         attach,
-        mass_mg=_mass(recovered, "--recovered", allow_zero=True),
+        mass_ng=_mass(recovered, "--recovered", allow_zero=True),
         destination=destination,
         cylinder_code=cylinder,
     )

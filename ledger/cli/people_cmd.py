@@ -81,14 +81,14 @@ def cylinder_add(
     """
     from ledger.inputs import parse_code
     from ledger.services.recording import add_cylinder
-    from ledger.units import parse_mass_mg
+    from ledger.units import parse_mass_ng
 
     add_cylinder(
         context.open_db(),
         code=parse_code(code, field="ID"),
         refrigerant=refrigerant,
         kind=kind,
-        tare_mg=parse_mass_mg(tare, field="--tare") if tare else None,
+        tare_ng=parse_mass_ng(tare, field="--tare") if tare else None,
     )
     typer.echo(f"cylinder {code} added")
 

@@ -21,10 +21,10 @@ def show(
     """
     from ledger.cli.render import LOCAL_RULES_NOTE, print_json, table
     from ledger.services.refrigerants import refrigerant_view
-    from ledger.units import parse_mass_mg
+    from ledger.units import parse_mass_ng
 
-    charge_mg = parse_mass_mg(charge, field="--charge") if charge else None
-    view = refrigerant_view(name, charge_mg=charge_mg)
+    charge_ng = parse_mass_ng(charge, field="--charge") if charge else None
+    view = refrigerant_view(name, charge_ng=charge_ng)
     if json_out:
         print_json(view)
         return
@@ -34,10 +34,10 @@ def show(
     rows = []
     for basis in view["gwp"]:
         row = [basis, str(view["gwp_rounded"][basis])]
-        if charge_mg is not None:
+        if charge_ng is not None:
             row.append(view["co2e_display"][basis])
         rows.append(row)
-    table(["basis", "GWP"] + (["t CO2e"] if charge_mg is not None else []), rows)
+    table(["basis", "GWP"] + (["t CO2e"] if charge_ng is not None else []), rows)
     for note in view["notes"]:
         typer.echo(f"note: {note}")
     if view["caution"]:

@@ -49,7 +49,7 @@ def add(
     """
     from ledger.inputs import parse_code, parse_day, parse_system_ref
     from ledger.services.recording import add_system
-    from ledger.units import parse_mass_mg
+    from ledger.units import parse_mass_ng
 
     site_code, tag = parse_system_ref(ref)
     logged = add_system(
@@ -57,7 +57,7 @@ def add(
         site_code=site_code,
         tag=parse_code(tag, field="TAG"),
         refrigerant=refrigerant,
-        charge_mg=parse_mass_mg(charge, field="--charge"),
+        charge_ng=parse_mass_ng(charge, field="--charge"),
         application=application,
         in_service_on=parse_day(in_service, field="--in-service"),
         hermetic=hermetic,

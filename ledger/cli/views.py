@@ -23,9 +23,9 @@ def mass_in(kg: Any, unit: str) -> Decimal | None:
     """A mass given in kg, in the display unit (kg or lb)."""
     if kg is None:
         return None
-    from ledger.units import MG_PER_KG, MG_PER_LB
+    from ledger.units import NG_PER_KG, NG_PER_LB
 
-    return Decimal(kg) * MG_PER_KG / MG_PER_LB if unit == "lb" else Decimal(kg)
+    return Decimal(kg) * NG_PER_KG / NG_PER_LB if unit == "lb" else Decimal(kg)
 
 
 def print_system(view: dict[str, Any]) -> None:

@@ -1,6 +1,6 @@
 """Validated input on its way into the ledger, and the checks that decide whether it may go in.
 
-A draft holds what the user asked for, already parsed (masses in mg, dates as ``date``).
+A draft holds what the user asked for, already parsed (masses in integer ng, dates as ``date``).
 ``validate_event`` compares it with the system's state and returns findings: errors stop the
 write, warnings are recorded with the event and shown.
 """
@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import date
+from decimal import Decimal
 
 from ledger.domain.records import (
     CheckResult,
@@ -22,6 +23,8 @@ from ledger.domain.records import (
     Technician,
 )
 
+NG_PER_KG = 10**12
+
 # Event kinds that move refrigerant, and so may name a cylinder.
 MASS_KINDS = frozenset({EventKind.ADD, EventKind.RECOVER, EventKind.RETIRE})
 
@@ -32,16 +35,16 @@ class EventDraft:
 
     kind: EventKind
     performed_on: date
-    mass_mg: int | None = None
+    mass_ng: int | None = None
     refrigerant: str | None = None  # in-service / retrofit; for add/recover an assertion
-    charge_mg: int | None = None
+    charge_ng: int | None = None
     result: str | None = None
     location: str | None = None
     method: str | None = None
     destination: str | None = None
     cylinder_code: str | None = None
-    cylinder_before_mg: int | None = None
-    cylinder_after_mg: int | None = None
+    cylinder_before_ng: int | None = None
+    cylinder_after_ng: int | None = None
     technician: str | None = None
     recorded_by: str | None = None
     note: str = ""
@@ -56,22 +59,28 @@ def error(field: str, message: str, source: str = "input") -> Finding:
     return Finding(source=source, message=f"{field}: {message}", severity=Severity.ERROR, field=field)
 
 
-def cylinder_mass_mg(draft: EventDraft) -> tuple[int | None, list[Finding]]:
+def _kg(ng: int) -> str:
+    """A nanogram mass as exact kilograms for a message (``48.2 kg``)."""
+    text = format(Decimal(ng) / NG_PER_KG, "f")
+    return (text.rstrip("0").rstrip(".") if "." in text else text) + " kg"
+
+
+def cylinder_mass_ng(draft: EventDraft) -> tuple[int | None, list[Finding]]:
     """The mass moved, from ``--mass`` or from cylinder weights before/after.
 
     Charging empties the cylinder (before > after); recovering fills it (after > before).
     """
-    before, after = draft.cylinder_before_mg, draft.cylinder_after_mg
+    before, after = draft.cylinder_before_ng, draft.cylinder_after_ng
     if before is None and after is None:
-        return draft.mass_mg, []
+        return draft.mass_ng, []
     if before is None or after is None:
         return None, [error("--before/--after", "give both cylinder weights, or --mass")]
     moved = before - after if draft.kind is EventKind.ADD else after - before
     if moved <= 0:
         if draft.kind is EventKind.ADD:
-            return None, [error("--before", f"{before} mg is not heavier than --after {after} mg")]
-        return None, [error("--after", f"{after} mg is not heavier than --before {before} mg")]
-    if draft.mass_mg is not None and draft.mass_mg != moved:
+            return None, [error("--before", f"{_kg(before)} is not heavier than --after {_kg(after)}")]
+        return None, [error("--after", f"{_kg(after)} is not heavier than --before {_kg(before)}")]
+    if draft.mass_ng is not None and draft.mass_ng != moved:
         return None, [error("--mass", "disagrees with the cylinder weights; give one or the other")]
     return moved, []
 
@@ -120,9 +129,9 @@ def validate_event(
                 )
             )
     kind = draft.kind
-    if kind in (EventKind.ADD, EventKind.RECOVER) and draft.mass_mg is None:
+    if kind in (EventKind.ADD, EventKind.RECOVER) and draft.mass_ng is None:
         found.append(error("--mass", "is required (or --cylinder with --before and --after)"))
-    if kind is EventKind.RETIRE and draft.mass_mg is None:
+    if kind is EventKind.RETIRE and draft.mass_ng is None:
         found.append(error("--recovered", "is required (0 kg if nothing could be recovered)"))
     if same_refrigerant is False:
         found.append(

@@ -1,7 +1,7 @@
 """Refrigerant flows over a period and the corporate scope-1 estimates built on them.
 
-Pure: records in, numbers out; no I/O, no clock. Masses are integer milligrams until the very
-end, so every total reconciles with the events to the milligram; emission estimates that apply
+Pure: records in, numbers out; no I/O, no clock. Masses are integer nanograms until the very
+end, so every total reconciles with the events to the nanogram; emission estimates that apply
 percentage factors are exact ``Decimal`` kilograms.
 
 Three published methods (GHG Protocol / US EPA Center for Corporate Climate Leadership, "Direct
@@ -49,9 +49,9 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import effective_events
 
-MG_PER_KG = Decimal(1_000_000)
+NG_PER_KG = Decimal(10**12)
 UNKNOWN_REFRIGERANT = "unknown"  # label for mass moved while no refrigerant is recorded
-_EXACT = Context(prec=60)  # wide enough that sums of mg x percent x GWP products stay exact
+_EXACT = Context(prec=60)  # wide enough that sums of ng x percent x GWP products stay exact
 
 MATERIAL_BALANCE = "material-balance"
 SIMPLIFIED_MATERIAL_BALANCE = "simplified-material-balance"
@@ -162,13 +162,13 @@ class Addition:
     event_id: int
     on: date
     refrigerant: str
-    mass_mg: int
+    mass_ng: int
     initial: bool  # on the in-service or retrofit day: part of the initial charge
 
 
 @dataclass(frozen=True, slots=True)
 class Flow:
-    """One system's movements of one refrigerant over a period (integer milligrams).
+    """One system's movements of one refrigerant over a period (integer nanograms).
 
     A system has one flow per refrigerant it held in the period (two across a retrofit).
     """
@@ -176,31 +176,31 @@ class Flow:
     system_id: int
     refrigerant: str
     period_days: int
-    charge_start_mg: int = 0  # full charge held at the start (0 if not in service)
-    charge_end_mg: int = 0  # full charge held at the end (0 if retired or retrofitted away)
-    last_charge_mg: int = 0  # full charge on the last day this gas was in the system
-    added_mg: int = 0  # every addition
-    initial_fill_mg: int = 0  # additions on the in-service / retrofit day (part of the charge)
-    recovered_mg: int = 0  # recover events plus the mass recovered at retirement
-    recovered_to: tuple[tuple[str, int], ...] = ()  # (destination, mg), by destination
-    new_charge_mg: int = 0  # CN: full charge of units placed in service (or retrofitted to it)
-    retired_charge_mg: int = 0  # CD: full charge of units retired (or retrofitted away)
-    retired_recovered_mg: int = 0  # RD: recovered from those units on their last day
-    charge_revised_mg: int = 0  # net change of the full charge by charge-revised events
-    operating_mg_days: int = 0  # sum over days in service of that day's full charge
+    charge_start_ng: int = 0  # full charge held at the start (0 if not in service)
+    charge_end_ng: int = 0  # full charge held at the end (0 if retired or retrofitted away)
+    last_charge_ng: int = 0  # full charge on the last day this gas was in the system
+    added_ng: int = 0  # every addition
+    initial_fill_ng: int = 0  # additions on the in-service / retrofit day (part of the charge)
+    recovered_ng: int = 0  # recover events plus the mass recovered at retirement
+    recovered_to: tuple[tuple[str, int], ...] = ()  # (destination, ng), by destination
+    new_charge_ng: int = 0  # CN: full charge of units placed in service (or retrofitted to it)
+    retired_charge_ng: int = 0  # CD: full charge of units retired (or retrofitted away)
+    retired_recovered_ng: int = 0  # RD: recovered from those units on their last day
+    charge_revised_ng: int = 0  # net change of the full charge by charge-revised events
+    operating_ng_days: int = 0  # sum over days in service of that day's full charge
     in_service_days: int = 0
 
     @property
-    def service_added_mg(self) -> int:
+    def service_added_ng(self) -> int:
         """Additions that were not part of an initial charge (PS: servicing, leaks)."""
-        return self.added_mg - self.initial_fill_mg
+        return self.added_ng - self.initial_fill_ng
 
     @property
-    def net_loss_mg(self) -> int:
+    def net_loss_ng(self) -> int:
         """Material balance of this flow: start + charged in - recovered - end."""
         return (
-            self.charge_start_mg + self.new_charge_mg + self.service_added_mg
-            - self.recovered_mg - self.charge_end_mg
+            self.charge_start_ng + self.new_charge_ng + self.service_added_ng
+            - self.recovered_ng - self.charge_end_ng
         )
 
 
@@ -209,18 +209,18 @@ class _FlowBuilder:
     system_id: int
     refrigerant: str
     period_days: int
-    charge_start_mg: int = 0
-    charge_end_mg: int = 0
-    last_charge_mg: int = 0
-    added_mg: int = 0
-    initial_fill_mg: int = 0
-    recovered_mg: int = 0
+    charge_start_ng: int = 0
+    charge_end_ng: int = 0
+    last_charge_ng: int = 0
+    added_ng: int = 0
+    initial_fill_ng: int = 0
+    recovered_ng: int = 0
     recovered_to: dict[str, int] = field(default_factory=dict)
-    new_charge_mg: int = 0
-    retired_charge_mg: int = 0
-    retired_recovered_mg: int = 0
-    charge_revised_mg: int = 0
-    operating_mg_days: int = 0
+    new_charge_ng: int = 0
+    retired_charge_ng: int = 0
+    retired_recovered_ng: int = 0
+    charge_revised_ng: int = 0
+    operating_ng_days: int = 0
     in_service_days: int = 0
 
     def freeze(self) -> Flow:
@@ -228,18 +228,18 @@ class _FlowBuilder:
             system_id=self.system_id,
             refrigerant=self.refrigerant,
             period_days=self.period_days,
-            charge_start_mg=self.charge_start_mg,
-            charge_end_mg=self.charge_end_mg,
-            last_charge_mg=self.last_charge_mg,
-            added_mg=self.added_mg,
-            initial_fill_mg=self.initial_fill_mg,
-            recovered_mg=self.recovered_mg,
+            charge_start_ng=self.charge_start_ng,
+            charge_end_ng=self.charge_end_ng,
+            last_charge_ng=self.last_charge_ng,
+            added_ng=self.added_ng,
+            initial_fill_ng=self.initial_fill_ng,
+            recovered_ng=self.recovered_ng,
             recovered_to=tuple(sorted(self.recovered_to.items())),
-            new_charge_mg=self.new_charge_mg,
-            retired_charge_mg=self.retired_charge_mg,
-            retired_recovered_mg=self.retired_recovered_mg,
-            charge_revised_mg=self.charge_revised_mg,
-            operating_mg_days=self.operating_mg_days,
+            new_charge_ng=self.new_charge_ng,
+            retired_charge_ng=self.retired_charge_ng,
+            retired_recovered_ng=self.retired_recovered_ng,
+            charge_revised_ng=self.charge_revised_ng,
+            operating_ng_days=self.operating_ng_days,
             in_service_days=self.in_service_days,
         )
 
@@ -261,7 +261,7 @@ def additions(history: SystemHistory) -> tuple[Addition, ...]:
             charged_on = e.performed_on
         elif e.kind is EventKind.ADD:
             found.append(
-                Addition(e.id, e.performed_on, refrigerant or UNKNOWN_REFRIGERANT, e.mass_mg or 0,
+                Addition(e.id, e.performed_on, refrigerant or UNKNOWN_REFRIGERANT, e.mass_ng or 0,
                          e.performed_on == charged_on)
             )
     return tuple(found)
@@ -293,11 +293,11 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
             break
         match e.kind:
             case EventKind.IN_SERVICE:
-                in_service, refrigerant, charge = True, e.refrigerant, e.charge_mg or 0
+                in_service, refrigerant, charge = True, e.refrigerant, e.charge_ng or 0
             case EventKind.RETROFIT:
-                refrigerant, charge = e.refrigerant or refrigerant, e.charge_mg or charge
+                refrigerant, charge = e.refrigerant or refrigerant, e.charge_ng or charge
             case EventKind.CHARGE_REVISED:
-                charge = e.charge_mg or charge
+                charge = e.charge_ng or charge
             case EventKind.RETIRE:
                 in_service = False
             case _:
@@ -318,14 +318,14 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
         if in_service and upto > since:
             f = flow(refrigerant)
             n = (upto - since).days
-            f.operating_mg_days += charge * n
+            f.operating_ng_days += charge * n
             f.in_service_days += n
-            f.last_charge_mg = charge
+            f.last_charge_ng = charge
         since = upto
 
     if in_service:
         f = flow(refrigerant)
-        f.charge_start_mg = f.last_charge_mg = charge
+        f.charge_start_ng = f.last_charge_ng = charge
     recovered_today: dict[tuple[date, str], int] = {}
     for e in events:
         if e.performed_on < start:
@@ -337,44 +337,44 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
             case EventKind.IN_SERVICE:
                 close(on)
                 in_service, refrigerant, charged_on = True, e.refrigerant, on
-                charge = e.charge_mg or 0
+                charge = e.charge_ng or 0
                 f = flow(refrigerant)
-                f.new_charge_mg += charge
-                f.last_charge_mg = charge
+                f.new_charge_ng += charge
+                f.last_charge_ng = charge
             case EventKind.RETROFIT:
                 close(on)
                 old = flow(refrigerant)
-                old.retired_charge_mg += charge
-                old.retired_recovered_mg += recovered_today.get((on, old.refrigerant), 0)
+                old.retired_charge_ng += charge
+                old.retired_recovered_ng += recovered_today.get((on, old.refrigerant), 0)
                 refrigerant, charged_on = e.refrigerant or refrigerant, on
-                charge = e.charge_mg or charge
+                charge = e.charge_ng or charge
                 new = flow(refrigerant)
-                new.new_charge_mg += charge
-                new.last_charge_mg = charge
+                new.new_charge_ng += charge
+                new.last_charge_ng = charge
             case EventKind.CHARGE_REVISED:
                 close(on)
-                revised = e.charge_mg or charge
-                flow(refrigerant).charge_revised_mg += revised - charge
+                revised = e.charge_ng or charge
+                flow(refrigerant).charge_revised_ng += revised - charge
                 charge = revised
-                flow(refrigerant).last_charge_mg = charge
+                flow(refrigerant).last_charge_ng = charge
             case EventKind.ADD:
                 f = flow(refrigerant)
-                f.added_mg += e.mass_mg or 0
+                f.added_ng += e.mass_ng or 0
                 if on == charged_on:
-                    f.initial_fill_mg += e.mass_mg or 0
+                    f.initial_fill_ng += e.mass_ng or 0
             case EventKind.RECOVER | EventKind.RETIRE:
                 f = flow(refrigerant)
-                mass = e.mass_mg or 0
-                f.recovered_mg += mass
+                mass = e.mass_ng or 0
+                f.recovered_ng += mass
                 if mass:
                     where = e.destination or "unknown"
                     f.recovered_to[where] = f.recovered_to.get(where, 0) + mass
                 key = (on, f.refrigerant)
                 if e.kind is EventKind.RETIRE:
                     close(on)
-                    f.retired_charge_mg += charge
-                    f.retired_recovered_mg += recovered_today.get(key, 0) + mass
-                    f.last_charge_mg = charge
+                    f.retired_charge_ng += charge
+                    f.retired_recovered_ng += recovered_today.get(key, 0) + mass
+                    f.last_charge_ng = charge
                     in_service = False
                 else:
                     recovered_today[key] = recovered_today.get(key, 0) + mass
@@ -382,17 +382,17 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
                 pass
     if in_service:
         close(end + timedelta(days=1))
-        flow(refrigerant).charge_end_mg = charge
+        flow(refrigerant).charge_end_ng = charge
     return tuple(f.freeze() for f in flows.values())
 
 
 # --- the three methods ------------------------------------------------------------------------
 
 
-def kg(mg: int | Decimal) -> Decimal:
-    """Exact kilograms of a milligram figure."""
+def kg(ng: int | Decimal) -> Decimal:
+    """Exact kilograms of a nanogram figure."""
     with localcontext(_EXACT):
-        return Decimal(mg) / MG_PER_KG
+        return Decimal(ng) / NG_PER_KG
 
 
 def co2e_t(mass_kg: Decimal, gwp: Decimal) -> Decimal:
@@ -526,10 +526,10 @@ def material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal]) -> Metho
     """
     parts = []
     for name, group in _by_refrigerant(flows).items():
-        acquired = kg(sum(f.new_charge_mg + f.service_added_mg for f in group))
-        disbursed = kg(sum(f.recovered_mg for f in group))
-        start = kg(sum(f.charge_start_mg for f in group))
-        end = kg(sum(f.charge_end_mg for f in group))
+        acquired = kg(sum(f.new_charge_ng + f.service_added_ng for f in group))
+        disbursed = kg(sum(f.recovered_ng for f in group))
+        start = kg(sum(f.charge_start_ng for f in group))
+        end = kg(sum(f.charge_end_ng for f in group))
         e = material_balance_kg(acquired_kg=acquired, disbursed_kg=disbursed, charge_start_kg=start,
                                 charge_end_kg=end)
         inputs = (("inventory_change_kg", Decimal(0)), ("acquired_kg", acquired),
@@ -555,11 +555,11 @@ def simplified_material_balance(flows: Iterable[Flow], gwp: Mapping[str, Decimal
     """Simplified material-balance estimate over flows, per refrigerant."""
     parts = []
     for name, group in _by_refrigerant(flows).items():
-        cn = kg(sum(f.new_charge_mg for f in group))
+        cn = kg(sum(f.new_charge_ng for f in group))
         pn = cn
-        ps = kg(sum(f.service_added_mg for f in group))
-        cd = kg(sum(f.retired_charge_mg for f in group))
-        rd = kg(sum(f.retired_recovered_mg for f in group))
+        ps = kg(sum(f.service_added_ng for f in group))
+        cd = kg(sum(f.retired_charge_ng for f in group))
+        rd = kg(sum(f.retired_recovered_ng for f in group))
         e = simplified_material_balance_kg(pn_kg=pn, cn_kg=cn, ps_kg=ps, cd_kg=cd, rd_kg=rd)
         inputs = (("pn_kg", pn), ("cn_kg", cn), ("ps_kg", ps), ("cd_kg", cd), ("rd_kg", rd))
         parts.append(MethodPart(name, inputs, e, gwp.get(name, Decimal(0)),
@@ -598,10 +598,10 @@ def screening(
     for (name, category), group in grouped.items():
         factors = SCREENING_FACTORS[category]
         used[category] = factors
-        cn = kg(sum(f.new_charge_mg for f in group))
+        cn = kg(sum(f.new_charge_ng for f in group))
         with localcontext(_EXACT):
-            c_t = sum((kg(f.operating_mg_days) / f.period_days for f in group), Decimal(0))
-        cd = kg(sum(f.retired_charge_mg for f in group))
+            c_t = sum((kg(f.operating_ng_days) / f.period_days for f in group), Decimal(0))
+        cd = kg(sum(f.retired_charge_ng for f in group))
         e = screening_kg(cn_kg=cn, c_t_kg=c_t, cd_kg=cd, factors=factors)
         inputs = (("cn_kg", cn), ("c_t_kg", c_t), ("cd_kg", cd))
         parts.append(MethodPart(name, inputs, e, gwp.get(name, Decimal(0)),

@@ -44,8 +44,8 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import effective_events
 
-MG_PER_LB = Decimal("453592.37")  # exact: the international avoirdupois pound (1959)
-MG_PER_KG = Decimal(1_000_000)
+NG_PER_LB = Decimal(453_592_370_000)  # exact: the international avoirdupois pound (1959)
+NG_PER_KG = Decimal(10**12)
 YEAR_DAYS = 365  # both methods annualize to 365 days (40 CFR 82.152, "leak rate")
 
 ANNUALIZING = "annualizing"
@@ -73,9 +73,9 @@ class LeakRate:
 
     event_id: EventId
     added_on: date
-    added_mg: int  # this event's mass
-    day_total_mg: int  # all counted additions that day up to and including this event
-    full_charge_mg: int
+    added_ng: int  # this event's mass
+    day_total_ng: int  # all counted additions that day up to and including this event
+    full_charge_ng: int
     annualizing_percent: Decimal | None  # None when not counted or the full charge is unknown
     rolling_percent: Decimal | None
     method: str  # the facility's method; ``percent`` is that method's rate
@@ -102,31 +102,31 @@ def _show(value: Fraction) -> Decimal:
         return Decimal(value.numerator) / Decimal(value.denominator)
 
 
-def _check_charge(full_charge_mg: int) -> None:
-    if full_charge_mg <= 0:
-        raise ValueError(f"full charge must be positive, got {full_charge_mg} mg")
+def _check_charge(full_charge_ng: int) -> None:
+    if full_charge_ng <= 0:
+        raise ValueError(f"full charge must be positive, got {full_charge_ng} ng")
 
 
 def annualizing_fraction(
-    added_mg: int, full_charge_mg: int, days_since_previous_add: int | None
+    added_ng: int, full_charge_ng: int, days_since_previous_add: int | None
 ) -> Fraction:
     """Exact annualizing-method leak rate in percent, as a fraction (see `annualizing_rate`)."""
-    _check_charge(full_charge_mg)
+    _check_charge(full_charge_ng)
     if days_since_previous_add is not None and days_since_previous_add < 1:
         raise ValueError("days since the previous addition must be at least 1 "
                          "(same-day additions count as one)")
     days = YEAR_DAYS if days_since_previous_add is None else min(days_since_previous_add, YEAR_DAYS)
-    return Fraction(added_mg, full_charge_mg) * Fraction(YEAR_DAYS, days) * 100
+    return Fraction(added_ng, full_charge_ng) * Fraction(YEAR_DAYS, days) * 100
 
 
 def annualizing_rate(
-    added_mg: int, full_charge_mg: int, days_since_previous_add: int | None
+    added_ng: int, full_charge_ng: int, days_since_previous_add: int | None
 ) -> Decimal:
     """Leak rate by the annualizing method, 40 CFR 82.152 ("leak rate").
 
     Args:
-        added_mg: refrigerant added (one day's additions together).
-        full_charge_mg: the appliance's full charge; must be positive.
+        added_ng: refrigerant added (one day's additions together).
+        full_charge_ng: the appliance's full charge; must be positive.
         days_since_previous_add: days since refrigerant was last added; None when there was no
             earlier addition. Values over 365 count as 365.
     Returns:
@@ -134,32 +134,32 @@ def annualizing_rate(
     Raises:
         ValueError: full charge not positive, or a day count below 1.
     """
-    return _show(annualizing_fraction(added_mg, full_charge_mg, days_since_previous_add))
+    return _show(annualizing_fraction(added_ng, full_charge_ng, days_since_previous_add))
 
 
 def rolling_fraction(
-    additions: Sequence[tuple[date, int]], on: date, full_charge_mg: int, since: date | None
+    additions: Sequence[tuple[date, int]], on: date, full_charge_ng: int, since: date | None
 ) -> Fraction:
     """Exact rolling-average leak rate in percent, as a fraction (see `rolling_rate`)."""
-    _check_charge(full_charge_mg)
+    _check_charge(full_charge_ng)
     first = on - timedelta(days=YEAR_DAYS - 1)
     total = sum(
         mass
         for day, mass in additions
         if first <= day <= on and (since is None or day > since)
     )
-    return Fraction(total, full_charge_mg) * 100
+    return Fraction(total, full_charge_ng) * 100
 
 
 def rolling_rate(
-    additions: Sequence[tuple[date, int]], on: date, full_charge_mg: int, since: date | None
+    additions: Sequence[tuple[date, int]], on: date, full_charge_ng: int, since: date | None
 ) -> Decimal:
     """Leak rate by the rolling-average method, 40 CFR 82.152 ("leak rate").
 
     Args:
-        additions: (day, mass_mg) of each addition; order does not matter.
+        additions: (day, mass_ng) of each addition; order does not matter.
         on: the day of the addition the rate is computed for.
-        full_charge_mg: the appliance's full charge; must be positive.
+        full_charge_ng: the appliance's full charge; must be positive.
         since: the day of the last successful follow-up verification test, if any; only
             additions after it count (from memory: "if shorter than 365 days").
     Returns:
@@ -168,7 +168,7 @@ def rolling_rate(
     Raises:
         ValueError: full charge not positive.
     """
-    return _show(rolling_fraction(additions, on, full_charge_mg, since))
+    return _show(rolling_fraction(additions, on, full_charge_ng, since))
 
 
 def exceeds(percent: Decimal | Fraction, threshold: Decimal | int) -> bool:
@@ -190,7 +190,7 @@ def leak_rates(history: SystemHistory, method: str) -> tuple[LeakRate, ...]:
     if method not in METHODS:
         raise ValueError(f"leak-rate method {method!r} is not one of {', '.join(METHODS)}")
     threshold = threshold_percent(history.system.application)
-    charge_mg = 0
+    charge_ng = 0
     in_service = False
     charged_on: date | None = None  # in-service or retrofit day: the initial charge
     passed_on: date | None = None  # last successful follow-up verification test
@@ -199,20 +199,20 @@ def leak_rates(history: SystemHistory, method: str) -> tuple[LeakRate, ...]:
     for e in effective_events(history.events):
         match e.kind:
             case EventKind.IN_SERVICE:
-                in_service, charged_on, charge_mg = True, e.performed_on, e.charge_mg or 0
+                in_service, charged_on, charge_ng = True, e.performed_on, e.charge_ng or 0
                 counted, passed_on = [], None
             case EventKind.RETROFIT:
-                charged_on, charge_mg = e.performed_on, e.charge_mg or charge_mg
+                charged_on, charge_ng = e.performed_on, e.charge_ng or charge_ng
                 counted, passed_on = [], None
             case EventKind.CHARGE_REVISED:
-                charge_mg = e.charge_mg or charge_mg
+                charge_ng = e.charge_ng or charge_ng
             case EventKind.RETIRE:
                 in_service = False
             case EventKind.FOLLOW_UP if e.result == FollowUpResult.PASS:
                 passed_on = e.performed_on
             case EventKind.ADD:
                 rows.append(
-                    _row(e.id, e.performed_on, e.mass_mg or 0, charge_mg, in_service, charged_on,
+                    _row(e.id, e.performed_on, e.mass_ng or 0, charge_ng, in_service, charged_on,
                          passed_on, counted, method, threshold)
                 )
             case _:
@@ -223,8 +223,8 @@ def leak_rates(history: SystemHistory, method: str) -> tuple[LeakRate, ...]:
 def _row(
     event_id: EventId,
     on: date,
-    mass_mg: int,
-    charge_mg: int,
+    mass_ng: int,
+    charge_ng: int,
     in_service: bool,
     charged_on: date | None,
     passed_on: date | None,
@@ -233,29 +233,29 @@ def _row(
     threshold: Decimal,
 ) -> LeakRate:
     def skipped(note: str) -> LeakRate:
-        return LeakRate(event_id, on, mass_mg, mass_mg, charge_mg, None, None, method, None,
+        return LeakRate(event_id, on, mass_ng, mass_ng, charge_ng, None, None, method, None,
                         threshold, False, False, note)
 
     if not in_service or charged_on is None:
         return skipped("system not in service: not a leak-rate addition")
     if on <= charged_on:
         return skipped("part of the initial charge (in-service or retrofit day): not counted")
-    counted.append((on, mass_mg))
-    if charge_mg <= 0:
-        return LeakRate(event_id, on, mass_mg, mass_mg, charge_mg, None, None, method, None,
+    counted.append((on, mass_ng))
+    if charge_ng <= 0:
+        return LeakRate(event_id, on, mass_ng, mass_ng, charge_ng, None, None, method, None,
                         threshold, False, True, "full charge unknown: no rate")
     day_total = sum(mass for day, mass in counted if day == on)
     earlier = [day for day, _ in counted if day < on]
     days = (on - max(earlier)).days if earlier else None
-    annual = annualizing_fraction(day_total, charge_mg, days)
-    rolling = rolling_fraction(counted, on, charge_mg, passed_on)
+    annual = annualizing_fraction(day_total, charge_ng, days)
+    rolling = rolling_fraction(counted, on, charge_ng, passed_on)
     chosen = annual if method == ANNUALIZING else rolling
     return LeakRate(
         event_id=event_id,
         added_on=on,
-        added_mg=mass_mg,
-        day_total_mg=day_total,
-        full_charge_mg=charge_mg,
+        added_ng=mass_ng,
+        day_total_ng=day_total,
+        full_charge_ng=charge_ng,
         annualizing_percent=_show(annual),
         rolling_percent=_show(rolling),
         method=method,
@@ -283,8 +283,8 @@ def leak_rates_json(history: SystemHistory, as_of: date) -> list[dict[str, Any]]
         {
             "event_id": r.event_id,
             "on": r.added_on,
-            "added_kg": Decimal(r.added_mg) / MG_PER_KG,
-            "full_charge_kg": Decimal(r.full_charge_mg) / MG_PER_KG,
+            "added_kg": Decimal(r.added_ng) / NG_PER_KG,
+            "full_charge_kg": Decimal(r.full_charge_ng) / NG_PER_KG,
             "annualizing_percent": r.annualizing_percent,
             "rolling_percent": r.rolling_percent,
             "method": r.method,

@@ -1,7 +1,7 @@
 """Frozen domain records that rules and reports consume.
 
-Masses are integer milligrams (``*_mg``): exact, summable, and fine enough that a pound
-(453 592.37 mg) or an ounce is stored to within half a milligram. Dates that something
+Masses are integer nanograms (``*_ng``): exact and summable; a pound (453 592 370 000 ng) and
+an ounce (28 349 523 125 ng) are whole numbers of them. Dates that something
 happened are site-local ``date``s (``*_on``); times the ledger recorded are aware UTC
 ``datetime``s (``*_at``).
 """
@@ -176,7 +176,7 @@ class Cylinder:
     id: str
     refrigerant: str
     kind: CylinderKind
-    tare_mg: int | None = None
+    tare_ng: int | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -188,16 +188,16 @@ class Event:
     kind: EventKind
     performed_on: date
     recorded_at: datetime | None = None
-    mass_mg: int | None = None  # added / recovered / recovered at retirement
+    mass_ng: int | None = None  # added / recovered / recovered at retirement
     refrigerant: str | None = None  # in-service and retrofit
-    charge_mg: int | None = None  # in-service, charge-revised, retrofit
+    charge_ng: int | None = None  # in-service, charge-revised, retrofit
     result: str | None = None  # CheckResult or FollowUpResult value
     location: str | None = None  # where the leak was found / repaired
     method: str | None = None  # leak check method (direct, indirect, detector...)
     destination: str | None = None  # Destination of recovered gas
     cylinder_id: str | None = None
-    cylinder_before_mg: int | None = None
-    cylinder_after_mg: int | None = None
+    cylinder_before_ng: int | None = None
+    cylinder_after_ng: int | None = None
     technician: str | None = None  # name of who did the work
     company: str | None = None
     certificate: str | None = None  # "scheme number (category)" valid on the day, if any
@@ -216,7 +216,7 @@ class SystemState:
 
     in_service: bool
     refrigerant: str | None
-    full_charge_mg: int
+    full_charge_ng: int
     detection_system: bool
     in_service_on: date | None
     retired_on: date | None

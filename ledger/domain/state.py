@@ -45,7 +45,7 @@ def fold_days(kept: tuple[Event, ...], *, every_day: bool = True) -> Iterator[tu
     """
     in_service = False
     refrigerant: str | None = None
-    charge_mg = 0
+    charge_ng = 0
     detection = False
     in_service_on = retired_on = last_check = last_repair = since = None
     open_leaks: list[int] = []
@@ -54,12 +54,12 @@ def fold_days(kept: tuple[Event, ...], *, every_day: bool = True) -> Iterator[tu
         match e.kind:
             case EventKind.IN_SERVICE:
                 in_service, in_service_on, since = True, e.performed_on, e.performed_on
-                refrigerant, charge_mg = e.refrigerant, e.charge_mg or 0
+                refrigerant, charge_ng = e.refrigerant, e.charge_ng or 0
             case EventKind.RETROFIT:
                 refrigerant, since = e.refrigerant, e.performed_on
-                charge_mg = e.charge_mg or charge_mg
+                charge_ng = e.charge_ng or charge_ng
             case EventKind.CHARGE_REVISED:
-                charge_mg = e.charge_mg or charge_mg
+                charge_ng = e.charge_ng or charge_ng
             case EventKind.CHECK:
                 last_check = e.performed_on
                 if e.result == CheckResult.LEAK_FOUND:
@@ -79,7 +79,7 @@ def fold_days(kept: tuple[Event, ...], *, every_day: bool = True) -> Iterator[tu
             yield i, SystemState(
                 in_service=in_service,
                 refrigerant=refrigerant,
-                full_charge_mg=charge_mg,
+                full_charge_ng=charge_ng,
                 detection_system=detection,
                 in_service_on=in_service_on,
                 retired_on=retired_on,
@@ -92,7 +92,7 @@ def fold_days(kept: tuple[Event, ...], *, every_day: bool = True) -> Iterator[tu
 
 
 EMPTY_STATE = SystemState(
-    in_service=False, refrigerant=None, full_charge_mg=0, detection_system=False, in_service_on=None,
+    in_service=False, refrigerant=None, full_charge_ng=0, detection_system=False, in_service_on=None,
     retired_on=None, last_check_on=None, last_repair_on=None, open_leaks=(), refrigerant_since=None,
 )
 

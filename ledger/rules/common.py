@@ -23,7 +23,7 @@ from decimal import ROUND_DOWN, ROUND_HALF_UP, Decimal
 from typing import Any, Protocol
 
 from ledger.domain.dates import add_months, quarter_end
-from ledger.domain.leak_rate import ANNUALIZING, METHODS, MG_PER_KG, MG_PER_LB, LeakRate, leak_rates
+from ledger.domain.leak_rate import ANNUALIZING, METHODS, NG_PER_KG, NG_PER_LB, LeakRate, leak_rates
 from ledger.domain.records import (
     Application,
     Basis,
@@ -47,8 +47,8 @@ from ledger.errors import LedgerError
 __all__ = [
     "BELOW_THRESHOLD",
     "EXEMPT",
-    "MG_PER_KG",
-    "MG_PER_LB",
+    "NG_PER_KG",
+    "NG_PER_LB",
     "MONTH",
     "NOT_IN_SERVICE",
     "OUT_OF_SCOPE",
@@ -153,17 +153,17 @@ class RegimeModule(Protocol):
 # --- masses ---------------------------------------------------------------------------------
 
 
-def kg_of(mass_mg: int) -> Decimal:
-    """Exact kilograms of a milligram mass."""
-    return Decimal(mass_mg) / MG_PER_KG
+def kg_of(mass_ng: int) -> Decimal:
+    """Exact kilograms of a nanogram mass."""
+    return Decimal(mass_ng) / NG_PER_KG
 
 
-def at_least_lb(mass_mg: int, pounds: Decimal | int) -> bool:
-    """True when a mass is at least ``pounds`` lb, compared exactly in milligrams.
+def at_least_lb(mass_ng: int, pounds: Decimal | int) -> bool:
+    """True when a mass is at least ``pounds`` lb, compared exactly in nanograms.
 
-    50 lb is 22 679 618.5 mg, so 22 679 618 mg is below it and 22 679 619 mg is not.
+    50 lb is 22 679 618 500 000 ng, so 22 679 618 499 999 ng is below it.
     """
-    return Decimal(mass_mg) >= Decimal(pounds) * MG_PER_LB
+    return Decimal(mass_ng) >= Decimal(pounds) * NG_PER_LB
 
 
 def _truncate(value: Decimal, places: int) -> str:
@@ -182,14 +182,15 @@ def fmt_kg(kilograms: Decimal) -> str:
     return f"{_truncate(kilograms, 3)} kg"
 
 
-def fmt_lb(mass_mg: int) -> str:
-    """Pounds of a milligram mass for a sentence: two decimals, truncated.
+def fmt_lb(mass_ng: int) -> str:
+    """Pounds of a nanogram mass for a sentence: two decimals, truncated.
 
-    A mass typed in pounds is stored to the nearest milligram (half a milligram is about
-    1.1e-6 lb), so the value is first rounded to 5 decimals: 620 lb shows as 620.00 lb, not
+    A mass typed in pounds is exact, but one recorded before migration 0004 was kept to the
+    nearest milligram (half a milligram is about 1.1e-6 lb), so the value is first rounded to
+    5 decimals: 620 lb shows as 620.00 lb, not
     619.99 lb, while a mass really below a threshold still never shows as the threshold.
     """
-    pounds = (Decimal(mass_mg) / MG_PER_LB).quantize(Decimal("0.00001"), rounding=ROUND_HALF_UP)
+    pounds = (Decimal(mass_ng) / NG_PER_LB).quantize(Decimal("0.00001"), rounding=ROUND_HALF_UP)
     return f"{_truncate(pounds, 2)} lb"
 
 
@@ -678,7 +679,7 @@ def history_findings(
                     f"refrigerant {e.refrigerant!r} (event {e.id}) is not in the reference "
                     "data: no regime can tier this system",
                     Severity.WARNING, "refrigerant"))
-        if e.kind is EventKind.IN_SERVICE and not e.charge_mg:
+        if e.kind is EventKind.IN_SERVICE and not e.charge_ng:
             found.append(Finding(source, f"full charge not recorded (event {e.id}): the system "
                                  "is tiered as holding nothing", Severity.WARNING, "charge"))
     return found
@@ -1035,7 +1036,7 @@ def leak_rate_obligations(
         if not st.in_service:
             return None
         if (history.system.application in _QUARTERLY_APPLICATIONS
-                and at_least_lb(st.full_charge_mg, rule.inspection_quarterly_lb)):
+                and at_least_lb(st.full_charge_ng, rule.inspection_quarterly_lb)):
             return Cadence("quarterly leak inspection after a leak-rate exceedance (commercial "
                            "or industrial process refrigeration, "
                            f"≥ {rule.inspection_quarterly_lb} lb)",
@@ -1068,12 +1069,12 @@ def leak_rate_obligations(
     reported: set[int] = set()
     for r in rows:
         year = r.added_on.year
-        totals[year] = totals.get(year, 0) + r.added_mg
-        if year in reported or r.full_charge_mg <= 0:
+        totals[year] = totals.get(year, 0) + r.added_ng
+        if year in reported or r.full_charge_ng <= 0:
             continue
-        if Decimal(totals[year]) * 100 >= rule.report_percent * r.full_charge_mg:
+        if Decimal(totals[year]) * 100 >= rule.report_percent * r.full_charge_ng:
             reported.add(year)
-            share = Decimal(totals[year]) * 100 / r.full_charge_mg
+            share = Decimal(totals[year]) * 100 / r.full_charge_ng
             add(ObligationKind.REPORT, date(year + 1, 3, 1), rule.report_basis, None, r.event_id,
                 f"report a chronically leaking appliance: {_pct(share)} % of the full charge "
                 f"added in {year} (≥ {rule.report_percent.normalize():f} %); record the filing "

@@ -150,7 +150,7 @@ CONSTANTS: tuple[Constant, ...] = (
 _EXACT = Context(prec=60)
 
 
-def annex_i_co2e_t(reference: ReferenceLike, designation: str, charge_mg: int) -> Decimal:
+def annex_i_co2e_t(reference: ReferenceLike, designation: str, charge_ng: int) -> Decimal:
     """Tonnes CO2e of the Annex I gases in a charge, exactly.
 
     Art 5(1) counts "fluorinated greenhouse gases listed in Annex I" in CO2e, so for a
@@ -161,7 +161,7 @@ def annex_i_co2e_t(reference: ReferenceLike, designation: str, charge_mg: int) -
     Args:
         reference: the refrigerant tables.
         designation: a designation the reference knows.
-        charge_mg: the full charge.
+        charge_ng: the full charge.
     """
     with localcontext(_EXACT):
         per_kg = Decimal(0)
@@ -170,7 +170,7 @@ def annex_i_co2e_t(reference: ReferenceLike, designation: str, charge_mg: int) -
             gwp = component.gwp.get(GWP_BASIS)
             if component.eu_annex == "I" and gwp is not None:
                 per_kg += Decimal(percent) / 100 * Decimal(gwp)
-        return kg_of(charge_mg) * per_kg / 1000
+        return kg_of(charge_ng) * per_kg / 1000
 
 
 def _band(value: Decimal, bands: Sequence[tuple[Decimal, int, str]]) -> tuple[int, str] | None:
@@ -187,15 +187,15 @@ def assess(reference: ReferenceLike, system: System, state: SystemState, day: da
     and residential flags and whether Annex II gases count yet, so an estate's thousands of
     (system, day) questions reduce to a few distinct answers.
     """
-    return _assess_memo(reference, state.refrigerant, state.full_charge_mg, state.detection_system,
+    return _assess_memo(reference, state.refrigerant, state.full_charge_ng, state.detection_system,
                         system.hermetic, system.residential, day >= APPLIES_FROM)
 
 
 @lru_cache(maxsize=1 << 16)
-def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_mg: int, detection: bool,
+def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_ng: int, detection: bool,
                  hermetic: bool, residential: bool, counts_ii: bool) -> Assessment:
     system = System(id=0, site_code="", tag="", hermetic=hermetic, residential=residential)
-    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_mg=charge_mg,
+    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_ng=charge_ng,
                     detection_system=detection)
     return _assess(reference, system, state, APPLIES_FROM if counts_ii else APPLIES_FROM - timedelta(days=1))
 
@@ -228,8 +228,8 @@ def _assess(reference: ReferenceLike, system: System, state: SystemState, day: d
         return Assessment(OUT_OF_SCOPE, why, B_SCOPE, None, in_scope=False)
 
     counts_ii = day >= APPLIES_FROM
-    charge_kg = kg_of(state.full_charge_mg)
-    tonnes = annex_i_co2e_t(reference, designation, state.full_charge_mg)
+    charge_kg = kg_of(state.full_charge_ng)
+    tonnes = annex_i_co2e_t(reference, designation, state.full_charge_ng)
     kg_ii = charge_kg * part_ii
     figures = []
     if part_i > 0:

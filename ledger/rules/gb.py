@@ -143,15 +143,15 @@ def _band(value: Decimal, bands: Sequence[tuple[Decimal, int, str]]) -> tuple[in
 
 def assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
     """The leak-check band of an in-service system (memoised ``_assess``; see eu.assess)."""
-    return _assess_memo(reference, state.refrigerant, state.full_charge_mg, state.detection_system,
+    return _assess_memo(reference, state.refrigerant, state.full_charge_ng, state.detection_system,
                         system.hermetic, system.residential)
 
 
 @lru_cache(maxsize=1 << 16)
-def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_mg: int, detection: bool,
+def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_ng: int, detection: bool,
                  hermetic: bool, residential: bool) -> Assessment:
     system = System(id=0, site_code="", tag="", hermetic=hermetic, residential=residential)
-    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_mg=charge_mg,
+    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_ng=charge_ng,
                     detection_system=detection)
     return _assess(reference, system, state, APPLIES_FROM)
 
@@ -180,7 +180,7 @@ def _assess(reference: ReferenceLike, system: System, state: SystemState, day: d
             why = f"{designation} is neither a fluorinated gas nor ozone-depleting: out of scope"
         return Assessment(OUT_OF_SCOPE, why, B_SCOPE, None, in_scope=False)
 
-    charge_kg = kg_of(state.full_charge_mg)
+    charge_kg = kg_of(state.full_charge_ng)
     # Art 4(1) counts the whole mixture once it contains an Annex I gas (Annex IV method).
     tonnes = charge_kg * Decimal(reference.gwp(designation, GWP_BASIS).value) / 1000
     kg_ods = charge_kg * part_ods

@@ -90,7 +90,7 @@ B_REPORT = Basis("40 CFR 82.157(j)", Confidence.SECONDARY,
                  "next year (EPA fact sheet)")
 
 APPLIES_FROM = date(2020, 4, 10)
-FULL_CHARGE_LB = Decimal(50)  # = 22 679 618.5 mg exactly
+FULL_CHARGE_LB = Decimal(50)  # = 22 679 618 500 000 ng exactly
 REPAIR_DAYS = 30
 VERIFICATION_DAYS = 10
 INSPECTION_QUARTERLY_LB = Decimal(500)
@@ -129,7 +129,7 @@ def covers(reference: ReferenceLike, state: SystemState) -> bool:
     """True when an in-service state is an ODS appliance of 50 lb or more."""
     designation = resolve(reference, state.refrigerant)
     return (designation is not None and is_ods(reference, designation)
-            and at_least_lb(state.full_charge_mg, FULL_CHARGE_LB))
+            and at_least_lb(state.full_charge_ng, FULL_CHARGE_LB))
 
 
 def rule(reference: ReferenceLike) -> LeakRateRule:
@@ -173,8 +173,8 @@ def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Ti
     if not is_ods(reference, designation):
         return Tier(REGIME, OUT_OF_SCOPE, None, B_APPLIES,
                     f"{designation} is not ozone-depleting: out of scope of Subpart F")
-    charge = fmt_lb(state.full_charge_mg)
-    if not at_least_lb(state.full_charge_mg, FULL_CHARGE_LB):
+    charge = fmt_lb(state.full_charge_ng)
+    if not at_least_lb(state.full_charge_ng, FULL_CHARGE_LB):
         return Tier(REGIME, BELOW_THRESHOLD, None, B_APPLIES,
                     f"{designation}, {charge} full charge: under 50 lb")
     threshold = THRESHOLD_PERCENT[history.system.application]

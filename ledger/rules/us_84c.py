@@ -94,7 +94,7 @@ B_DETECTION = Basis(_SUBPART, Confidence.MEMORY,
 
 APPLIES_FROM = date(2026, 1, 1)
 GWP_ABOVE = Decimal(53)
-FULL_CHARGE_LB = Decimal(15)  # = 6 803 885.55 mg exactly
+FULL_CHARGE_LB = Decimal(15)  # = 6 803 885 550 000 ng exactly
 REPAIR_DAYS = 30
 VERIFICATION_DAYS = 10
 INSPECTION_QUARTERLY_LB = Decimal(500)
@@ -147,8 +147,8 @@ def _excluded_reason(reference: ReferenceLike, history: SystemHistory,
         unlisted = getattr(figure, "unlisted", ())
         note = f" ({', '.join(unlisted)} not listed in AR4, counted as 0)" if unlisted else ""
         return OUT_OF_SCOPE, f"{designation} has GWP {gwp.normalize():f}{note}, not above 53"
-    if not at_least_lb(state.full_charge_mg, FULL_CHARGE_LB):
-        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_mg)} full charge: "
+    if not at_least_lb(state.full_charge_ng, FULL_CHARGE_LB):
+        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_ng)} full charge: "
                                  "under 15 lb")
     return None
 
@@ -197,7 +197,7 @@ def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Ti
     threshold = THRESHOLD_PERCENT[history.system.application]
     when = "" if as_of >= APPLIES_FROM else "; duties start on 1 January 2026"
     return Tier(REGIME, "≥ 15 lb, GWP > 53", None, B_THRESHOLDS,
-                f"{designation}, {fmt_lb(state.full_charge_mg)} full charge; leak rate at each "
+                f"{designation}, {fmt_lb(state.full_charge_ng)} full charge; leak rate at each "
                 f"addition against {threshold} % ({history.system.application.value}){when}")
 
 
@@ -214,7 +214,7 @@ def _detection_obligations(history: SystemHistory, reference: ReferenceLike,
     def required_at(day: date) -> bool:
         st = timeline.state(day)
         return (st.in_service and history.system.application in DETECTION_APPLICATIONS
-                and at_least_lb(st.full_charge_mg, DETECTION_LB)
+                and at_least_lb(st.full_charge_ng, DETECTION_LB)
                 and covers(reference, history, st))
 
     def present_at(day: date) -> bool:

@@ -33,8 +33,8 @@ from ledger.domain.records import (
 from ledger.domain.state import state_of
 from ledger.rules.common import (
     BELOW_THRESHOLD,
-    MG_PER_LB,
     MONTH,
+    NG_PER_LB,
     OUT_OF_SCOPE,
     QUARTER,
     UNKNOWN_REFRIGERANT,
@@ -106,8 +106,8 @@ CONSTANTS: tuple[Constant, ...] = (
 )
 
 
-def _over_lb(mass_mg: int, pounds: Decimal) -> bool:
-    return Decimal(mass_mg) > pounds * MG_PER_LB
+def _over_lb(mass_ng: int, pounds: Decimal) -> bool:
+    return Decimal(mass_ng) > pounds * NG_PER_LB
 
 
 def _excluded(reference: ReferenceLike, state: SystemState) -> tuple[str, str] | None:
@@ -121,16 +121,16 @@ def _excluded(reference: ReferenceLike, state: SystemState) -> tuple[str, str] |
         unlisted = getattr(figure, "unlisted", ())
         note = f" ({', '.join(unlisted)} not listed in AR4, counted as 0)" if unlisted else ""
         return OUT_OF_SCOPE, f"{designation} has GWP {gwp.normalize():f}{note}, under 150"
-    if not _over_lb(state.full_charge_mg, SYSTEM_OVER_LB):
-        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_mg)}: not over 50 lb")
+    if not _over_lb(state.full_charge_ng, SYSTEM_OVER_LB):
+        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_ng)}: not over 50 lb")
     return None
 
 
-def size_of(full_charge_mg: int) -> str:
+def size_of(full_charge_ng: int) -> str:
     """Size class of a covered system (or of a facility, by its largest system)."""
-    if at_least_lb(full_charge_mg, LARGE_LB):
+    if at_least_lb(full_charge_ng, LARGE_LB):
         return "large"
-    if at_least_lb(full_charge_mg, MEDIUM_LB):
+    if at_least_lb(full_charge_ng, MEDIUM_LB):
         return "medium"
     return "small"
 
@@ -139,13 +139,13 @@ def cadence_of(reference: ReferenceLike, state: SystemState) -> Cadence | None:
     """The inspection cadence of a system in a state, or None when not covered (95385)."""
     if not state.in_service or _excluded(reference, state) is not None:
         return None
-    if at_least_lb(state.full_charge_mg, LARGE_LB):
+    if at_least_lb(state.full_charge_ng, LARGE_LB):
         if state.detection_system:
             return Cadence("quarterly leak inspection (≥ 2 000 lb, automatic leak detection)",
                            B_INSPECTION, period=QUARTER)
         return Cadence("monthly leak inspection (≥ 2 000 lb, no automatic leak detection)",
                        B_INSPECTION, period=MONTH)
-    if at_least_lb(state.full_charge_mg, MEDIUM_LB):
+    if at_least_lb(state.full_charge_ng, MEDIUM_LB):
         return Cadence("quarterly leak inspection (200 to < 2 000 lb)", B_INSPECTION,
                        period=QUARTER)
     return Cadence("annual leak inspection (> 50 to < 200 lb)", B_INSPECTION, period=YEAR)
@@ -171,11 +171,11 @@ def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Ti
         return Tier(REGIME, excluded[0], None, B_SCOPE, excluded[1])
     cadence = cadence_of(reference, state)
     assert cadence is not None and cadence.period is not None
-    size = size_of(state.full_charge_mg)
+    size = size_of(state.full_charge_ng)
     band = {"large": "≥ 2 000 lb", "medium": "200–2 000 lb", "small": "50–200 lb"}[size]
     designation = resolve(reference, state.refrigerant)
     return Tier(REGIME, band, _MONTHS[cadence.period], B_INSPECTION,
-                f"{designation}, {fmt_lb(state.full_charge_mg)}: {cadence.label}")
+                f"{designation}, {fmt_lb(state.full_charge_ng)}: {cadence.label}")
 
 
 def _system_obligations(history: SystemHistory, reference: ReferenceLike,
@@ -239,8 +239,8 @@ def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLik
                 continue
         if _excluded(reference, st) is not None:
             continue
-        if best is None or st.full_charge_mg > best[0]:
-            best = (st.full_charge_mg, h.system.tag)
+        if best is None or st.full_charge_ng > best[0]:
+            best = (st.full_charge_ng, h.system.tag)
     return best
 
 

@@ -2,7 +2,7 @@
 
 Layout of an export folder:
 * ``<table>.jsonl``: one JSON object per row, every column, in primary-key order; dates as
-  ``YYYY-MM-DD``, times as ISO 8601 UTC, masses as integers (mg);
+  ``YYYY-MM-DD``, times as ISO 8601 UTC, masses as integers (ng);
 * ``manifest.json``: format version, schema revision, export time, and per table the row
   count and the SHA-256 of its file, plus the digest of all chain heads.
 
@@ -187,11 +187,11 @@ def restore_ledger(folder: Path, location: Location) -> BackupResult:
 # ---- the records as an import workbook ------------------------------------------------------
 
 
-def _mass_text(mg: int | None) -> str:
-    """Exact kg text for a mass (the import parses it back to the same milligram)."""
-    if mg is None:
+def _mass_text(ng: int | None) -> str:
+    """Exact kg text for a mass (the import parses it back to the same nanogram)."""
+    if ng is None:
         return ""
-    text = format(Decimal(mg) / 1_000_000, "f")
+    text = format(Decimal(ng) / 10**12, "f")
     if "." in text:
         text = text.rstrip("0").rstrip(".")
     return f"{text} kg"
@@ -237,7 +237,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
             })
     for cy in cylinders:
         sheets["cylinders"].append({"id": cy.id, "refrigerant": cy.refrigerant, "kind": cy.kind.value,
-                                    "tare": _mass_text(cy.tare_mg)})
+                                    "tare": _mass_text(cy.tare_ng)})
     for h in histories:
         placed = next((e for e in h.events if e.kind is EventKind.IN_SERVICE), None)
         if placed is None:
@@ -245,7 +245,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
         sy = h.system
         sheets["systems"].append({
             "site": h.site.code, "tag": sy.tag, "refrigerant": placed.refrigerant or "",
-            "charge": _mass_text(placed.charge_mg), "application": sy.application.value,
+            "charge": _mass_text(placed.charge_ng), "application": sy.application.value,
             "in_service": placed.performed_on.isoformat(), "form": sy.equipment_form.value,
             "description": sy.description, "hermetic": "yes" if sy.hermetic else "no",
             "residential": "yes" if sy.residential else "no", "detection_system": "no",
@@ -257,14 +257,14 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
         for e in sorted(h.events, key=lambda e: e.id):
             if e.kind is EventKind.IN_SERVICE:
                 continue
-            weighed = e.cylinder_before_mg is not None and e.cylinder_after_mg is not None
+            weighed = e.cylinder_before_ng is not None and e.cylinder_after_ng is not None
             sheets["events"].append({
                 "site": h.site.code, "tag": sy.tag, "kind": e.kind.value, "on": e.performed_on.isoformat(),
-                "mass": "" if weighed else _mass_text(e.mass_mg),
+                "mass": "" if weighed else _mass_text(e.mass_ng),
                 "cylinder": e.cylinder_id or "",
-                "before": _mass_text(e.cylinder_before_mg) if weighed else "",
-                "after": _mass_text(e.cylinder_after_mg) if weighed else "",
-                "refrigerant": e.refrigerant or "", "charge": _mass_text(e.charge_mg),
+                "before": _mass_text(e.cylinder_before_ng) if weighed else "",
+                "after": _mass_text(e.cylinder_after_ng) if weighed else "",
+                "refrigerant": e.refrigerant or "", "charge": _mass_text(e.charge_ng),
                 "result": e.result or "", "where": e.location or "", "method": e.method or "",
                 "destination": e.destination or "", "reclaimed": "yes" if e.reclaimed else "",
                 "tech": e.technician or "", "by": e.recorded_by or "", "note": e.note,

@@ -9,7 +9,7 @@ from ledger.reference import load_reference, round_half_up
 from ledger.services.recording import site_today
 from ledger.store import repository as repo
 from ledger.store.db import Database
-from ledger.units import format_mass, mg_to_kg
+from ledger.units import format_mass, ng_to_kg
 
 
 def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict[str, Any]]:
@@ -25,15 +25,15 @@ def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict
         basis = REGIMES[h.site.regimes[0]].GWP_BASIS if h.site.regimes else "ar4"
         co2e = None
         if state.refrigerant:
-            co2e = mg_to_kg(state.full_charge_mg) * reference.gwp(state.refrigerant, basis).value / 1000
+            co2e = ng_to_kg(state.full_charge_ng) * reference.gwp(state.refrigerant, basis).value / 1000
         rows.append(
             {
                 "site": h.site.code,
                 "tag": h.system.tag,
                 "application": h.system.application.value,
                 "refrigerant": state.refrigerant,
-                "full_charge_kg": mg_to_kg(state.full_charge_mg),
-                "charge": format_mass(state.full_charge_mg, h.site.mass_unit, 1),
+                "full_charge_kg": ng_to_kg(state.full_charge_ng),
+                "charge": format_mass(state.full_charge_ng, h.site.mass_unit, 1),
                 "gwp_basis": basis,
                 "co2e_t": co2e,
                 "co2e_t_display": "" if co2e is None else str(round_half_up(co2e, 2)),

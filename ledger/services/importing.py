@@ -19,7 +19,7 @@ from datetime import UTC, date, datetime
 from pathlib import Path
 from typing import Any
 
-from ledger.domain.drafts import EventDraft, cylinder_mass_mg, validate_event
+from ledger.domain.drafts import EventDraft, cylinder_mass_ng, validate_event
 from ledger.domain.records import (
     Application,
     Certificate,
@@ -39,7 +39,7 @@ from ledger.reference import load_reference
 from ledger.store import chain
 from ledger.store import repository as repo
 from ledger.store.db import Database
-from ledger.units import parse_mass_mg
+from ledger.units import parse_mass_ng
 
 ORDER = ("sites", "technicians", "cylinders", "systems", "events")
 
@@ -306,7 +306,7 @@ class _Cells:
         if not value:
             return None
         try:
-            return parse_mass_mg(value, field=column, allow_zero=allow_zero)
+            return parse_mass_ng(value, field=column, allow_zero=allow_zero)
         except LedgerError as exc:
             self.fail(column, str(exc).split(": ", 1)[-1].replace(repr(value) + " ", ""))
             return None
@@ -551,7 +551,7 @@ class _Job:
                     self.summary.skipped["cylinders"] += 1
                 continue
             repo.insert_cylinder(
-                conn=self.conn, values={"code": code, "refrigerant": refrigerant, "kind": kind, "tare_mg": tare}
+                conn=self.conn, values={"code": code, "refrigerant": refrigerant, "kind": kind, "tare_ng": tare}
             )
             known[code] = Cylinder(code, refrigerant or "", CylinderKind(kind or "virgin"), tare)
             self.summary.added["cylinders"] += 1
@@ -626,7 +626,7 @@ class _Job:
                 "recorded_at": recorded_at or self.now,
             }
             repo.append_event(
-                conn=self.conn, values={**common, "kind": "in-service", "refrigerant": refrigerant, "charge_mg": charge}
+                conn=self.conn, values={**common, "kind": "in-service", "refrigerant": refrigerant, "charge_ng": charge}
             )
             if flags["detection_system"]:
                 repo.append_event(conn=self.conn, values={**common, "kind": "detection-on"})
@@ -754,18 +754,18 @@ class _Job:
             draft = EventDraft(
                 kind=kind,
                 performed_on=on,
-                mass_mg=c.mass("mass", allow_zero=kind is EventKind.RETIRE) if cells.get("mass") else None,
+                mass_ng=c.mass("mass", allow_zero=kind is EventKind.RETIRE) if cells.get("mass") else None,
                 refrigerant=c.refrigerant("refrigerant", required=kind is EventKind.RETROFIT)
                 if cells.get("refrigerant") or kind is EventKind.RETROFIT
                 else None,
-                charge_mg=c.mass("charge", required=charge_needed) if cells.get("charge") or charge_needed else None,
+                charge_ng=c.mass("charge", required=charge_needed) if cells.get("charge") or charge_needed else None,
                 result=text("result") or None,
                 location=text("where") or None,
                 method=text("method") or None,
                 destination=text("destination") or None,
                 cylinder_code=text("cylinder") or None,
-                cylinder_before_mg=c.mass("before") if cells.get("before") else None,
-                cylinder_after_mg=c.mass("after") if cells.get("after") else None,
+                cylinder_before_ng=c.mass("before") if cells.get("before") else None,
+                cylinder_after_ng=c.mass("after") if cells.get("after") else None,
                 technician=text("tech") or None,
                 recorded_by=text("by") or text("tech") or None,
                 note=text("note") or "",
@@ -780,9 +780,9 @@ class _Job:
                 c.fail("cylinder", "is not a cylinder in the ledger or the input")
             if c.bad:
                 continue
-            mass, weight_findings = cylinder_mass_mg(draft)
-            if mass != draft.mass_mg:
-                draft = replace(draft, mass_mg=mass)
+            mass, weight_findings = cylinder_mass_ng(draft)
+            if mass != draft.mass_ng:
+                draft = replace(draft, mass_ng=mass)
             fold = settled.get(sid)
             if fold is None:
                 counted = folds[sid]
@@ -834,16 +834,16 @@ class _Job:
                     "kind": kind.value,
                     "performed_on": on.isoformat(),
                     "recorded_at": recorded_text,
-                    "mass_mg": draft.mass_mg,
+                    "mass_ng": draft.mass_ng,
                     "refrigerant": refrigerant,
-                    "charge_mg": draft.charge_mg,
+                    "charge_ng": draft.charge_ng,
                     "result": draft.result,
                     "location": draft.location,
                     "method": draft.method,
                     "destination": draft.destination,
                     "cylinder": draft.cylinder_code,
-                    "cylinder_before_mg": draft.cylinder_before_mg,
-                    "cylinder_after_mg": draft.cylinder_after_mg,
+                    "cylinder_before_ng": draft.cylinder_before_ng,
+                    "cylinder_after_ng": draft.cylinder_after_ng,
                     "technician": draft.technician,
                     "certificate": cert_key,
                     "recorded_by": draft.recorded_by,
@@ -858,9 +858,9 @@ class _Job:
             heads[sid] = chain_hash
             pending.append(
                 (  # in _EVENT_COLUMNS order
-                    sid, kind.value, on, recorded_at, draft.mass_mg, refrigerant, draft.charge_mg, draft.result,
+                    sid, kind.value, on, recorded_at, draft.mass_ng, refrigerant, draft.charge_ng, draft.result,
                     draft.location, draft.method, draft.destination, cylinder_ids.get(draft.cylinder_code or ""),
-                    draft.cylinder_before_mg, draft.cylinder_after_mg, tech_id, cert_id, draft.recorded_by,
+                    draft.cylinder_before_ng, draft.cylinder_after_ng, tech_id, cert_id, draft.recorded_by,
                     draft.note, attached, reclaimed, key, voids_id, draft.reason, prev, chain_hash,
                 )
             )
@@ -875,9 +875,9 @@ class _Job:
                         system_id=sid,
                         kind=kind,
                         performed_on=on,
-                        mass_mg=draft.mass_mg,
+                        mass_ng=draft.mass_ng,
                         refrigerant=refrigerant,
-                        charge_mg=draft.charge_mg,
+                        charge_ng=draft.charge_ng,
                         result=draft.result,
                         voids_id=voids_id,
                     )
@@ -959,8 +959,8 @@ class _Job:
 
 # The columns an imported event row is written with, in the order _Job.events builds them.
 _EVENT_COLUMNS = (
-    "system_id", "kind", "performed_on", "recorded_at", "mass_mg", "refrigerant", "charge_mg", "result",
-    "location", "method", "destination", "cylinder_id", "cylinder_before_mg", "cylinder_after_mg",
+    "system_id", "kind", "performed_on", "recorded_at", "mass_ng", "refrigerant", "charge_ng", "result",
+    "location", "method", "destination", "cylinder_id", "cylinder_before_ng", "cylinder_after_ng",
     "technician_id", "certificate_id", "recorded_by", "note", "attachments", "reclaimed", "content_key",
     "voids_id", "reason", "prev_hash", "chain_hash",
 )
@@ -969,10 +969,12 @@ _FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RET
 _KINDS = {k.value: k for k in EventKind}
 _KIND_CHOICES = sorted(k.value for k in IMPORT_KINDS)
 _IMPORTED = {k.value: k for k in IMPORT_KINDS}
-# chain.canonical's JSON object: its keys in sorted order, each with what precedes its value
+# chain.canonical's JSON object: its keys in sorted order, with the row key each is read from
+# and whether it is left out when null (chain.OPTIONAL_FIELDS)
 _CANONICAL = tuple(
-    (("{" if i == 0 else ",") + _quote(name) + ":", name)
-    for i, name in enumerate(sorted((*chain.CANONICAL_FIELDS, "v")))
+    (_quote(name) + ":", chain.LEGACY_MASS_KEYS.get(name, name), name in chain.LEGACY_MASS_KEYS,
+     name in chain.OPTIONAL_FIELDS)
+    for name in sorted((*chain.CANONICAL_FIELDS, *chain.OPTIONAL_FIELDS, "v"))
 )
 
 
@@ -982,15 +984,18 @@ def _utc_text(moment: datetime) -> str:
 
 
 def _chain_link(prev_hash: str, body: dict[str, Any]) -> str:
-    """``chain.link`` of a body that holds ``chain.CANONICAL_FIELDS`` and ``v`` (the chain
-    version) as the plain values ``chain.canonical`` makes of them (text, integers, None)."""
-    text = "".join(
-        [
-            opener + ("null" if (v := body[name]) is None else _quote(v) if type(v) is str else _json_value(v))
-            for opener, name in _CANONICAL
-        ]
-    )
-    return hashlib.sha256(f"{prev_hash}\n{text}}}".encode()).hexdigest()
+    """``chain.link`` of a body that holds the row keys of ``chain.CANONICAL_FIELDS`` (masses
+    as ``*_ng``), optionally ``chain.OPTIONAL_FIELDS``, and ``v`` (the chain version), as the
+    plain values ``chain.canonical`` makes of them (text, integers, None)."""
+    parts = []
+    for key, source, is_mass, optional in _CANONICAL:
+        v = body.get(source)
+        if v is None and optional:
+            continue
+        if is_mass:
+            v = chain.legacy_mg(v)
+        parts.append(key + ("null" if v is None else _quote(v) if type(v) is str else _json_value(v)))
+    return hashlib.sha256(f"{prev_hash}\n{{{','.join(parts)}}}".encode()).hexdigest()
 
 
 def _json_value(value: Any) -> str:

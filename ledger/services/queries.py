@@ -15,12 +15,12 @@ from ledger.domain.state import state_of
 from ledger.reference import load_reference
 from ledger.store import repository as repo
 from ledger.store.db import Database
-from ledger.units import mg_to_kg, mg_to_lb
+from ledger.units import ng_to_kg, ng_to_lb
 
 
-def kg(mg: int | None) -> Decimal | None:
+def kg(ng: int | None) -> Decimal | None:
     """Exact kg for JSON output (None stays None)."""
-    return None if mg is None else mg_to_kg(mg)
+    return None if ng is None else ng_to_kg(ng)
 
 
 def sites(db: Database) -> list[dict[str, Any]]:
@@ -71,7 +71,7 @@ def cylinders(db: Database) -> list[dict[str, Any]]:
     """Every cylinder."""
     with db.read() as conn:
         return [
-            {"id": c.id, "refrigerant": c.refrigerant, "kind": c.kind.value, "tare_kg": kg(c.tare_mg)}
+            {"id": c.id, "refrigerant": c.refrigerant, "kind": c.kind.value, "tare_kg": kg(c.tare_ng)}
             for c in repo.list_cylinders(conn=conn)
         ]
 
@@ -84,16 +84,16 @@ def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
         "kind": e.kind.value,
         "performed_on": e.performed_on,
         "recorded_at": e.recorded_at,
-        "mass_kg": kg(e.mass_mg),
+        "mass_kg": kg(e.mass_ng),
         "refrigerant": e.refrigerant,
-        "charge_kg": kg(e.charge_mg),
+        "charge_kg": kg(e.charge_ng),
         "result": e.result,
         "location": e.location,
         "method": e.method,
         "destination": e.destination,
         "cylinder": e.cylinder_id,
-        "cylinder_before_kg": kg(e.cylinder_before_mg),
-        "cylinder_after_kg": kg(e.cylinder_after_mg),
+        "cylinder_before_kg": kg(e.cylinder_before_ng),
+        "cylinder_after_kg": kg(e.cylinder_after_ng),
         "technician": e.technician,
         "company": e.company,
         "certificate": e.certificate,
@@ -150,7 +150,7 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
     gwp = None
     if state.refrigerant:
         gwp = reference.gwp(state.refrigerant, basis).value
-        co2e = mg_to_kg(state.full_charge_mg) * gwp / 1000
+        co2e = ng_to_kg(state.full_charge_ng) * gwp / 1000
     voided_by = {e.voids_id: e for e in history.events if e.voids_id is not None}
     obligations, findings = compute([history], as_of, evidence)
     current, _ = current_only(obligations)
@@ -165,8 +165,8 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
         "hermetic": sys_.hermetic,
         "refrigerant": state.refrigerant,
         "safety_class": ref.safety_class if ref else None,
-        "full_charge_kg": mg_to_kg(state.full_charge_mg),
-        "full_charge_lb": mg_to_lb(state.full_charge_mg),
+        "full_charge_kg": ng_to_kg(state.full_charge_ng),
+        "full_charge_lb": ng_to_lb(state.full_charge_ng),
         "unit": site.mass_unit,
         "gwp_basis": basis,
         "gwp": gwp,

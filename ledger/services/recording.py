@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from ledger.domain.drafts import EventDraft, cylinder_mass_mg, validate_event
+from ledger.domain.drafts import EventDraft, cylinder_mass_ng, validate_event
 from ledger.domain.records import (
     Application,
     Certificate,
@@ -140,7 +140,7 @@ def add_system(
     site_code: str,
     tag: str,
     refrigerant: str,
-    charge_mg: int,
+    charge_ng: int,
     application: str,
     in_service_on: date,
     hermetic: bool = False,
@@ -195,7 +195,7 @@ def add_system(
                 **common,
                 "kind": EventKind.IN_SERVICE.value,
                 "refrigerant": ref.designation,
-                "charge_mg": charge_mg,
+                "charge_ng": charge_ng,
                 "note": note,
             },
         )
@@ -244,14 +244,14 @@ def add_technician(
         repo.insert_technician(conn=conn, name=name.strip(), company_name=company, certificates=[cert])
 
 
-def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_mg: int | None) -> None:
+def add_cylinder(db: Database, *, code: str, refrigerant: str, kind: str, tare_ng: int | None) -> None:
     """Add a refrigerant cylinder."""
     ref = load_reference().lookup(refrigerant)
     the_kind = _enum(CylinderKind, kind, "--kind")
     with db.write() as conn:
         repo.insert_cylinder(
             conn=conn,
-            values={"code": code, "refrigerant": ref.designation, "kind": the_kind.value, "tare_mg": tare_mg},
+            values={"code": code, "refrigerant": ref.designation, "kind": the_kind.value, "tare_ng": tare_ng},
         )
 
 
@@ -285,9 +285,9 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
         NotFound: unknown site, system, technician or cylinder.
     """
     reference = load_reference()
-    mass_mg, weight_findings = cylinder_mass_mg(draft)
+    mass_ng, weight_findings = cylinder_mass_ng(draft)
     _raise_first_error(weight_findings)
-    draft = replace(draft, mass_mg=mass_mg)
+    draft = replace(draft, mass_ng=mass_ng)
     if draft.kind in (EventKind.RETROFIT,) and draft.refrigerant:
         draft = replace(draft, refrigerant=reference.lookup(draft.refrigerant).designation)
     with db.write() as conn:
@@ -321,16 +321,16 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
             "system_id": sys_.id,
             "kind": draft.kind.value,
             "performed_on": draft.performed_on,
-            "mass_mg": draft.mass_mg,
+            "mass_ng": draft.mass_ng,
             "refrigerant": draft.refrigerant if draft.kind is EventKind.RETROFIT else None,
-            "charge_mg": draft.charge_mg,
+            "charge_ng": draft.charge_ng,
             "result": draft.result,
             "location": draft.location,
             "method": draft.method,
             "destination": draft.destination,
             "cylinder_id": cyl_id,
-            "cylinder_before_mg": draft.cylinder_before_mg,
-            "cylinder_after_mg": draft.cylinder_after_mg,
+            "cylinder_before_ng": draft.cylinder_before_ng,
+            "cylinder_after_ng": draft.cylinder_after_ng,
             "technician_id": tech_id,
             "certificate_id": cert_id,
             "recorded_by": draft.recorded_by,

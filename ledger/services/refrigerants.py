@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from ledger.reference import BASES, load_reference, round_half_up
-from ledger.units import mg_to_kg
+from ledger.units import ng_to_kg
 
 
 def safety_caution(safety_class: str) -> str:
@@ -23,12 +23,12 @@ def safety_caution(safety_class: str) -> str:
     return "; ".join(parts) + ". Follow local codes, standards and licensed practice."
 
 
-def refrigerant_view(name: str, *, charge_mg: int | None = None) -> dict[str, Any]:
+def refrigerant_view(name: str, *, charge_ng: int | None = None) -> dict[str, Any]:
     """Everything the `refrigerant show` contract prints about one refrigerant.
 
     Args:
         name: any accepted spelling.
-        charge_mg: optional charge to convert to CO2e under each basis.
+        charge_ng: optional charge to convert to CO2e under each basis.
     """
     reference = load_reference()
     ref = reference.lookup(name)
@@ -49,8 +49,8 @@ def refrigerant_view(name: str, *, charge_mg: int | None = None) -> dict[str, An
         ],
         "caution": safety_caution(ref.safety_class),
     }
-    if charge_mg is not None:
-        charge_kg = mg_to_kg(charge_mg)
+    if charge_ng is not None:
+        charge_kg = ng_to_kg(charge_ng)
         co2e = {b: charge_kg * f.value / 1000 for b, f in figures.items()}
         view["charge_kg"] = charge_kg
         view["co2e_t"] = co2e

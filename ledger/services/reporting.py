@@ -2,10 +2,10 @@
 
 The database is read once per report (``load_histories``: three set-based queries, plus the
 cylinder list for logbooks); everything after that is plain Python over the loaded records.
-Masses are summed as integer milligrams and turned into exact ``Decimal`` kg at the end, so
-every total reconciles with the events to the milligram. The dicts returned here are the JSON
-contract of ``refledger report ... --json`` (docs/reports.md) and the input of the writers in
-``ledger.exports``.
+Masses are summed as integer nanograms (Python ints, which cannot overflow) and turned into
+exact ``Decimal`` kg at the end, so every total reconciles with the events to the nanogram.
+The dicts returned here are the JSON contract of ``refledger report ... --json``
+(docs/reports.md) and the input of the writers in ``ledger.exports``.
 """
 
 from __future__ import annotations
@@ -44,8 +44,9 @@ from ledger.store.db import Database
 _EXACT = Context(prec=60)
 _SHOW = Context(prec=28)
 # Derived figures are rounded half-up once, where they are made, so that the JSON, the
-# spreadsheet (15 significant digits) and the PDF show the same number: t CO2e and emission
-# estimates to the gram, percentages to 1e-4. Masses of record stay exact (whole mg).
+# spreadsheet (15 significant digits) and the PDF show the same number: t CO2e to the gram,
+# emission estimates in kg to the milligram, percentages to 1e-4. Masses of record stay exact
+# (whole ng).
 CO2E_PLACES = 6
 KG_PLACES = 6
 PERCENT_PLACES = 4
@@ -73,8 +74,8 @@ KIND_LABELS: Mapping[EventKind, str] = {
 }
 
 
-def _kg(mg: int | None) -> Decimal | None:
-    return None if mg is None else em.kg(mg)
+def _kg(ng: int | None) -> Decimal | None:
+    return None if ng is None else em.kg(ng)
 
 
 def rounded(value: Decimal | None, places: int) -> Decimal | None:
@@ -85,11 +86,11 @@ def rounded(value: Decimal | None, places: int) -> Decimal | None:
         return value.quantize(Decimal(1).scaleb(-places), rounding=ROUND_HALF_UP)
 
 
-def _percent(part_mg: int, whole_mg: int) -> Decimal | None:
-    if whole_mg <= 0:
+def _percent(part_ng: int, whole_ng: int) -> Decimal | None:
+    if whole_ng <= 0:
         return None
     with localcontext(_SHOW):
-        return rounded(Decimal(part_mg * 100) / Decimal(whole_mg), PERCENT_PLACES)
+        return rounded(Decimal(part_ng * 100) / Decimal(whole_ng), PERCENT_PLACES)
 
 
 def _sum(values: Iterable[Decimal]) -> Decimal:
@@ -211,26 +212,26 @@ def _obligation_row(
 # --- annual summary -------------------------------------------------------------------------
 
 _MASS_FIELDS = (
-    "charge_start_mg", "charge_end_mg", "last_charge_mg", "added_mg", "initial_fill_mg",
-    "recovered_mg", "new_charge_mg", "retired_charge_mg", "retired_recovered_mg",
+    "charge_start_ng", "charge_end_ng", "last_charge_ng", "added_ng", "initial_fill_ng",
+    "recovered_ng", "new_charge_ng", "retired_charge_ng", "retired_recovered_ng",
 )
 
 
 def _totals(flows: Sequence[em.Flow], gwp: _Gwp) -> dict[str, Any]:
-    """Integer-mg totals of flows plus exact CO2e of their service additions."""
+    """Integer-ng totals of flows plus exact CO2e of their service additions."""
     t: dict[str, Any] = {name: sum(getattr(f, name) for f in flows) for name in _MASS_FIELDS}
     to: dict[str, int] = defaultdict(int)
     for f in flows:
-        for where, mg in f.recovered_to:
-            to[where] += mg
+        for where, ng in f.recovered_to:
+            to[where] += ng
     t["recovered_to"] = dict(sorted(to.items()))
-    t["service_added_mg"] = t["added_mg"] - t["initial_fill_mg"]
-    t["net_loss_mg"] = sum(f.net_loss_mg for f in flows)
-    t["co2e_t"] = _sum(em.co2e_t(em.kg(f.service_added_mg), gwp(f.refrigerant)) for f in flows)
+    t["service_added_ng"] = t["added_ng"] - t["initial_fill_ng"]
+    t["net_loss_ng"] = sum(f.net_loss_ng for f in flows)
+    t["co2e_t"] = _sum(em.co2e_t(em.kg(f.service_added_ng), gwp(f.refrigerant)) for f in flows)
     return t
 
 
-_SUMMED = (*_MASS_FIELDS, "service_added_mg", "net_loss_mg")
+_SUMMED = (*_MASS_FIELDS, "service_added_ng", "net_loss_ng")
 
 
 def _merge_totals(parts: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
@@ -238,26 +239,26 @@ def _merge_totals(parts: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
     t: dict[str, Any] = {name: sum(p[name] for p in parts) for name in _SUMMED}
     to: dict[str, int] = defaultdict(int)
     for p in parts:
-        for where, mg in p["recovered_to"].items():
-            to[where] += mg
+        for where, ng in p["recovered_to"].items():
+            to[where] += ng
     t["recovered_to"] = dict(sorted(to.items()))
     t["co2e_t"] = _sum(p["co2e_t"] for p in parts)
     return t
 
 
-def _mass_view(t: Mapping[str, Any], full_charge_mg: int) -> dict[str, Any]:
-    """The kg keys of a summary row from integer-mg totals."""
+def _mass_view(t: Mapping[str, Any], full_charge_ng: int) -> dict[str, Any]:
+    """The kg keys of a summary row from integer-ng totals."""
     return {
-        "full_charge_kg": em.kg(full_charge_mg),
-        "full_charge_start_kg": em.kg(t["charge_start_mg"]),
-        "full_charge_end_kg": em.kg(t["charge_end_mg"]),
-        "added_kg": em.kg(t["added_mg"]),
-        "initial_fill_kg": em.kg(t["initial_fill_mg"]),
-        "service_added_kg": em.kg(t["service_added_mg"]),
-        "recovered_kg": em.kg(t["recovered_mg"]),
+        "full_charge_kg": em.kg(full_charge_ng),
+        "full_charge_start_kg": em.kg(t["charge_start_ng"]),
+        "full_charge_end_kg": em.kg(t["charge_end_ng"]),
+        "added_kg": em.kg(t["added_ng"]),
+        "initial_fill_kg": em.kg(t["initial_fill_ng"]),
+        "service_added_kg": em.kg(t["service_added_ng"]),
+        "recovered_kg": em.kg(t["recovered_ng"]),
         "recovered_to": {k: em.kg(v) for k, v in t["recovered_to"].items()},
-        "net_loss_kg": em.kg(t["net_loss_mg"]),
-        "leak_rate_percent": _percent(t["service_added_mg"], full_charge_mg),
+        "net_loss_kg": em.kg(t["net_loss_ng"]),
+        "leak_rate_percent": _percent(t["service_added_ng"], full_charge_ng),
         "co2e_t": rounded(t["co2e_t"], CO2E_PLACES),
     }
 
@@ -289,9 +290,9 @@ class AnnualPart:
     estate_counts: dict[str, int]  # `_check_counts` of all the site's obligations in the year
     met_late: int
     chronic: int
-    full_charge_mg: int  # of the systems with flows
-    monthly_mg: dict[str, dict[int, int]]  # refrigerant -> month -> service additions
-    yearly_mg: dict[str, dict[int, int]]  # refrigerant -> year -> service additions (to the year's end)
+    full_charge_ng: int  # of the systems with flows
+    monthly_ng: dict[str, dict[int, int]]  # refrigerant -> month -> service additions
+    yearly_ng: dict[str, dict[int, int]]  # refrigerant -> year -> service additions (to the year's end)
     obligation_rows: list[dict[str, Any]]
     notes: list[str]
     heads: list[tuple[int, str | None]]  # (system id, chain head) of every system of the site
@@ -333,15 +334,15 @@ def annual_part(
     sys_totals: dict[int, dict[str, Any]] = {}
     checks_done: dict[int, int] = {}
     categories: dict[int, em.ScreeningCategory] = {}
-    monthly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
-    yearly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
+    monthly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
+    yearly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     for h in sorted(histories, key=lambda h: (h.site.code, h.system.tag)):
         for a in em.additions(h):
             if a.initial or a.on > end:
                 continue
-            yearly_mg[a.refrigerant][a.on.year] += a.mass_mg
+            yearly_ng[a.refrigerant][a.on.year] += a.mass_ng
             if a.on >= start:
-                monthly_mg[a.refrigerant][a.on.month] += a.mass_mg
+                monthly_ng[a.refrigerant][a.on.month] += a.mass_ng
         flows = em.period_flows(h, start, end)
         if not flows:
             continue
@@ -349,14 +350,14 @@ def annual_part(
         categories[h.system.id] = em.screening_category(h.system)
         t = _totals(flows, gwp)
         sys_totals[h.system.id] = t
-        full_mg = flows[-1].last_charge_mg
-        t["full_charge_mg"] = full_mg
+        full_ng = flows[-1].last_charge_ng
+        t["full_charge_ng"] = full_ng
         kept = effective_events(h.events)
         done = sum(1 for e in kept if e.kind is EventKind.CHECK and start <= e.performed_on <= end)
         checks_done[h.system.id] = done
         end_state = state_of(h.events, end)
         names = list(dict.fromkeys(f.refrigerant for f in flows))
-        chronic = full_mg > 0 and t["service_added_mg"] * 100 >= CHRONIC_PERCENT * full_mg
+        chronic = full_ng > 0 and t["service_added_ng"] * 100 >= CHRONIC_PERCENT * full_ng
         t["chronic"] = chronic
         systems.append({
             "site": h.site.code,
@@ -366,7 +367,7 @@ def annual_part(
             "refrigerant": names[-1],
             "refrigerants": names,
             "gwp": gwp(names[-1]),
-            **_mass_view(t, full_mg),
+            **_mass_view(t, full_ng),
             "chronic": chronic,
             "in_service_at_end": end_state.in_service,
             "placed_in_service_on": end_state.in_service_on
@@ -393,7 +394,7 @@ def annual_part(
     site_row = None
     if ids or facility:
         t = _merge_totals(list(by_refrigerant.values()))
-        full_mg = sum(sys_totals[i]["full_charge_mg"] for i in ids)
+        full_ng = sum(sys_totals[i]["full_charge_ng"] for i in ids)
         obs = [o for i in ids for o in by_system.get(i, [])] + facility
         site_row = {
             "site": code,
@@ -401,7 +402,7 @@ def annual_part(
             "country": site.country if site else "",
             "regimes": list(site.regimes) if site else [],
             "systems": len(ids),
-            **_mass_view(t, full_mg),
+            **_mass_view(t, full_ng),
             "chronic": sum(1 for i in ids if sys_totals[i]["chronic"]),
             **_check_counts(obs, sum(checks_done[i] for i in ids)),
         }
@@ -416,9 +417,9 @@ def annual_part(
         estate_counts=_check_counts(in_year, sum(checks_done.values())),
         met_late=sum(1 for o in in_year if o.met_by is not None and event_days.get(o.met_by, o.due_on) > o.due_on),
         chronic=sum(1 for t in sys_totals.values() if t["chronic"]),
-        full_charge_mg=sum(t["full_charge_mg"] for t in sys_totals.values()),
-        monthly_mg={r: dict(m) for r, m in monthly_mg.items()},
-        yearly_mg={r: dict(y) for r, y in yearly_mg.items()},
+        full_charge_ng=sum(t["full_charge_ng"] for t in sys_totals.values()),
+        monthly_ng={r: dict(m) for r, m in monthly_ng.items()},
+        yearly_ng={r: dict(y) for r, y in yearly_ng.items()},
         obligation_rows=obligation_rows,
         notes=list(dict.fromkeys(gwp.notes)),
         heads=[(h.system.id, chain_head_of(h.events)) for h in histories],
@@ -455,7 +456,7 @@ def assemble_annual(
             "refrigerant": name,
             "gwp": gwp(name),
             "systems": sum(len(x["system_ids"]) for x in grouped[name]),
-            **_mass_view(t, t["last_charge_mg"]),
+            **_mass_view(t, t["last_charge_ng"]),
         })
 
     et = _merge_totals(list(merged.values()))
@@ -463,14 +464,14 @@ def assemble_annual(
     estate = {
         "systems": len(systems),
         "sites": len(sites),
-        **_mass_view(et, sum(p.full_charge_mg for p in parts)),
+        **_mass_view(et, sum(p.full_charge_ng for p in parts)),
         "chronic": sum(p.chronic for p in parts),
         **counts,
         "met_late": sum(p.met_late for p in parts),
     }
 
     # scope 1: the three methods read sums only, so one merged flow per refrigerant and
-    # screening row stands for all of them (C x T: the sum of mg-days over the year's days)
+    # screening row stands for all of them (C x T: the sum of ng-days over the year's days)
     screened: dict[tuple[str, str], list[int]] = {}
     for p in parts:
         for k, sums in p.by_screening.items():
@@ -483,31 +484,31 @@ def assemble_annual(
         merged_flows.append(em.Flow(-1 - i, name, period_days, **dict(zip(_SUMMED_FLOW_FIELDS, sums, strict=True))))
         categories[-1 - i] = em.ScreeningCategory(category)
     methods = em.scope1(merged_flows, {n: gwp(n) for n in grouped}, categories)
-    monthly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
-    yearly_mg: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
+    monthly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
+    yearly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     for p in parts:
-        for r, per in p.monthly_mg.items():
-            for month, mg in per.items():
-                monthly_mg[r][month] += mg
-        for r, per in p.yearly_mg.items():
-            for y, mg in per.items():
-                yearly_mg[r][y] += mg
+        for r, per in p.monthly_ng.items():
+            for month, ng in per.items():
+                monthly_ng[r][month] += ng
+        for r, per in p.yearly_ng.items():
+            for y, ng in per.items():
+                yearly_ng[r][y] += ng
     monthly = []
     for month in range(1, 13):
-        mg = sum(monthly_mg[r][month] for r in monthly_mg)
+        ng = sum(monthly_ng[r][month] for r in monthly_ng)
         monthly.append({
             "month": f"{year}-{month:02d}",
-            "added_kg": em.kg(mg),
-            "co2e_t": rounded(_sum(em.co2e_t(em.kg(monthly_mg[r][month]), gwp(r))
-                                   for r in monthly_mg), CO2E_PLACES),
+            "added_kg": em.kg(ng),
+            "co2e_t": rounded(_sum(em.co2e_t(em.kg(monthly_ng[r][month]), gwp(r))
+                                   for r in monthly_ng), CO2E_PLACES),
         })
-    first_year = min((y for per in yearly_mg.values() for y in per), default=year)
+    first_year = min((y for per in yearly_ng.values() for y in per), default=year)
     trend = [
         {
             "year": y,
-            "added_kg": em.kg(sum(per.get(y, 0) for per in yearly_mg.values())),
+            "added_kg": em.kg(sum(per.get(y, 0) for per in yearly_ng.values())),
             "co2e_t": rounded(_sum(em.co2e_t(em.kg(per.get(y, 0)), gwp(r))
-                                   for r, per in yearly_mg.items()), CO2E_PLACES),
+                                   for r, per in yearly_ng.items()), CO2E_PLACES),
         }
         for y in range(first_year, year + 1)
     ]
@@ -850,7 +851,7 @@ def logbook_data(
             gwp = figure.value
             if figure.unlisted:
                 gwp_note = f"the {basis} basis lists no GWP for {', '.join(figure.unlisted)}; counted as 0"
-            co2e = rounded(em.co2e_t(em.kg(state.full_charge_mg), gwp), CO2E_PLACES)
+            co2e = rounded(em.co2e_t(em.kg(state.full_charge_ng), gwp), CO2E_PLACES)
             composition = [{"component": c, "mass_percent": p} for c, p in ref.components]
     tiers = [
         {
@@ -886,14 +887,14 @@ def logbook_data(
             "kind": e.kind.value,
             "kind_label": KIND_LABELS.get(e.kind, e.kind.value),
             "refrigerant": held.get(e.id),
-            "mass_kg": _kg(e.mass_mg),
-            "charge_kg": _kg(e.charge_mg),
+            "mass_kg": _kg(e.mass_ng),
+            "charge_kg": _kg(e.charge_ng),
             "added_for": _purpose(e, kept, charged_days)
             if e.kind is EventKind.ADD and not void else None,
             "cylinder": e.cylinder_id,
             "cylinder_kind": cyl.kind.value if cyl else None,
-            "cylinder_before_kg": _kg(e.cylinder_before_mg),
-            "cylinder_after_kg": _kg(e.cylinder_after_mg),
+            "cylinder_before_kg": _kg(e.cylinder_before_ng),
+            "cylinder_after_kg": _kg(e.cylinder_after_ng),
             "reclaimed": e.reclaimed,
             "result": e.result,
             "location": e.location,
@@ -948,8 +949,8 @@ def logbook_data(
         "refrigerant": state.refrigerant,
         "composition": composition,
         "safety_class": ref.safety_class if ref else None,
-        "full_charge_kg": em.kg(state.full_charge_mg),
-        "full_charge_lb": rounded(Decimal(state.full_charge_mg) / Decimal("453592.37"), KG_PLACES)
+        "full_charge_kg": em.kg(state.full_charge_ng),
+        "full_charge_lb": rounded(Decimal(state.full_charge_ng) / Decimal(453_592_370_000), KG_PLACES)
         if site.country == "US" else None,
         "gwp_basis": basis,
         "gwp": gwp,

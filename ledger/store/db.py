@@ -26,7 +26,7 @@ ENV_VAR = "REFLEDGER_DB"
 READINGS_ENV_VAR = "REFLEDGER_READINGS"
 # Newest migration revision; tests assert it equals Alembic's script head, so every
 # command can check the schema with one SELECT instead of importing Alembic.
-HEAD_REVISION = "0003"
+HEAD_REVISION = "0004"
 SQLITE_BUSY_TIMEOUT_MS = 30_000  # concurrent loggers wait this long for the write lock
 
 

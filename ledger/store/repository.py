@@ -254,13 +254,13 @@ def get_cylinder(code: str, *, conn: Connection) -> tuple[int, Cylinder]:
     row = conn.execute(select(cylinder).where(cylinder.c.code == code)).first()
     if row is None:
         raise NotFound(f"cylinder: {code!r} is not in the ledger (see `refledger cylinder list`)")
-    return row.id, Cylinder(row.code, row.refrigerant, CylinderKind(row.kind), row.tare_mg)
+    return row.id, Cylinder(row.code, row.refrigerant, CylinderKind(row.kind), row.tare_ng)
 
 
 def list_cylinders(*, conn: Connection) -> list[Cylinder]:
     """Every cylinder, by id."""
     rows = conn.execute(select(cylinder).order_by(cylinder.c.code))
-    return [Cylinder(r.code, r.refrigerant, CylinderKind(r.kind), r.tare_mg) for r in rows]
+    return [Cylinder(r.code, r.refrigerant, CylinderKind(r.kind), r.tare_ng) for r in rows]
 
 
 # ---- events -------------------------------------------------------------------------------
@@ -414,16 +414,16 @@ def _events_query():  # type: ignore[no-untyped-def]
             _raw(event.c.kind, "kind"),
             _raw(event.c.performed_on, "performed_on"),
             _raw(event.c.recorded_at, "recorded_at"),
-            _raw(event.c.mass_mg, "mass_mg"),
+            _raw(event.c.mass_ng, "mass_ng"),
             _raw(event.c.refrigerant, "refrigerant"),
-            _raw(event.c.charge_mg, "charge_mg"),
+            _raw(event.c.charge_ng, "charge_ng"),
             _raw(event.c.result, "result"),
             _raw(event.c.location, "location"),
             _raw(event.c.method, "method"),
             _raw(event.c.destination, "destination"),
             _raw(cylinder.c.code, "cylinder_code"),
-            _raw(event.c.cylinder_before_mg, "cylinder_before_mg"),
-            _raw(event.c.cylinder_after_mg, "cylinder_after_mg"),
+            _raw(event.c.cylinder_before_ng, "cylinder_before_ng"),
+            _raw(event.c.cylinder_after_ng, "cylinder_after_ng"),
             _raw(technician.c.name, "tech_name"),
             _raw(company.c.name, "company_name"),
             _raw(certificate.c.scheme, "cert_scheme"),
@@ -735,7 +735,7 @@ def load_events_of_kinds(
     """
     columns = (
         event.c.id, event.c.system_id, event.c.kind, event.c.performed_on, event.c.refrigerant,
-        event.c.charge_mg, event.c.voids_id,
+        event.c.charge_ng, event.c.voids_id,
     )
     wanted = sorted(k.value for k in kinds)
     grouped: dict[int, list[Event]] = defaultdict(list)
@@ -752,7 +752,7 @@ def load_events_of_kinds(
             if day is None:
                 day = days[on] = date.fromisoformat(on) if isinstance(on, str) else on
             grouped[system_id].append(
-                Event(id_, system_id, _KINDS[kind], day, refrigerant=refrigerant, charge_mg=charge, voids_id=voids)
+                Event(id_, system_id, _KINDS[kind], day, refrigerant=refrigerant, charge_ng=charge, voids_id=voids)
             )
     return dict(grouped)
 

@@ -5,7 +5,7 @@ of a second (SQLModel pulls in the ORM and pydantic, about twice the import time
 estate-wide work is set-based SQL anyway. Rows are mapped to the frozen domain records in
 ``repository.py``.
 
-Masses are BIGINT milligrams; dates that something happened are DATE; times the ledger
+Masses are BIGINT nanograms (up to 9.2e18 ng, about 9 223 t); dates that something happened are DATE; times the ledger
 recorded are timezone-aware UTC.
 """
 
@@ -92,7 +92,7 @@ cylinder = Table(
     Column("code", String(100), nullable=False, unique=True),
     Column("refrigerant", String(40), nullable=False),
     Column("kind", String(20), nullable=False),
-    Column("tare_mg", BigInteger),
+    Column("tare_ng", BigInteger),
     Column("created_at", DateTime(timezone=True), nullable=False),
 )
 
@@ -124,16 +124,16 @@ event = Table(
     Column("kind", String(20), nullable=False),
     Column("performed_on", Date, nullable=False),
     Column("recorded_at", DateTime(timezone=True), nullable=False),
-    Column("mass_mg", BigInteger),
+    Column("mass_ng", BigInteger),
     Column("refrigerant", String(40)),
-    Column("charge_mg", BigInteger),
+    Column("charge_ng", BigInteger),
     Column("result", String(20)),
     Column("location", Text),
     Column("method", String(100)),
     Column("destination", String(20)),
     Column("cylinder_id", Integer, ForeignKey("cylinder.id")),
-    Column("cylinder_before_mg", BigInteger),
-    Column("cylinder_after_mg", BigInteger),
+    Column("cylinder_before_ng", BigInteger),
+    Column("cylinder_after_ng", BigInteger),
     Column("technician_id", Integer, ForeignKey("technician.id")),
     Column("certificate_id", Integer, ForeignKey("certificate.id")),
     Column("recorded_by", String(200)),

@@ -25,20 +25,20 @@ from ledger.domain.records import (
 )
 
 D = date
-MG_PER_LB = Decimal("453592.37")  # exact: the international avoirdupois pound (1959)
+NG_PER_LB = Decimal(453_592_370_000)  # exact: the international avoirdupois pound (1959)
 
 
 def kg(value: str | int) -> int:
-    """Milligrams of a kilogram figure written as text (exact; must be whole mg)."""
-    mg = Decimal(str(value)) * 1_000_000
-    assert mg == mg.to_integral_value(), value
-    return int(mg)
+    """Nanograms of a kilogram figure written as text (exact; must be whole ng)."""
+    ng = Decimal(str(value)) * 10**12
+    assert ng == ng.to_integral_value(), value
+    return int(ng)
 
 
 def lb(value: str | int) -> int:
-    """Milligrams of a pound figure, rounded up to the next whole mg (so it is >= value lb)."""
-    mg = Decimal(str(value)) * MG_PER_LB
-    return int(mg.to_integral_value(rounding="ROUND_CEILING"))
+    """Nanograms of a pound figure, rounded up to the next whole ng (so it is >= value lb)."""
+    ng = Decimal(str(value)) * NG_PER_LB
+    return int(ng.to_integral_value(rounding="ROUND_CEILING"))
 
 
 def site(code: str = "S1", country: str = "DE", regimes: tuple[str, ...] = ("eu",), *,
@@ -71,8 +71,8 @@ class Log:
         self.events.append(event)
         return event
 
-    def in_service(self, on: date, refrigerant: str, charge_mg: int) -> Event:
-        return self.add(EventKind.IN_SERVICE, on, refrigerant=refrigerant, charge_mg=charge_mg)
+    def in_service(self, on: date, refrigerant: str, charge_ng: int) -> Event:
+        return self.add(EventKind.IN_SERVICE, on, refrigerant=refrigerant, charge_ng=charge_ng)
 
     def check(self, on: date, leak: bool = False, location: str | None = None) -> Event:
         result = CheckResult.LEAK_FOUND if leak else CheckResult.NO_LEAK
@@ -85,8 +85,8 @@ class Log:
         result = FollowUpResult.PASS if passed else FollowUpResult.FAIL
         return self.add(EventKind.FOLLOW_UP, on, result=result.value)
 
-    def top_up(self, on: date, mass_mg: int) -> Event:
-        return self.add(EventKind.ADD, on, mass_mg=mass_mg)
+    def top_up(self, on: date, mass_ng: int) -> Event:
+        return self.add(EventKind.ADD, on, mass_ng=mass_ng)
 
     def detection_on(self, on: date) -> Event:
         return self.add(EventKind.DETECTION_ON, on)
@@ -97,11 +97,11 @@ class Log:
     def detection_check(self, on: date) -> Event:
         return self.add(EventKind.DETECTION_CHECK, on)
 
-    def revise(self, on: date, charge_mg: int) -> Event:
-        return self.add(EventKind.CHARGE_REVISED, on, charge_mg=charge_mg)
+    def revise(self, on: date, charge_ng: int) -> Event:
+        return self.add(EventKind.CHARGE_REVISED, on, charge_ng=charge_ng)
 
-    def retrofit(self, on: date, refrigerant: str, charge_mg: int) -> Event:
-        return self.add(EventKind.RETROFIT, on, refrigerant=refrigerant, charge_mg=charge_mg)
+    def retrofit(self, on: date, refrigerant: str, charge_ng: int) -> Event:
+        return self.add(EventKind.RETROFIT, on, refrigerant=refrigerant, charge_ng=charge_ng)
 
     def retire(self, on: date) -> Event:
         return self.add(EventKind.RETIRE, on)

@@ -30,7 +30,7 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import effective_events, state_of
 
-KG = 1_000_000  # mg per kg
+KG = 10**12  # ng per kg
 SITE = Site(1, "DE-1", "Store", "DE", None, "Europe/Berlin", ("eu",))
 
 
@@ -108,21 +108,21 @@ def test_screening_category_mapping() -> None:
 
 def test_flows_of_a_leaking_rack_in_service_all_year() -> None:
     h = history(
-        ev(1, EventKind.IN_SERVICE, date(2020, 5, 1), refrigerant="R-404A", charge_mg=100 * KG),
-        ev(2, EventKind.ADD, date(2024, 3, 1), mass_mg=12 * KG),
-        ev(3, EventKind.RECOVER, date(2024, 6, 1), mass_mg=4 * KG, destination="reclaim"),
-        ev(4, EventKind.ADD, date(2024, 6, 2), mass_mg=5 * KG),
-        ev(5, EventKind.ADD, date(2025, 1, 2), mass_mg=7 * KG),  # next year: not counted
+        ev(1, EventKind.IN_SERVICE, date(2020, 5, 1), refrigerant="R-404A", charge_ng=100 * KG),
+        ev(2, EventKind.ADD, date(2024, 3, 1), mass_ng=12 * KG),
+        ev(3, EventKind.RECOVER, date(2024, 6, 1), mass_ng=4 * KG, destination="reclaim"),
+        ev(4, EventKind.ADD, date(2024, 6, 2), mass_ng=5 * KG),
+        ev(5, EventKind.ADD, date(2025, 1, 2), mass_ng=7 * KG),  # next year: not counted
     )
     (f,) = em.period_flows(h, date(2024, 1, 1), date(2024, 12, 31))
     assert f.refrigerant == "R-404A"
-    assert (f.charge_start_mg, f.charge_end_mg) == (100 * KG, 100 * KG)
-    assert f.added_mg == 17 * KG and f.initial_fill_mg == 0
-    assert f.recovered_mg == 4 * KG and f.recovered_to == (("reclaim", 4 * KG),)
+    assert (f.charge_start_ng, f.charge_end_ng) == (100 * KG, 100 * KG)
+    assert f.added_ng == 17 * KG and f.initial_fill_ng == 0
+    assert f.recovered_ng == 4 * KG and f.recovered_to == (("reclaim", 4 * KG),)
     assert f.in_service_days == 366  # 2024 is a leap year
-    assert f.operating_mg_days == 100 * KG * 366
+    assert f.operating_ng_days == 100 * KG * 366
     # material balance of the flow: 100 + 0 + 17 - 4 - 100 = 13 kg (hand-worked)
-    assert f.net_loss_mg == 13 * KG
+    assert f.net_loss_ng == 13 * KG
 
 
 def test_three_methods_on_a_year_with_install_service_and_retirement() -> None:
@@ -141,14 +141,14 @@ def test_three_methods_on_a_year_with_install_service_and_retirement() -> None:
         return Event(id=id_, system_id=sid, kind=kind, performed_on=on, **kw)
 
     ha = SystemHistory(SITE, sa, (e(1, 1, EventKind.IN_SERVICE, date(2019, 1, 1), refrigerant="R-404A",
-                                    charge_mg=100 * KG),
-                                  e(2, 1, EventKind.ADD, date(2023, 4, 1), mass_mg=20 * KG)))
+                                    charge_ng=100 * KG),
+                                  e(2, 1, EventKind.ADD, date(2023, 4, 1), mass_ng=20 * KG)))
     hb = SystemHistory(SITE, sb, (e(3, 2, EventKind.IN_SERVICE, date(2023, 7, 1), refrigerant="R-404A",
-                                    charge_mg=40 * KG),
-                                  e(4, 2, EventKind.ADD, date(2023, 7, 1), mass_mg=2 * KG)))
+                                    charge_ng=40 * KG),
+                                  e(4, 2, EventKind.ADD, date(2023, 7, 1), mass_ng=2 * KG)))
     hc = SystemHistory(SITE, sc, (e(5, 3, EventKind.IN_SERVICE, date(2015, 1, 1), refrigerant="R-404A",
-                                    charge_mg=10 * KG),
-                                  e(6, 3, EventKind.RETIRE, date(2023, 10, 1), mass_mg=6 * KG,
+                                    charge_ng=10 * KG),
+                                  e(6, 3, EventKind.RETIRE, date(2023, 10, 1), mass_ng=6 * KG,
                                     destination="reclaim")))
     start, end = date(2023, 1, 1), date(2023, 12, 31)
     flows = [f for h in (ha, hb, hc) for f in em.period_flows(h, start, end)]
@@ -173,30 +173,30 @@ def test_three_methods_on_a_year_with_install_service_and_retirement() -> None:
 
 def test_retrofit_retires_the_old_gas_and_charges_the_new() -> None:
     h = history(
-        ev(1, EventKind.IN_SERVICE, date(2018, 1, 1), refrigerant="R-404A", charge_mg=50 * KG),
-        ev(2, EventKind.RECOVER, date(2024, 5, 1), mass_mg=45 * KG, destination="reclaim"),
-        ev(3, EventKind.RETROFIT, date(2024, 5, 1), refrigerant="R-448A", charge_mg=48 * KG),
-        ev(4, EventKind.ADD, date(2024, 5, 1), mass_mg=3 * KG),  # initial fill of the new gas
-        ev(5, EventKind.ADD, date(2024, 9, 1), mass_mg=2 * KG),
+        ev(1, EventKind.IN_SERVICE, date(2018, 1, 1), refrigerant="R-404A", charge_ng=50 * KG),
+        ev(2, EventKind.RECOVER, date(2024, 5, 1), mass_ng=45 * KG, destination="reclaim"),
+        ev(3, EventKind.RETROFIT, date(2024, 5, 1), refrigerant="R-448A", charge_ng=48 * KG),
+        ev(4, EventKind.ADD, date(2024, 5, 1), mass_ng=3 * KG),  # initial fill of the new gas
+        ev(5, EventKind.ADD, date(2024, 9, 1), mass_ng=2 * KG),
     )
     old, new = em.period_flows(h, date(2024, 1, 1), date(2024, 12, 31))
     assert old.refrigerant == "R-404A" and new.refrigerant == "R-448A"
-    assert (old.charge_start_mg, old.charge_end_mg, old.retired_charge_mg) == (50 * KG, 0, 50 * KG)
-    assert old.retired_recovered_mg == 45 * KG and old.net_loss_mg == 5 * KG
-    assert (new.new_charge_mg, new.charge_end_mg) == (48 * KG, 48 * KG)
-    assert (new.added_mg, new.initial_fill_mg, new.service_added_mg) == (5 * KG, 3 * KG, 2 * KG)
+    assert (old.charge_start_ng, old.charge_end_ng, old.retired_charge_ng) == (50 * KG, 0, 50 * KG)
+    assert old.retired_recovered_ng == 45 * KG and old.net_loss_ng == 5 * KG
+    assert (new.new_charge_ng, new.charge_end_ng) == (48 * KG, 48 * KG)
+    assert (new.added_ng, new.initial_fill_ng, new.service_added_ng) == (5 * KG, 3 * KG, 2 * KG)
     assert old.in_service_days + new.in_service_days == 366
 
 
 def test_voided_events_do_not_count() -> None:
     h = history(
-        ev(1, EventKind.IN_SERVICE, date(2020, 1, 1), refrigerant="R-134a", charge_mg=10 * KG),
-        ev(2, EventKind.ADD, date(2024, 2, 1), mass_mg=9 * KG),
+        ev(1, EventKind.IN_SERVICE, date(2020, 1, 1), refrigerant="R-134a", charge_ng=10 * KG),
+        ev(2, EventKind.ADD, date(2024, 2, 1), mass_ng=9 * KG),
         ev(3, EventKind.VOID, date(2024, 2, 1), voids_id=2, reason="typed 9 kg, was 0.9 kg"),
-        ev(4, EventKind.ADD, date(2024, 2, 1), mass_mg=900_000),
+        ev(4, EventKind.ADD, date(2024, 2, 1), mass_ng=900_000_000_000),
     )
     (f,) = em.period_flows(h, date(2024, 1, 1), date(2024, 12, 31))
-    assert f.added_mg == 900_000
+    assert f.added_ng == 900_000_000_000
 
 
 # --- property: flows reconcile with the events ----------------------------------------------
@@ -208,7 +208,7 @@ REFRIGERANTS = ("R-404A", "R-134a", "R-744", "R-410A")
 def histories(draw) -> SystemHistory:  # type: ignore[no-untyped-def]
     start = date(2022, 1, 1) + timedelta(days=draw(st.integers(0, 900)))
     events = [ev(1, EventKind.IN_SERVICE, start, refrigerant=draw(st.sampled_from(REFRIGERANTS)),
-                 charge_mg=draw(st.integers(1, 500 * KG)))]
+                 charge_ng=draw(st.integers(1, 500 * KG)))]
     day = start
     for i in range(2, draw(st.integers(2, 25))):
         day = day + timedelta(days=draw(st.integers(1, 120)))
@@ -217,10 +217,10 @@ def histories(draw) -> SystemHistory:  # type: ignore[no-untyped-def]
                                      EventKind.RETROFIT, EventKind.RETIRE, EventKind.VOID]))
         kw: dict = {}
         if kind in (EventKind.ADD, EventKind.RECOVER, EventKind.RETIRE):
-            kw["mass_mg"] = draw(st.integers(0, 60 * KG))
+            kw["mass_ng"] = draw(st.integers(0, 60 * KG))
             kw["destination"] = draw(st.sampled_from(["reclaim", "reuse", None]))
         if kind in (EventKind.CHARGE_REVISED, EventKind.RETROFIT):
-            kw["charge_mg"] = draw(st.integers(1, 500 * KG))
+            kw["charge_ng"] = draw(st.integers(1, 500 * KG))
         if kind is EventKind.RETROFIT:
             kw["refrigerant"] = draw(st.sampled_from(REFRIGERANTS))
         if kind is EventKind.VOID:
@@ -241,15 +241,15 @@ def test_flows_reconcile_with_events(h: SystemHistory, year: int) -> None:
     start, end = date(year, 1, 1), date(year, 12, 31)
     flows = em.period_flows(h, start, end)
     kept = [e for e in effective_events(h.events) if start <= e.performed_on <= end]
-    assert sum(f.added_mg for f in flows) == sum(e.mass_mg or 0 for e in kept if e.kind is EventKind.ADD)
-    assert sum(f.recovered_mg for f in flows) == sum(
-        e.mass_mg or 0 for e in kept if e.kind in (EventKind.RECOVER, EventKind.RETIRE))
+    assert sum(f.added_ng for f in flows) == sum(e.mass_ng or 0 for e in kept if e.kind is EventKind.ADD)
+    assert sum(f.recovered_ng for f in flows) == sum(
+        e.mass_ng or 0 for e in kept if e.kind in (EventKind.RECOVER, EventKind.RETIRE))
     for f in flows:
-        assert sum(mg for _, mg in f.recovered_to) == f.recovered_mg
+        assert sum(mg for _, mg in f.recovered_to) == f.recovered_ng
     before = state_of(h.events, start - timedelta(days=1))
     after = state_of(h.events, end)
-    assert sum(f.charge_start_mg for f in flows) == (before.full_charge_mg if before.in_service else 0)
-    assert sum(f.charge_end_mg for f in flows) == (after.full_charge_mg if after.in_service else 0)
+    assert sum(f.charge_start_ng for f in flows) == (before.full_charge_ng if before.in_service else 0)
+    assert sum(f.charge_end_ng for f in flows) == (after.full_charge_ng if after.in_service else 0)
     days = sum(1 for i in range((end - start).days + 1)
                if state_of(h.events, start + timedelta(days=i)).in_service) if flows else 0
     assert sum(f.in_service_days for f in flows) == days

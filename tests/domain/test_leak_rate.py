@@ -128,7 +128,7 @@ def test_leak_rates_same_day_additions_count_as_one():
     log.top_up(D(2025, 3, 31), kg(1))
     log.top_up(D(2025, 3, 31), kg(1))
     rows = leak_rates(log.history(s, sy), ANNUALIZING)
-    assert rows[1].day_total_mg == kg(1) and rows[2].day_total_mg == kg(2)
+    assert rows[1].day_total_ng == kg(1) and rows[2].day_total_ng == kg(2)
     assert rows[2].annualizing_percent.quantize(Decimal("0.001")) == Decimal("24.333")
     assert rows[2].rolling_percent == Decimal(4)  # (2 + 1 + 1) / 100 over 365 days
 
@@ -141,7 +141,7 @@ def test_leak_rates_retrofit_restarts_the_count():
     log.top_up(D(2025, 5, 1), kg(4))
     rows = leak_rates(log.history(s, sy), ROLLING)
     # after the retrofit only its own additions count: 4/80 x 100 = 5 % (both methods)
-    assert rows[1].full_charge_mg == kg(80)
+    assert rows[1].full_charge_ng == kg(80)
     assert rows[1].rolling_percent == Decimal(5) and rows[1].annualizing_percent == Decimal(5)
     assert rows[1].method == ROLLING and rows[1].percent == Decimal(5)
 

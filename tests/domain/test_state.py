@@ -25,12 +25,12 @@ def _log() -> Log:
 
 def test_state_before_anything_is_not_in_service():
     st_ = state_of(_log().events, D(2024, 1, 9))
-    assert not st_.in_service and st_.refrigerant is None and st_.full_charge_mg == 0
+    assert not st_.in_service and st_.refrigerant is None and st_.full_charge_ng == 0
 
 
 def test_in_service_sets_refrigerant_charge_and_dates():
     st_ = state_of(_log().events, D(2024, 1, 10))
-    assert st_.in_service and st_.refrigerant == "R-404A" and st_.full_charge_mg == kg("30")
+    assert st_.in_service and st_.refrigerant == "R-404A" and st_.full_charge_ng == kg("30")
     assert st_.in_service_on == D(2024, 1, 10) and st_.refrigerant_since == D(2024, 1, 10)
 
 
@@ -44,10 +44,10 @@ def test_leak_found_stays_open_until_a_repair():
 
 def test_charge_revision_detection_and_retrofit():
     events = _log().events
-    assert state_of(events, D(2024, 9, 1)).full_charge_mg == kg("32.5")
+    assert state_of(events, D(2024, 9, 1)).full_charge_ng == kg("32.5")
     assert state_of(events, D(2024, 9, 1)).detection_system
     later = state_of(events, D(2025, 3, 1))
-    assert later.refrigerant == "R-448A" and later.full_charge_mg == kg("28")
+    assert later.refrigerant == "R-448A" and later.full_charge_ng == kg("28")
     assert later.refrigerant_since == D(2025, 2, 1) and not later.detection_system
 
 
@@ -56,7 +56,7 @@ def test_retirement_ends_service_and_keeps_the_charge():
     log.retire(D(2025, 6, 1))
     st_ = state_of(log.events, D(2025, 6, 1))
     assert not st_.in_service and st_.retired_on == D(2025, 6, 1)
-    assert st_.full_charge_mg == kg("28")
+    assert st_.full_charge_ng == kg("28")
 
 
 def test_void_removes_the_voided_event():

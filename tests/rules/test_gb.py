@@ -19,9 +19,9 @@ GB_SITE = site("GB1", "GB", ("gb",))
 OPEN, MET, OVERDUE = ObligationStatus.OPEN, ObligationStatus.MET, ObligationStatus.OVERDUE
 
 
-def _tier(refrigerant, charge_mg, *, hermetic=False, detection=False, on=D(2025, 6, 1)):
+def _tier(refrigerant, charge_ng, *, hermetic=False, detection=False, on=D(2025, 6, 1)):
     log = Log()
-    log.in_service(D(2025, 1, 10), refrigerant, charge_mg)
+    log.in_service(D(2025, 1, 10), refrigerant, charge_ng)
     if detection:
         log.detection_on(D(2025, 1, 10))
     return gb.tier_of(log.history(GB_SITE, system(1, "GB1", hermetic=hermetic)), REF, on)

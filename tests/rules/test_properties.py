@@ -65,7 +65,7 @@ def histories(draw):
     start = BASES[code] + timedelta(days=draw(st.integers(0, 400)))
     refrigerants, charges = REFRIGERANTS[code], CHARGES[code]
     events = [Event(1, 1, EventKind.IN_SERVICE, start, refrigerant=draw(st.sampled_from(
-        refrigerants)), charge_mg=draw(st.sampled_from(charges)))]
+        refrigerants)), charge_ng=draw(st.sampled_from(charges)))]
     kinds = st.sampled_from([
         EventKind.CHECK, EventKind.CHECK, EventKind.CHECK, EventKind.REPAIR, EventKind.FOLLOW_UP,
         EventKind.ADD, EventKind.ADD, EventKind.DETECTION_ON, EventKind.DETECTION_OFF,
@@ -80,12 +80,12 @@ def histories(draw):
         elif kind is EventKind.FOLLOW_UP:
             fields["result"] = draw(st.sampled_from(["pass", "fail"]))
         elif kind is EventKind.ADD:
-            fields["mass_mg"] = charges[-1] * draw(st.integers(1, 60)) // 100
+            fields["mass_ng"] = charges[-1] * draw(st.integers(1, 60)) // 100
         elif kind is EventKind.CHARGE_REVISED:
-            fields["charge_mg"] = draw(st.sampled_from(charges))
+            fields["charge_ng"] = draw(st.sampled_from(charges))
         elif kind is EventKind.RETROFIT:
             fields["refrigerant"] = draw(st.sampled_from(refrigerants))
-            fields["charge_mg"] = draw(st.sampled_from(charges))
+            fields["charge_ng"] = draw(st.sampled_from(charges))
         events.append(Event(i + 2, 1, kind, on, **fields))
     application = draw(st.sampled_from(list(Application)))
     the_site = SITES[code]

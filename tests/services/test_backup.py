@@ -20,13 +20,13 @@ from ledger.store.db import Database, Location
 def _fill(db: Database) -> None:
     add_site(db, code="GB-1", name="Leeds", country="GB")
     add_technician(db, name="Ana Ortiz", certificate="GB-9", scheme="GB F-gas cat I", company="Frost Ltd")
-    add_cylinder(db, code="C1", refrigerant="R-404A", kind="reclaimed", tare_mg=10_000_000)
+    add_cylinder(db, code="C1", refrigerant="R-404A", kind="reclaimed", tare_ng=10_000_000_000_000)
     add_system(
         db,
         site_code="GB-1",
         tag="R1",
         refrigerant="R-404A",
-        charge_mg=80_000_000,
+        charge_ng=80_000_000_000_000,
         application="commercial-refrigeration",
         in_service_on=date(2020, 5, 1),
         technician="Ana Ortiz",
@@ -39,8 +39,8 @@ def _fill(db: Database) -> None:
             kind=EventKind.ADD,
             performed_on=date(2024, 2, 1),
             cylinder_code="C1",
-            cylinder_before_mg=30_000_000,
-            cylinder_after_mg=27_500_000,
+            cylinder_before_ng=30_000_000_000_000,
+            cylinder_after_ng=27_500_000_000_000,
             technician="Ana Ortiz",
             note="=SUM(1)",
         ),
@@ -59,7 +59,7 @@ def _snapshot(db: Database):  # type: ignore[no-untyped-def]
                 (
                     e.kind,
                     e.performed_on,
-                    e.mass_mg,
+                    e.mass_ng,
                     e.note,
                     e.voids_id,
                     e.chain_hash,

@@ -26,7 +26,7 @@ def _writer(url: str, worker: int) -> int:
             site_code="S",
             tag=tag,
             draft=EventDraft(
-                kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_mg=1000 + i, note=f"w{worker}-{i}"
+                kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_ng=10**9 + i, note=f"w{worker}-{i}"
             ),
         )
     db.close()
@@ -41,7 +41,7 @@ def test_parallel_loggers_lose_nothing(db: Database, location: Location) -> None
             site_code="S",
             tag=tag,
             refrigerant="R-134a",
-            charge_mg=100_000_000,
+            charge_ng=100_000_000_000_000,
             application="comfort-cooling",
             in_service_on=date(2023, 1, 1),
         )

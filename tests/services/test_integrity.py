@@ -26,7 +26,7 @@ def _ledger(db: Database) -> list[int]:
         site_code="S",
         tag="A",
         refrigerant="R-134a",
-        charge_mg=50_000_000,
+        charge_ng=50_000_000_000_000,
         application="comfort-cooling",
         in_service_on=date(2023, 1, 1),
     )
@@ -35,7 +35,7 @@ def _ledger(db: Database) -> list[int]:
         site_code="S",
         tag="B",
         refrigerant="R-134a",
-        charge_mg=50_000_000,
+        charge_ng=50_000_000_000_000,
         application="comfort-cooling",
         in_service_on=date(2023, 1, 1),
     )
@@ -46,7 +46,7 @@ def _ledger(db: Database) -> list[int]:
                 db,
                 site_code="S",
                 tag="A",
-                draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, day), mass_mg=1_000_000 * day),
+                draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, day), mass_ng=1_000_000_000_000 * day),
             ).event_id
         )
     return ids
@@ -71,7 +71,7 @@ def test_edited_field_is_named(db: Database) -> None:
     ids = _ledger(db)
     _drop_triggers(db)
     with db.engine.begin() as conn:
-        conn.execute(text("UPDATE event SET mass_mg = 1 WHERE id = :i"), {"i": ids[1]})
+        conn.execute(text("UPDATE event SET mass_ng = 1 WHERE id = :i"), {"i": ids[1]})
     result = verify(db)
     assert [(b.system, b.event_id, b.what) for b in result.breaks] == [("A", ids[1], "edited")]
 
