@@ -50,3 +50,15 @@ class SchemaOutOfDate(LedgerError):
 
 class Rejected(LedgerError):
     """A request that validation refused; the message starts with the field it is about."""
+
+
+class NeedsConfirmation(LedgerError):
+    """A request that is possible but looks like a mistake; repeat it with confirmation.
+
+    ``reasons`` holds one human sentence per doubt (a mass above the full charge, below 1 g,
+    the same event recorded already). Nothing was written.
+    """
+
+    def __init__(self, reasons: tuple[str, ...], hint: str = "repeat with --confirm if it is right") -> None:
+        self.reasons = tuple(reasons)
+        super().__init__(f"confirm: {' '.join(self.reasons)} Nothing was recorded; {hint}.")

@@ -960,7 +960,7 @@ def child(name: str, side: str, ctx: dict[str, Any]) -> dict[str, Any]:
             cmd = [exe, "--help"]
         elif side == "ours":
             cmd = [exe, "--db", url, "log", "add", ctx["log_ref"], "--on", cal.as_of.isoformat(),
-                   "--mass", "1.5kg", "--tech", ctx["log_tech"]]
+                   "--mass", "1.5kg", "--tech", ctx["log_tech"], "--confirm"]  # the runs repeat one event
         else:
             cmd = [sys.executable, "-c", "import typer, sqlalchemy"]
         # Bytecode is cached (in the work folder, not the source tree) as for an installed

@@ -7,6 +7,7 @@ write, warnings are recorded with the event and shown.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import date
 from decimal import Decimal
@@ -15,13 +16,16 @@ from ledger.domain.records import (
     CheckResult,
     Cylinder,
     Destination,
+    Event,
     EventKind,
     Finding,
     FollowUpResult,
     Severity,
+    System,
     SystemState,
     Technician,
 )
+from ledger.domain.state import effective_events, state_of
 
 NG_PER_KG = 10**12
 
@@ -179,3 +183,70 @@ def certificate_findings(technician: Technician, on: date) -> list[Finding]:
             field="--tech",
         )
     ]
+
+
+# --- plausibility: what asks for a confirmation -----------------------------------------------
+
+# A single addition or recovery above this share of the system's full charge is more likely a
+# typing slip (a unit, a decimal mark) than a fact: common practice, no source. Configurable
+# per call (``charge_share``); 1 = the whole full charge.
+DEFAULT_CHARGE_SHARE = Decimal(1)
+SMALLEST_PLAUSIBLE_NG = 10**9  # 1 g: less is below what a service scale shows (common practice, no source)
+_MOVING = frozenset({EventKind.ADD, EventKind.RECOVER, EventKind.RETIRE})
+_MOVING_WORD = {EventKind.ADD: "addition", EventKind.RECOVER: "recovery", EventKind.RETIRE: "recovery at retirement"}
+
+
+def _shown(ng: int, unit: str) -> str:
+    from ledger.units import format_mass
+
+    places = 2 if ng >= 10 * 10**9 else 4  # 1 g shows as 0.0010 kg
+    return format_mass(ng, unit, places=places)
+
+
+def confirmation_reasons(
+    draft: EventDraft,
+    history: Sequence[Event],
+    system: System,
+    *,
+    unit: str = "kg",
+    charge_share: Decimal = DEFAULT_CHARGE_SHARE,
+) -> tuple[str, ...]:
+    """The doubts about a valid draft that a person must confirm before it is recorded.
+
+    Args:
+        draft: the event to record (masses resolved, e.g. from cylinder weights).
+        history: the system's events recorded so far (voids applied here).
+        system: the system the event is for (named in the sentences).
+        unit: the site's display unit (``kg`` or ``lb``).
+        charge_share: a single mass above this share of the full charge asks (1 = 100 %).
+    Returns:
+        One sentence per doubt; empty when there is nothing to confirm.
+    """
+    reasons: list[str] = []
+    mass = draft.mass_ng
+    if draft.kind in _MOVING and mass is not None and mass > 0:
+        word = _MOVING_WORD[draft.kind]
+        full = state_of(history, draft.performed_on).full_charge_ng
+        if full > 0 and mass > full * charge_share:
+            limit = "its full charge" if charge_share == 1 else f"{charge_share * 100:g} % of its full charge"
+            reasons.append(
+                f"The {word} of {_shown(mass, unit)} is more than {limit} ({_shown(full, unit)}) of {system.tag}."
+            )
+        if mass < SMALLEST_PLAUSIBLE_NG:
+            reasons.append(f"The {word} of {_shown(mass, unit)} is less than 1 g.")
+    if draft.kind is not EventKind.VOID:
+        for e in effective_events(history):
+            if (
+                e.kind is draft.kind
+                and e.performed_on == draft.performed_on
+                and e.mass_ng == mass
+                and (e.technician or None) == (draft.technician or None)
+            ):
+                who = f" by {e.technician}" if e.technician else " with no technician"
+                what = f" of {_shown(mass, unit)}" if mass is not None else ""
+                reasons.append(
+                    f"Event {e.id} already records a {draft.kind.value}{what} on {system.tag} on "
+                    f"{draft.performed_on.isoformat()}{who}."
+                )
+                break
+    return tuple(reasons)

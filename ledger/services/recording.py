@@ -10,11 +10,18 @@ import hashlib
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from datetime import date, datetime
+from decimal import Decimal
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from ledger.domain.drafts import EventDraft, cylinder_mass_ng, validate_event
+from ledger.domain.drafts import (
+    DEFAULT_CHARGE_SHARE,
+    EventDraft,
+    confirmation_reasons,
+    cylinder_mass_ng,
+    validate_event,
+)
 from ledger.domain.records import (
     Application,
     Certificate,
@@ -28,7 +35,7 @@ from ledger.domain.records import (
     System,
 )
 from ledger.domain.state import state_of
-from ledger.errors import Conflict, InputError, Rejected
+from ledger.errors import Conflict, InputError, NeedsConfirmation, Rejected
 from ledger.reference import load_reference
 from ledger.services import places
 from ledger.store import repository as repo
@@ -44,6 +51,9 @@ class Logged:
     warnings: tuple[Finding, ...] = field(default=())
     site_code: str = ""
     tag: str = ""
+    mass_ng: int | None = None  # the mass stored with the event (resolved from cylinder weights)
+    unit: str = "kg"  # the site's display unit
+    leak_rate: dict[str, Any] | None = None  # US sites, additions: the rate at this addition
 
 
 def site_today(timezone: str) -> date:
@@ -277,11 +287,24 @@ def _technician_for(name: str | None, on: date, *, conn) -> tuple[int | None, in
     return tech.id, cert_id, certificate_findings(tech, on)
 
 
-def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> Logged:
+def log_event(
+    db: Database,
+    *,
+    site_code: str,
+    tag: str,
+    draft: EventDraft,
+    confirm: bool = False,
+    charge_share: Decimal = DEFAULT_CHARGE_SHARE,
+) -> Logged:
     """Validate an event against the system's state and append it.
 
+    Args:
+        confirm: record it even when ``confirmation_reasons`` has doubts about it.
+        charge_share: a single addition or recovery above this share of the full charge asks
+            for confirmation (1 = 100 %).
     Raises:
         InputError: the first error finding; nothing is written.
+        NeedsConfirmation: doubts and ``confirm`` is False; nothing is written.
         NotFound: unknown site, system, technician or cylinder.
     """
     reference = load_reference()
@@ -316,6 +339,9 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
             placed_on=placed_on(events),
         )
         _raise_first_error(findings)
+        doubts = confirmation_reasons(draft, events, sys_, unit=the_site.mass_unit, charge_share=charge_share)
+        if doubts and not confirm:
+            raise NeedsConfirmation(doubts)
         tech_id, cert_id, _ = _technician_for(draft.technician, draft.performed_on, conn=conn)
         values = {
             "system_id": sys_.id,
@@ -339,8 +365,14 @@ def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft) -> L
             "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
         }
         event_id, head = repo.append_event(conn=conn, values=values)
+        rate = None
+        if the_site.country == "US" and draft.kind is EventKind.ADD:
+            from ledger.domain.leak_rate import leak_rates_json
+
+            history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
+            rate = next((r for r in leak_rates_json(history, date.max) if r["event_id"] == event_id), None)
     warnings = tuple(f for f in findings if f.severity is Severity.WARNING)
-    return Logged(event_id, head, warnings, site_code, tag)
+    return Logged(event_id, head, warnings, site_code, tag, draft.mass_ng, the_site.mass_unit, rate)
 
 
 def placed_on(events: Sequence[Event]) -> date | None:
@@ -348,20 +380,61 @@ def placed_on(events: Sequence[Event]) -> date | None:
     return min((e.performed_on for e in events if e.kind is EventKind.IN_SERVICE), default=None)
 
 
-def void_event(db: Database, *, event_id: int, reason: str, recorded_by: str | None = None) -> Logged:
-    """Void an earlier event (it stays in the ledger, marked, with the reason)."""
+def _void_target(event_id: int, site_code: str | None, tag: str | None, *, conn) -> tuple[int, str, Event]:  # type: ignore[no-untyped-def]
+    """The event to void, checked: it exists, belongs to SITE/TAG (when named) and may be voided."""
+    system_id, kind, ref = repo.event_system(event_id, conn=conn)
+    if site_code is not None and ref != f"{site_code}/{tag}":
+        raise Conflict(f"event: {event_id} belongs to {ref}, not to {site_code}/{tag}; nothing was voided")
+    events = repo.load_events([system_id], conn=conn)[system_id]
+    if kind == EventKind.VOID.value:
+        raise Conflict(f"event: {event_id} is itself a void; void cannot be voided")
+    if kind == EventKind.IN_SERVICE.value:
+        raise Conflict(f"event: {event_id} places the system in service and cannot be voided")
+    if any(e.voids_id == event_id for e in events):
+        raise Conflict(f"event: {event_id} is already voided")
+    return system_id, ref, next(e for e in events if e.id == event_id)
+
+
+def void_preview(db: Database, *, event_id: int, site_code: str, tag: str) -> dict[str, Any]:
+    """The event ``void_event`` would void, as plain data to show before asking (read only).
+
+    Raises:
+        NotFound: unknown event; Conflict: another system's event, or one that cannot be voided.
+    """
+    from ledger.services.queries import event_json
+
+    with db.read() as conn:
+        the_site, _ = repo.get_system(site_code, tag, conn=conn)
+        _, ref, target = _void_target(event_id, site_code, tag, conn=conn)
+    return {"system": ref, "unit": the_site.mass_unit, **event_json(target, {})}
+
+
+def void_event(
+    db: Database,
+    *,
+    event_id: int,
+    reason: str,
+    recorded_by: str | None = None,
+    site_code: str | None = None,
+    tag: str | None = None,
+) -> Logged:
+    """Void an earlier event (it stays in the ledger, marked, with the reason).
+
+    Args:
+        site_code, tag: the system the event must belong to (the CLI always names it).
+        recorded_by: who voids it; required.
+    Raises:
+        InputError: no reason or no one recording it; Conflict: the event is another system's
+            or cannot be voided; NotFound: unknown event. Nothing is written.
+    """
     if not reason.strip():
         raise InputError("--reason", reason, "must say why the event is voided")
+    if not (recorded_by or "").strip():
+        raise InputError("--by", recorded_by or "", "is required: who is voiding the event")
     with db.write() as conn:
-        system_id, kind, ref = repo.event_system(event_id, conn=conn)
-        events = repo.load_events([system_id], conn=conn)[system_id]
-        if kind == EventKind.VOID.value:
-            raise Conflict(f"event: {event_id} is itself a void; void cannot be voided")
-        if kind == EventKind.IN_SERVICE.value:
-            raise Conflict(f"event: {event_id} places the system in service and cannot be voided")
-        if any(e.voids_id == event_id for e in events):
-            raise Conflict(f"event: {event_id} is already voided")
-        target = next(e for e in events if e.id == event_id)
+        if site_code is not None:
+            repo.get_system(site_code, tag or "", conn=conn)  # an unknown system says so first
+        system_id, ref, target = _void_target(event_id, site_code, tag, conn=conn)
         new_id, head = repo.append_event(
             conn=conn,
             values={
@@ -370,11 +443,11 @@ def void_event(db: Database, *, event_id: int, reason: str, recorded_by: str | N
                 "performed_on": target.performed_on,
                 "voids_id": event_id,
                 "reason": reason.strip(),
-                "recorded_by": recorded_by,
+                "recorded_by": (recorded_by or "").strip(),
             },
         )
-    site_code, _, tag = ref.partition("/")
-    return Logged(new_id, head, (), site_code, tag)
+    site_part, _, tag_part = ref.partition("/")
+    return Logged(new_id, head, (), site_part, tag_part)
 
 
 def record_filing(

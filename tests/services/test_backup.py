@@ -45,7 +45,7 @@ def _fill(db: Database) -> None:
             note="=SUM(1)",
         ),
     )
-    void_event(db, event_id=e.event_id, reason="wrong cylinder")
+    void_event(db, event_id=e.event_id, reason="wrong cylinder", recorded_by="Office")
 
 
 def _snapshot(db: Database):  # type: ignore[no-untyped-def]

@@ -100,14 +100,14 @@ def test_void_keeps_the_event_and_records_the_reason(db: Database) -> None:
         tag="RACK",
         draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 3, 1), mass_ng=2_000_000_000_000),
     )
-    void_event(db, event_id=logged.event_id, reason="typed in lb")
+    void_event(db, event_id=logged.event_id, reason="typed in lb", recorded_by="Office")
     with db.read() as conn:
         events = repo.load_events(conn=conn)
     flat = [e for evs in events.values() for e in evs]
     assert any(e.id == logged.event_id for e in flat)
     assert any(e.kind is EventKind.VOID and e.voids_id == logged.event_id and e.reason == "typed in lb" for e in flat)
     with pytest.raises(Conflict):
-        void_event(db, event_id=logged.event_id, reason="again")
+        void_event(db, event_id=logged.event_id, reason="again", recorded_by="Office")
 
 
 def test_lapsed_certificate_is_recorded_with_a_warning(db: Database) -> None:

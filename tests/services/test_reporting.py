@@ -243,7 +243,7 @@ def _ledger(db: Database) -> None:
         technician="Ada Novak")
     wrong = log("RACK", kind=EventKind.ADD, performed_on=date(2024, 3, 2), mass_ng=65 * KG,
                 technician="Ada Novak", note='=HYPERLINK("x")')
-    void_event(db, event_id=wrong, reason="typed 65 kg, was 6.5 kg")
+    void_event(db, event_id=wrong, reason="typed 65 kg, was 6.5 kg", recorded_by="Office")
     log("RACK", kind=EventKind.ADD, performed_on=date(2024, 3, 2), cylinder_code="CY-R",
         cylinder_before_ng=48_200_000_000_000, cylinder_after_ng=41_700_000_000_000, technician="Ada Novak")
     log("RACK", kind=EventKind.FOLLOW_UP, performed_on=date(2024, 3, 20), result="pass",
