@@ -116,7 +116,7 @@ def parse_mass_exact(text: str, *, field: str = "mass") -> Decimal:
 
 
 def parse_mass_ng(text: str, *, field: str = "mass", allow_zero: bool = False) -> int:
-    """Parse a typed mass into integer nanograms, exactly.
+    """Parse a typed mass into integer nanograms (exact but for sub-nanogram parts of an ounce).
 
     Args:
         text: e.g. ``"2.5 kg"``.
@@ -126,16 +126,19 @@ def parse_mass_ng(text: str, *, field: str = "mass", allow_zero: bool = False) -
         The mass in integer nanograms.
     Raises:
         UnitError: as ``parse_mass_exact``; for negative (or zero) masses, masses above
-            ``MAX_NG`` and masses finer than a nanogram.
+            ``MAX_NG`` and masses that round to 0 ng.
     """
     exact = parse_mass_exact(text, field=field)
     if exact < 0 or (exact == 0 and not allow_zero):
         raise UnitError(field, text, "must be greater than zero")
     if exact > MAX_NG:
         raise UnitError(field, text, "is implausibly large (more than 100 t)")
-    if exact != exact.to_integral_value():
-        raise UnitError(field, text, "is finer than the ledger keeps (1 ng = 0.000000001 g)")
-    return int(exact)
+    # Whole kg, g, lb and oz figures (and kg/g/lb decimals) are whole nanograms; an odd tenth of
+    # an ounce is half a nanogram (1 oz = 28 349 523 125 ng), rounded half-up: 1e-21 kg.
+    stored = int(exact.quantize(Decimal(1), rounding=ROUND_HALF_UP))
+    if stored == 0 and not allow_zero:
+        raise UnitError(field, text, "is less than the ledger keeps (1 ng = 0.000000001 g)")
+    return stored
 
 
 def ng_to_kg(ng: int) -> Decimal:

@@ -57,6 +57,12 @@ def test_pounds_and_ounces_are_stored_exactly() -> None:
     assert ng_to_kg(parse_mass_ng("100 lb")) == Decimal("45.359237")
 
 
+def test_a_tenth_of_an_ounce_rounds_to_the_nanogram() -> None:
+    # 0.1 oz = 2 834 952 312.5 ng (1 oz = 28 349 523 125 ng): half-up to the whole ng
+    assert parse_mass_ng("0.1 oz") == 2_834_952_313
+    assert parse_mass_ng("0.2 oz") == 5_669_904_625
+
+
 def test_sums_of_pounds_are_exact() -> None:
     # 10 x 1 lb is exactly 10 lb, and 5 x 25 lb exactly 125 lb: no rounding to accumulate
     assert sum(parse_mass_ng("1 lb") for _ in range(10)) == parse_mass_ng("10 lb")
@@ -96,7 +102,7 @@ def test_fast_units_agree_with_pint() -> None:
         ("1 dram", "does not take; use kg, g, lb or oz"),
         ("0.0001 mg", "does not take; use kg, g, lb or oz"),
         ("500 mg", "does not take; use kg, g, lb or oz"),
-        ("1e-10 g", "finer than the ledger keeps"),
+        ("1e-10 g", "less than the ledger keeps"),
     ],
 )
 def test_bad_masses_name_the_field_and_value(text: str, fragment: str) -> None:
