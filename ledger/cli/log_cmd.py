@@ -35,6 +35,13 @@ Confirm = Annotated[
     bool,
     typer.Option("--confirm", help="Record it although it looks like a mistake (the command says why it asks)."),
 ]
+Facility = Annotated[
+    str | None,
+    typer.Option("--facility", help="EU Art 6(c): recycling, reclamation or destruction facility, name and address."),
+]
+FacilityCert = Annotated[
+    str | None, typer.Option("--facility-certificate", help="EU Art 6(c): that facility's certificate number.")
+]
 # A single addition or recovery above this percentage of the full charge asks for --confirm.
 SHARE_ENV = "REFLEDGER_CONFIRM_ABOVE_PERCENT"
 
@@ -43,6 +50,11 @@ def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | No
     from ledger.units import parse_mass_ng
 
     return parse_mass_ng(text, field=field, allow_zero=allow_zero) if text is not None else None
+
+
+def _text(value: str | None) -> str | None:
+    """Stripped text, or None when nothing was given."""
+    return value.strip() or None if value is not None else None
 
 
 def _charge_share() -> Any:
@@ -141,6 +153,8 @@ def add(
     after: After = None,
     refrigerant: Annotated[str | None, typer.Option("--refrigerant", help="Assert the gas added.")] = None,
     reclaimed: Annotated[bool, typer.Option("--reclaimed", help="Recycled or reclaimed gas.")] = False,
+    facility: Facility = None,
+    facility_certificate: FacilityCert = None,
     tech: Tech = None,
     note: Note = "",
     by: By = None,
@@ -160,6 +174,8 @@ def add(
         by,
         attach,
         confirm=confirm,
+        facility=_text(facility),
+        facility_certificate=_text(facility_certificate),
         mass_ng=_mass(mass, "--mass"),
         cylinder_code=cylinder,
         cylinder_before_ng=_mass(before, "--before"),
@@ -180,6 +196,8 @@ def recover(
     destination: Annotated[
         str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")
     ] = None,
+    facility: Facility = None,
+    facility_certificate: FacilityCert = None,
     tech: Tech = None,
     note: Note = "",
     by: By = None,
@@ -199,6 +217,8 @@ def recover(
         by,
         attach,
         confirm=confirm,
+        facility=_text(facility),
+        facility_certificate=_text(facility_certificate),
         mass_ng=_mass(mass, "--mass"),
         cylinder_code=cylinder,
         cylinder_before_ng=_mass(before, "--before"),
@@ -349,6 +369,8 @@ def retire(
         str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")
     ] = None,
     cylinder: Cylinder = None,
+    facility: Facility = None,
+    facility_certificate: FacilityCert = None,
     tech: Tech = None,
     note: Note = "",
     by: By = None,
@@ -368,6 +390,8 @@ def retire(
         by,
         attach,
         confirm=confirm,
+        facility=_text(facility),
+        facility_certificate=_text(facility_certificate),
         mass_ng=_mass(recovered, "--recovered", allow_zero=True),
         destination=destination,
         cylinder_code=cylinder,

@@ -56,6 +56,8 @@ class EventDraft:
     reason: str | None = None
     attachments: tuple[str, ...] = ()
     reclaimed: bool = False
+    facility: str | None = None  # EU Art 6(c): recycling/reclamation/destruction facility
+    facility_certificate: str | None = None  # ... its certificate number, where applicable
 
 
 def error(field: str, message: str, source: str = "input") -> Finding:
@@ -149,6 +151,11 @@ def validate_event(
         )
     if cylinder is not None and kind not in MASS_KINDS:
         found.append(error("--cylinder", f"does not apply to a {kind.value} event"))
+    for flag, value in (("--facility", draft.facility), ("--facility-certificate", draft.facility_certificate)):
+        if value is not None and kind not in MASS_KINDS:
+            found.append(error(flag, f"does not apply to a {kind.value} event (only to add, recover, retire)"))
+    if draft.facility_certificate is not None and not draft.facility:
+        found.append(error("--facility-certificate", "needs --facility (the facility it certifies)"))
     if kind is EventKind.CHECK:
         if draft.result not in {r.value for r in CheckResult}:
             found.append(error("--result", f"{draft.result!r} is not one of no-leak, leak-found"))

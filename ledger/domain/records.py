@@ -208,6 +208,8 @@ class Event:
     attachments: tuple[str, ...] = ()  # SHA-256 hex digests of documents
     reclaimed: bool = False  # added refrigerant was recycled or reclaimed gas
     chain_hash: str | None = None
+    facility: str | None = None  # EU Art 6(c): recycling/reclamation/destruction facility, name and address
+    facility_certificate: str | None = None  # ... and its certificate number, where applicable
 
 
 @dataclass(frozen=True, slots=True)

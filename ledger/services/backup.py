@@ -271,6 +271,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
                 "recorded_at": e.recorded_at.isoformat() if e.recorded_at else "",
                 "attachments": " ".join(e.attachments),
                 "voids": hashes.get(e.voids_id, "") if e.voids_id else "", "reason": e.reason or "",
+                "facility": e.facility or "", "facility_certificate": e.facility_certificate or "",
             })
     book = Workbook()
     book.remove(book.active)

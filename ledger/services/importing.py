@@ -96,6 +96,8 @@ COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
                 "attachments",
                 "voids",
                 "reason",
+                "facility",
+                "facility_certificate",
             }
         ),
     ),
@@ -772,6 +774,8 @@ class _Job:
                 reclaimed=c.flag("reclaimed") if cells.get("reclaimed") else False,
                 voids_id=voids_id,
                 reason=text("reason") or None,
+                facility=text("facility") or None,
+                facility_certificate=text("facility_certificate") or None,
             )
             if draft.technician and draft.technician not in techs:
                 c.fail("tech", "is not a technician in the ledger or the input")
@@ -852,6 +856,8 @@ class _Job:
                     "reason": draft.reason,
                     "attachments": attached,
                     "reclaimed": int(reclaimed),
+                    "facility": draft.facility,
+                    "facility_certificate": draft.facility_certificate,
                     "v": chain.CHAIN_VERSION,
                 },
             )
@@ -861,7 +867,8 @@ class _Job:
                     sid, kind.value, on, recorded_at, draft.mass_ng, refrigerant, draft.charge_ng, draft.result,
                     draft.location, draft.method, draft.destination, cylinder_ids.get(draft.cylinder_code or ""),
                     draft.cylinder_before_ng, draft.cylinder_after_ng, tech_id, cert_id, draft.recorded_by,
-                    draft.note, attached, reclaimed, key, voids_id, draft.reason, prev, chain_hash,
+                    draft.note, attached, reclaimed, key, voids_id, draft.reason, draft.facility,
+                    draft.facility_certificate, prev, chain_hash,
                 )
             )
             keys.add(key)
@@ -962,7 +969,7 @@ _EVENT_COLUMNS = (
     "system_id", "kind", "performed_on", "recorded_at", "mass_ng", "refrigerant", "charge_ng", "result",
     "location", "method", "destination", "cylinder_id", "cylinder_before_ng", "cylinder_after_ng",
     "technician_id", "certificate_id", "recorded_by", "note", "attachments", "reclaimed", "content_key",
-    "voids_id", "reason", "prev_hash", "chain_hash",
+    "voids_id", "reason", "facility", "facility_certificate", "prev_hash", "chain_hash",
 )
 # The kinds that decide a system's refrigerant and retirement (see _Job.events).
 _FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RETIRE, EventKind.VOID})
@@ -1017,5 +1024,6 @@ def _column_for(f: Finding) -> str:
         "refrigerant": "refrigerant",
         "destination": "destination",
         "tech": "tech",
+        "facility-certificate": "facility_certificate",
     }
     return mapping.get(name, name or "kind")

@@ -105,6 +105,8 @@ def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
         "void_reason": void.reason if void else None,
         "attachments": list(e.attachments),
         "reclaimed": e.reclaimed,
+        "facility": e.facility,
+        "facility_certificate": e.facility_certificate,
         "chain_hash": e.chain_hash,
     }
 

@@ -363,6 +363,8 @@ def log_event(
             "note": draft.note,
             "attachments": " ".join(draft.attachments),
             "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
+            "facility": draft.facility,
+            "facility_certificate": draft.facility_certificate,
         }
         event_id, head = repo.append_event(conn=conn, values=values)
         rate = None

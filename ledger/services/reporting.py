@@ -896,6 +896,8 @@ def logbook_data(
             "cylinder_before_kg": _kg(e.cylinder_before_ng),
             "cylinder_after_kg": _kg(e.cylinder_after_ng),
             "reclaimed": e.reclaimed,
+            "facility": e.facility,
+            "facility_certificate": e.facility_certificate,
             "result": e.result,
             "location": e.location,
             "method": e.method,

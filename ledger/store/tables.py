@@ -143,6 +143,10 @@ event = Table(
     Column("attachments", Text, nullable=False, server_default=""),  # space-separated SHA-256
     Column("reclaimed", Boolean, nullable=False, server_default="0"),
     Column("content_key", String(64)),  # import idempotency: digest of the imported row
+    # EU 2024/573 Art 6(c) (517/2014 Art 6(1)(c)): the recycling, reclamation or destruction
+    # facility (name and address) and, where applicable, its certificate number
+    Column("facility", Text),
+    Column("facility_certificate", String(200)),
     Column("prev_hash", String(64), nullable=False),
     Column("chain_hash", String(64), nullable=False, unique=True),
     Index("ix_event_system_id_id", "system_id", "id"),

@@ -187,6 +187,7 @@ def test_rows_written_as_tuples_are_the_rows_insert_writes(db: Database, tmp_pat
             "cylinder_after_ng": None,
             "technician_id": None, "certificate_id": None, "recorded_by": "Office", "note": "a \"note\"",
             "attachments": "", "reclaimed": True, "content_key": "k" * 64, "voids_id": None, "reason": None,
+            "facility": "Reclaim Nord, Kiel", "facility_certificate": None,
             "prev_hash": chain.GENESIS, "chain_hash": "1" * 64,
         }
         conn.execute(insert(event), [values])

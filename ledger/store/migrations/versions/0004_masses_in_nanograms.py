@@ -1,4 +1,4 @@
-"""Masses in integer nanograms, so that kg, g, lb and oz quantities are all exact.
+"""Masses in integer nanograms (kg, g, lb and oz all exact); EU Art 6(c) facility fields.
 
 Written by hand. Renames every mass column ``*_mg`` to ``*_ng`` and multiplies its values by
 10^6, keeping every record. 1 lb = 453 592 370 000 ng and 1 oz = 28 349 523 125 ng exactly
@@ -10,6 +10,9 @@ Events are append-only (triggers of 0001); the triggers are dropped for the one 
 created again exactly as 0001 made them. The hash chain is unaffected: its canonical form
 keeps the keys ``mass_mg`` etc. with the exact milligram value (ledger/store/chain.py), which
 for every row migrated here is the same integer that was hashed before.
+
+Also adds ``event.facility`` and ``event.facility_certificate`` (EU 2024/573 Art 6(c): the
+recycling, reclamation or destruction facility and its certificate number).
 
 Downgrade divides by 10^6, rounding half away from zero: a mass entered in lb or oz after
 this upgrade loses its sub-milligram part, and such an event no longer verifies under the
@@ -57,12 +60,19 @@ def upgrade() -> None:
         op.execute(f"ALTER TABLE {table} RENAME COLUMN {old} TO {new}")
         op.execute(f"UPDATE {table} SET {new} = {new} * {NG_PER_MG} WHERE {new} IS NOT NULL")
     _create_append_only_triggers()
+    # EU 2024/573 Art 6(c): the facility that recycled, reclaimed or destroyed the gas and its
+    # certificate number, on the events that move refrigerant (hashed only when set).
+    op.add_column("event", sa.Column("facility", sa.Text(), nullable=True))
+    op.add_column("event", sa.Column("facility_certificate", sa.String(length=200), nullable=True))
     # Kept results hold masses of the old unit: make every site's kept rows stale.
     op.execute("UPDATE site_revision SET n = n + 1")
 
 
 def downgrade() -> None:
     half = NG_PER_MG // 2
+    # The Art 6(c) facility fields are lost (an event that had them no longer verifies).
+    op.execute("ALTER TABLE event DROP COLUMN facility_certificate")
+    op.execute("ALTER TABLE event DROP COLUMN facility")
     _drop_append_only_triggers()
     for table, old, new in MASS_COLUMNS:
         op.execute(
