@@ -403,7 +403,7 @@ def void(
     ref: Ref,
     event_id: Annotated[int, typer.Argument(metavar="EVENT", help="Id of the event to void (of that system).")],
     reason: Annotated[str, typer.Option("--reason", help="Why it is wrong.")],
-    by: Annotated[str, typer.Option("--by", help="Who is voiding it (required).")],
+    by: Annotated[str | None, typer.Option("--by", help="Who is voiding it (required).")] = None,
     yes: Annotated[bool, typer.Option("--yes", help="Void without asking (needed when not at a terminal).")] = False,
     json_out: Annotated[bool, typer.Option("--json", help="Print the voided event and the void as JSON.")] = False,
 ) -> None:
@@ -421,8 +421,8 @@ def void(
     from ledger.services.recording import void_event, void_preview
 
     site_code, tag = parse_system_ref(ref)
-    if not by.strip():
-        raise fail("--by: '' is required: who is voiding the event")
+    if not (by or "").strip():
+        raise fail("--by: is required: who is voiding the event")
     db = context.open_db()
     target = void_preview(db, event_id=event_id, site_code=site_code, tag=tag)
     shown = _event_line(target)

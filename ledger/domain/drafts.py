@@ -235,7 +235,8 @@ def confirmation_reasons(
         word = _MOVING_WORD[draft.kind]
         full = state_of(history, draft.performed_on).full_charge_ng
         if full > 0 and mass > full * charge_share:
-            limit = "its full charge" if charge_share == 1 else f"{charge_share * 100:g} % of its full charge"
+            share = f"{(charge_share * 100).normalize():f} % of "
+            limit = "its full charge" if charge_share == 1 else f"{share}its full charge"
             reasons.append(
                 f"The {word} of {_shown(mass, unit)} is more than {limit} ({_shown(full, unit)}) of {system.tag}."
             )
