@@ -253,7 +253,7 @@ def confirmation_reasons(
                 who = f" by {e.technician}" if e.technician else " with no technician"
                 what = f" of {_shown(mass, unit)}" if mass is not None else ""
                 reasons.append(
-                    f"Event {e.id} already records a {draft.kind.value}{what} on {system.tag} on "
+                    f"Event {e.id} already records the same {draft.kind.value}{what} on {system.tag} on "
                     f"{draft.performed_on.isoformat()}{who}."
                 )
                 break

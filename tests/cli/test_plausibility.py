@@ -124,14 +124,14 @@ def test_the_same_event_twice_asks_for_confirmation(location: Location) -> None:
     _estate(location)
     first = [*ADD, "--mass", "2 kg", "--tech", "Ada Novak"]
     ok(run(location, *first))
-    refused(location, first, "already records a add of 2.00 kg on CU on 2024-03-01 by Ada Novak.")
+    refused(location, first, "already records the same add of 2.00 kg on CU on 2024-03-01 by Ada Novak.")
     # another day, mass or technician is another event
     ok(run(location, "log", "add", "DE-1/CU", "--on", "2024-03-02", "--mass", "2 kg", "--tech", "Ada Novak"))
     ok(run(location, *ADD, "--mass", "2.1 kg", "--tech", "Ada Novak"))
     ok(run(location, *ADD, "--mass", "2 kg"))
     ok(run(location, "log", "check", "DE-1/CU", "--on", ON, "--result", "no-leak"))
     refused(location, ["log", "check", "DE-1/CU", "--on", ON, "--result", "no-leak"],
-            "already records a check on CU on 2024-03-01 with no technician.")
+            "already records the same check on CU on 2024-03-01 with no technician.")
     before = events(location)
     ok(run(location, *first, "--confirm"))
     assert events(location) == before + 1

@@ -244,3 +244,23 @@ def test_site_regimes_default_from_country(db: Database) -> None:
     assert ca.regimes == ("us-82f", "us-84c", "us-ca")
     assert ca.timezone == "America/Los_Angeles" and ca.mass_unit == "lb"
     assert add_site(db, code="E", name="E", country="JP").regimes == ()
+
+
+def test_a_doubtful_event_raises_needs_confirmation_and_writes_nothing(db: Database) -> None:
+    # the interface other callers rely on: NeedsConfirmation.reasons, confirm=True records it
+    from ledger.errors import NeedsConfirmation
+    from ledger.units import parse_mass_ng
+
+    add_site(db, code="DE-9", name="S", country="DE")
+    add_system(db, site_code="DE-9", tag="CU", refrigerant="R-404A", charge_ng=parse_mass_ng("11.5 kg"),
+               application="commercial-refrigeration", in_service_on=date(2024, 1, 1))
+    draft = EventDraft(kind=EventKind.ADD, performed_on=date(2024, 3, 1), mass_ng=parse_mass_ng("99999 kg"))
+    with db.read() as conn:
+        before = len(repo.load_events(conn=conn)[1])
+    with pytest.raises(NeedsConfirmation) as info:
+        log_event(db, site_code="DE-9", tag="CU", draft=draft)
+    assert info.value.reasons == ("The addition of 99999.00 kg is more than its full charge (11.50 kg) of CU.",)
+    with db.read() as conn:
+        assert len(repo.load_events(conn=conn)[1]) == before
+    logged = log_event(db, site_code="DE-9", tag="CU", draft=draft, confirm=True)
+    assert logged.mass_ng == parse_mass_ng("99999 kg") and logged.unit == "kg"
