@@ -1000,7 +1000,7 @@ def _chain_link(prev_hash: str, body: dict[str, Any]) -> str:
         if v is None and optional:
             continue
         if is_mass:
-            v = chain.legacy_mg(v)
+            v = chain.legacy_mg(v)  # ng-rename: keep
         parts.append(key + ("null" if v is None else _quote(v) if type(v) is str else _json_value(v)))
     return hashlib.sha256(f"{prev_hash}\n{{{','.join(parts)}}}".encode()).hexdigest()
 

@@ -79,6 +79,7 @@ OPTIONAL_FIELDS: tuple[str, ...] = (
     "facility",  # EU 2024/573 Art 6(c): recycling/reclamation/destruction facility, name and address
     "facility_certificate",  # ... and its certificate number, where applicable
 )
+# ng-rename: off (milligrams on purpose, to the end marker below)
 _NG_PER_MG = 1_000_000
 
 
@@ -104,6 +105,7 @@ def hashed_body(row: Mapping[str, Any]) -> dict[str, Any]:
     for name in CANONICAL_FIELDS:
         source = LEGACY_MASS_KEYS.get(name)
         body[name] = _plain(row.get(name)) if source is None else legacy_mg(row.get(source))
+    # ng-rename: on
     for name in OPTIONAL_FIELDS:
         value = _plain(row.get(name))
         if value is not None:

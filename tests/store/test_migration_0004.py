@@ -1,3 +1,4 @@
+# ng-rename: off (this file names the milligram columns and hashed keys on purpose)
 """Migration 0004: masses from integer milligrams to integer nanograms, every record kept.
 
 The ledger is built at head, taken down to 0003 (the milligram schema) and up again, on
