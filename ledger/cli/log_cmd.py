@@ -120,8 +120,11 @@ def _stored(logged: Any) -> str:
 
     if logged.mass_ng is None:
         return ""
-    places = 2 if logged.mass_ng >= 10 * 10**9 else 4
-    return f": {format_mass(logged.mass_ng, logged.unit, places=places)} stored"
+    # to the mg (kg) or 1e-6 lb, trailing zeros dropped down to two decimals: 2.494758 kg,
+    # 10.00 lb, 0.0005 kg
+    number, unit = format_mass(logged.mass_ng, logged.unit, places=6).split()
+    whole, _, decimals = number.partition(".")
+    return f": {whole}.{decimals.rstrip('0').ljust(2, '0')} {unit} stored"
 
 
 def _rate_line(rate: dict[str, Any]) -> str:

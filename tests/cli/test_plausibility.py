@@ -162,7 +162,8 @@ def test_log_prints_the_stored_mass_and_on_us_sites_the_leak_rate(location: Loca
     _estate(location)
     result = run(location, "log", "add", "DE-1/RACK", "--on", ON, "--mass", "5 lb 8 oz")
     ok(result)
-    assert "2.49 kg stored" in result.stdout and "leak rate" not in result.stdout
+    # 5.5 lb = 2.494758035 kg (1959 pound), shown to the mg
+    assert "2.494758 kg stored" in result.stdout and "leak rate" not in result.stdout
 
 
 def test_facility_fields_on_recoveries(location: Location) -> None:
