@@ -53,12 +53,16 @@ class Rejected(LedgerError):
 
 
 class NeedsConfirmation(LedgerError):
-    """A request that looks like a mistake (e.g. a duplicate of an entry just made); nothing was
-    written. Repeat it with confirmation (``--confirm`` in the CLI) to record it anyway."""
+    """A request that is possible but looks like a mistake; repeat it with confirmation.
 
-    def __init__(self, reasons: tuple[str, ...]) -> None:
+    ``reasons`` holds one human sentence per doubt (a mass above the full charge, below 1 g,
+    the same event recorded already). Nothing was written.
+    """
+
+    def __init__(self, reasons: tuple[str, ...], hint: str = "repeat with --confirm if it is right") -> None:
         self.reasons = tuple(reasons)
-        super().__init__("confirm: " + "; ".join(self.reasons) + " (repeat with --confirm to record it anyway)")
+        self.hint = hint
+        super().__init__(f"confirm: {' '.join(self.reasons)} Nothing was recorded; {hint}.")
 
     def __reduce__(self):  # type: ignore[no-untyped-def]
-        return (type(self), (self.reasons,))  # keeps the reasons across processes (pickling)
+        return (type(self), (self.reasons, self.hint))  # keeps the reasons across processes (pickling)

@@ -1,39 +1,41 @@
 """Masses: parsing what people type, storing exactly, showing in the site's unit.
 
-The ledger stores every mass as integer milligrams. A pound is exactly 0.45359237 kg
-(international yard and pound agreement, 1959), so one pound is 453 592.37 mg and is stored
-to the nearest milligram (half-up); amounts typed in kg or g are stored exactly.
+The ledger stores every mass as integer nanograms. A pound is exactly 0.45359237 kg
+(international yard and pound agreement, 1959), so one pound is 453 592 370 000 ng and one
+ounce 28 349 523 125 ng: masses typed in kg, g, lb or oz, and their sums, are all exact, and
+threshold tests ("exceeds 10 %", "more than 50 lb") compare exact integers.
 
 Parsing accepts one or more ``number unit`` pairs that are summed: ``2.5 kg``, ``850 g``,
-``5 lb 8 oz``, ``40 oz``, ``3.1 lbs``. The common units resolve from a table of exact
-factors (checked against pint in the tests) so that a ``log`` command does not pay for
-loading pint; anything else goes to the project's one pint registry, which also decides
-whether an unfamiliar unit is a mass at all.
+``5 lb 8 oz``, ``40 oz``, ``3.1 lbs``, in the units of ``_FAST_UNITS`` only (exact factors,
+checked against pint in the tests). Any other unit is refused with a message listing the
+accepted ones; pint is loaded only then, to say whether the refused unit was a mass at all.
 """
 
 from __future__ import annotations
 
 import re
-from decimal import ROUND_HALF_UP, Decimal, InvalidOperation
+from decimal import ROUND_HALF_UP, Context, Decimal, InvalidOperation, localcontext
 from functools import cache
 from typing import Any
 
 from ledger.errors import UnitError
 
-NG_PER_LB = Decimal("453592.37")  # exact by the 1959 definition of the international pound
-NG_PER_OZ = NG_PER_LB / 16  # avoirdupois ounce = 1/16 lb = 28 349.523125 mg, exact
-NG_PER_KG = Decimal(1_000_000)
+NG_PER_G = 1_000_000_000
+NG_PER_KG = 1000 * NG_PER_G
+NG_PER_LB = 453_592_370_000  # exact: 1 lb = 0.45359237 kg (international pound, 1959 agreement)
+NG_PER_OZ = 28_349_523_125  # exact: avoirdupois ounce = 1/16 lb = 28.349523125 g
 
-# Exact factors for the units technicians type; keys are lower-case.
-_FAST_UNITS: dict[str, Decimal] = {
+# The units a refrigerant mass may be typed in; keys are lower-case. Nothing else is taken:
+# tonnes, tons (short, long or "metric"?), grains, carats, drams and milligrams are refused,
+# so a slip of the unit cannot store a mass a thousand times off. Spelled-out forms only.
+_FAST_UNITS: dict[str, int] = {
     "kg": NG_PER_KG,
     "kgs": NG_PER_KG,
     "kilogram": NG_PER_KG,
     "kilograms": NG_PER_KG,
-    "g": Decimal(1000),
-    "gram": Decimal(1000),
-    "grams": Decimal(1000),
-    "mg": Decimal(1),
+    "g": NG_PER_G,
+    "gram": NG_PER_G,
+    "grams": NG_PER_G,
     "lb": NG_PER_LB,
     "lbs": NG_PER_LB,
     "pound": NG_PER_LB,
@@ -41,15 +43,18 @@ _FAST_UNITS: dict[str, Decimal] = {
     "oz": NG_PER_OZ,
     "ounce": NG_PER_OZ,
     "ounces": NG_PER_OZ,
-    "t": Decimal(1_000_000_000),
-    "tonne": Decimal(1_000_000_000),
-    "tonnes": Decimal(1_000_000_000),
 }
+ACCEPTED_UNITS = "kg, g, lb or oz"
+_WIDE = Context(prec=120)
 
 _PAIR = re.compile(r"\s*([+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)\s*([^\d\s.,+-][^\d\s]*)?")
 
 DISPLAY_UNITS = ("kg", "lb")
-MAX_NG = Decimal(10) ** 15  # a million tonnes: certainly a typing error
+# The most a single typed mass may be: 100 t (the largest refrigerant charges are a few
+# tonnes; common practice, no source). Stored masses are BIGINT nanograms, which hold up to
+# 9.22e18 ng = 9 223 t; every sum of masses is taken in Python integers, never in SQL or
+# pandas, so totals cannot overflow.
+MAX_NG = 100 * 1000 * NG_PER_KG
 
 
 @cache
@@ -60,35 +65,35 @@ def registry() -> Any:
     return pint.UnitRegistry(non_int_type=Decimal)
 
 
-def _factor_ng(unit: str, text: str, field: str) -> Decimal:
+def _factor_ng(unit: str, text: str, field: str) -> int:
     key = unit.lower()
     if key in _FAST_UNITS:
         return _FAST_UNITS[key]
-    ureg = registry()
+    ureg = registry()  # only to say what the refused unit is
     try:
         quantity = ureg.Quantity(Decimal(1), unit)
     except Exception as exc:  # pint raises several unrelated types for unknown names
-        raise UnitError(field, text, f"has an unknown unit {unit!r} (use kg, g, lb or oz)") from exc
+        raise UnitError(field, text, f"has an unknown unit {unit!r}; use {ACCEPTED_UNITS}") from exc
     if not quantity.check("[mass]"):
-        raise UnitError(field, text, f"is not a mass ({unit!r} is not a unit of mass)")
-    return Decimal(quantity.to("milligram").magnitude)
+        raise UnitError(field, text, f"is not a mass ({unit!r} is not a unit of mass); use {ACCEPTED_UNITS}")
+    raise UnitError(field, text, f"uses {unit!r}, which the ledger does not take; use {ACCEPTED_UNITS}")
 
 
 def parse_mass_exact(text: str, *, field: str = "mass") -> Decimal:
-    """Parse a typed mass into exact milligrams (a Decimal, not yet rounded).
+    """Parse a typed mass into exact nanograms (a Decimal, not yet checked for whole ng).
 
     Args:
         text: e.g. ``"2.5 kg"``, ``"5 lb 8 oz"``.
         field: the name of the field, used in error messages.
     Returns:
-        The mass in milligrams as an exact Decimal.
+        The mass in nanograms as an exact Decimal.
     Raises:
-        UnitError: empty text, a number without a unit, an unknown or non-mass unit.
+        UnitError: empty text, a number without a unit, a unit other than kg, g, lb or oz.
     """
     source = str(text).strip()
     if not source:
         raise UnitError(field, text, "is empty; give a mass with a unit such as 2.5 kg")
-    pos, total, pairs = 0, Decimal(0), 0
+    pos, total = 0, Decimal(0)
     while pos < len(source):
         match = _PAIR.match(source, pos)
         if match is None or match.end() == pos:
@@ -102,59 +107,65 @@ def parse_mass_exact(text: str, *, field: str = "mass") -> Decimal:
             value = Decimal(number.replace(",", "."))
         except InvalidOperation as exc:
             raise UnitError(field, text, "is not a number") from exc
-        total += value * _factor_ng(unit, text, field)
-        pairs += 1
+        if not value.is_finite() or abs(value.adjusted()) > 30 or len(number) > 40:
+            raise UnitError(field, text, "is not a plausible number")
+        with localcontext(_WIDE):  # wide enough that every product and sum here is exact
+            total += value * _factor_ng(unit, text, field)
         pos = match.end()
-    if not total.is_finite():
-        raise UnitError(field, text, "is not a finite number")
     return total
 
 
 def parse_mass_ng(text: str, *, field: str = "mass", allow_zero: bool = False) -> int:
-    """Parse a typed mass into integer milligrams, rounded half-up.
+    """Parse a typed mass into integer nanograms (exact but for sub-nanogram parts of an ounce).
 
     Args:
         text: e.g. ``"2.5 kg"``.
         field: the name of the field, used in error messages.
         allow_zero: accept 0 (e.g. nothing recovered at retirement).
     Returns:
-        The mass in integer milligrams.
+        The mass in integer nanograms.
     Raises:
-        UnitError: as ``parse_mass_exact``, and for negative (or zero) masses.
+        UnitError: as ``parse_mass_exact``; for negative (or zero) masses, masses above
+            ``MAX_NG`` and masses that round to 0 ng.
     """
     exact = parse_mass_exact(text, field=field)
     if exact < 0 or (exact == 0 and not allow_zero):
         raise UnitError(field, text, "must be greater than zero")
     if exact > MAX_NG:
-        raise UnitError(field, text, "is implausibly large")
-    return int(exact.quantize(Decimal(1), rounding=ROUND_HALF_UP))
+        raise UnitError(field, text, "is implausibly large (more than 100 t)")
+    # Whole kg, g, lb and oz figures (and kg/g/lb decimals) are whole nanograms; an odd tenth of
+    # an ounce is half a nanogram (1 oz = 28 349 523 125 ng), rounded half-up: 1e-21 kg.
+    stored = int(exact.quantize(Decimal(1), rounding=ROUND_HALF_UP))
+    if stored == 0 and not allow_zero:
+        raise UnitError(field, text, "is less than the ledger keeps (1 ng = 0.000000001 g)")
+    return stored
 
 
-def ng_to_kg(mg: int) -> Decimal:
-    """Exact kilograms from milligrams."""
-    return Decimal(mg) / NG_PER_KG
+def ng_to_kg(ng: int) -> Decimal:
+    """Exact kilograms from nanograms."""
+    return Decimal(ng) / NG_PER_KG
 
 
-def ng_to_lb(mg: int) -> Decimal:
-    """Pounds from milligrams (exact to Decimal's 28 digits)."""
-    return Decimal(mg) / NG_PER_LB
+def ng_to_lb(ng: int) -> Decimal:
+    """Pounds from nanograms (exact to Decimal's 28 digits)."""
+    return Decimal(ng) / NG_PER_LB
 
 
 def lb_to_ng(lb: Decimal | int | str) -> Decimal:
-    """Exact milligrams of a pound figure (thresholds in the US rules)."""
+    """Exact nanograms of a pound figure (thresholds in the US rules)."""
     return Decimal(lb) * NG_PER_LB
 
 
-def format_mass(mg: int | None, unit: str = "kg", places: int = 2) -> str:
+def format_mass(ng: int | None, unit: str = "kg", places: int = 2) -> str:
     """Show a mass in kg or lb, rounded half-up for display only.
 
     Args:
-        mg: the mass in milligrams (None gives an empty string).
+        ng: the mass in nanograms (None gives an empty string).
         unit: ``kg`` or ``lb``.
         places: decimals shown.
     """
-    if mg is None:
+    if ng is None:
         return ""
-    value = ng_to_lb(mg) if unit == "lb" else ng_to_kg(mg)
+    value = ng_to_lb(ng) if unit == "lb" else ng_to_kg(ng)
     q = Decimal(1).scaleb(-places)
     return f"{value.quantize(q, rounding=ROUND_HALF_UP)} {unit}"

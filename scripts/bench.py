@@ -213,7 +213,7 @@ def _pick(rng: random.Random, weights: dict[str, int]) -> str:
 
 
 def _ng(kg: float) -> int:
-    return int(round(kg * 1_000_000))
+    return int(round(kg * 10**12))
 
 
 @dataclass
@@ -556,7 +556,7 @@ def import_rows(estate: Estate, n_rows: int) -> tuple[list[dict[str, str]], list
         elif roll < 0.9:
             grams = rng.randint(200, 9000)
             cells.update(kind="add", mass=f"{grams} g")
-            mass_ng = grams * 1000
+            mass_ng = grams * 10**9
         else:
             cells.update(kind="detection-check")
         cells["note"] = f"contractor upload row {len(rows) + 1}"
@@ -950,8 +950,8 @@ def child(name: str, side: str, ctx: dict[str, Any]) -> dict[str, Any]:
             seconds = time.perf_counter() - t0
             extra = {
                 "groups": len(rows),
-                "added_kg": str(sum(r[2] or 0 for r in rows) / 1_000_000),
-                "recovered_kg": str(sum(r[3] or 0 for r in rows) / 1_000_000),
+                "added_kg": str(sum(r[2] or 0 for r in rows) / 10**12),
+                "recovered_kg": str(sum(r[3] or 0 for r in rows) / 10**12),
                 "checks_done": sum(r[4] or 0 for r in rows),
             }
             con.close()
@@ -1028,7 +1028,7 @@ def child(name: str, side: str, ctx: dict[str, Any]) -> dict[str, Any]:
             cmd = [exe, "--help"]
         elif side == "ours":
             cmd = [exe, "--db", url, "log", "add", ctx["log_ref"], "--on", cal.as_of.isoformat(),
-                   "--mass", "1.5kg", "--tech", ctx["log_tech"], "--confirm"]  # repeated on purpose
+                   "--mass", "1.5kg", "--tech", ctx["log_tech"], "--confirm"]  # the runs repeat one event
         else:
             cmd = [sys.executable, "-c", "import typer, sqlalchemy"]
         # Bytecode is cached (in the work folder, not the source tree) as for an installed

@@ -32,8 +32,18 @@ Cylinder = Annotated[str | None, typer.Option("--cylinder", help="Cylinder id.")
 Before = Annotated[str | None, typer.Option("--before", help="Cylinder weight before.")]
 After = Annotated[str | None, typer.Option("--after", help="Cylinder weight after.")]
 Confirm = Annotated[
-    bool, typer.Option("--confirm", help="Record it even if it looks like a duplicate of an entry already made.")
+    bool,
+    typer.Option("--confirm", help="Record it although it looks like a mistake (the command says why it asks)."),
 ]
+Facility = Annotated[
+    str | None,
+    typer.Option("--facility", help="EU Art 6(c): recycling, reclamation or destruction facility, name and address."),
+]
+FacilityCert = Annotated[
+    str | None, typer.Option("--facility-certificate", help="EU Art 6(c): that facility's certificate number.")
+]
+# A single addition or recovery above this percentage of the full charge asks for --confirm.
+SHARE_ENV = "REFLEDGER_CONFIRM_ABOVE_PERCENT"
 
 
 def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | None:
@@ -42,9 +52,41 @@ def _mass(text: str | None, field: str, *, allow_zero: bool = False) -> int | No
     return parse_mass_ng(text, field=field, allow_zero=allow_zero) if text is not None else None
 
 
+def _text(value: str | None) -> str | None:
+    """Stripped text, or None when nothing was given."""
+    return value.strip() or None if value is not None else None
+
+
+def _charge_share() -> Any:
+    import os
+    from decimal import Decimal, InvalidOperation
+
+    from ledger.domain.drafts import DEFAULT_CHARGE_SHARE
+    from ledger.errors import InputError
+
+    text = os.environ.get(SHARE_ENV, "").strip()
+    if not text:
+        return DEFAULT_CHARGE_SHARE
+    try:
+        percent = Decimal(text)
+    except InvalidOperation:
+        percent = Decimal(-1)
+    if not percent.is_finite() or percent <= 0:
+        raise InputError(SHARE_ENV, text, "must be a positive percentage such as 100")
+    return percent / 100
+
+
 def _log(
-    kind: str, ref: str, on: str, tech: str | None, note: str, by: str | None, attach: list[Path] | None,
-    confirm: bool = False, **fields: Any
+    kind: str,
+    ref: str,
+    on: str,
+    tech: str | None,
+    note: str,
+    by: str | None,
+    attach: list[Path] | None,
+    *,
+    confirm: bool = False,
+    **fields: Any,
 ) -> None:
     from ledger.cli.render import warn
     from ledger.domain.drafts import EventDraft
@@ -63,11 +105,37 @@ def _log(
         **fields,
     )
     db = context.open_db()  # one engine (and connection) for the write and the look ahead
-    logged = log_event(db, site_code=site_code, tag=tag, draft=draft, confirm=confirm)
+    logged = log_event(db, site_code=site_code, tag=tag, draft=draft, confirm=confirm, charge_share=_charge_share())
     for w in logged.warnings:
         warn(w.message)
-    typer.echo(f"event {logged.event_id} recorded: {kind} on {site_code}/{tag} {draft.performed_on}")
+    typer.echo(f"event {logged.event_id} recorded: {kind} on {site_code}/{tag} {draft.performed_on}{_stored(logged)}")
+    if logged.leak_rate is not None:
+        typer.echo(f"  leak rate: {_rate_line(logged.leak_rate)}")
     _print_next(db, site_code, tag)
+
+
+def _stored(logged: Any) -> str:
+    """The stored mass in the site's unit, as the ledger now holds it."""
+    from ledger.units import format_mass
+
+    if logged.mass_ng is None:
+        return ""
+    # to the mg (kg) or 1e-6 lb, trailing zeros dropped down to two decimals: 2.494758 kg,
+    # 10.00 lb, 0.0005 kg
+    number, unit = format_mass(logged.mass_ng, logged.unit, places=6).split()
+    whole, _, decimals = number.partition(".")
+    return f": {whole}.{decimals.rstrip('0').ljust(2, '0')} {unit} stored"
+
+
+def _rate_line(rate: dict[str, Any]) -> str:
+    """One line on the leak rate at this addition (US sites)."""
+    if not rate["counted"] or rate["percent"] is None:
+        return f"not counted ({rate['note'] or 'initial charge'})"
+    verdict = "exceeds" if rate["exceeded"] else "does not exceed"
+    return (
+        f"{rate['percent']:.2f} % ({rate['method']}), {verdict} the {rate['threshold_percent']:g} % threshold "
+        "(40 CFR 82.157(c)(2))"
+    )
 
 
 def _print_next(db: Database, site_code: str, tag: str) -> None:
@@ -88,6 +156,8 @@ def add(
     after: After = None,
     refrigerant: Annotated[str | None, typer.Option("--refrigerant", help="Assert the gas added.")] = None,
     reclaimed: Annotated[bool, typer.Option("--reclaimed", help="Recycled or reclaimed gas.")] = False,
+    facility: Facility = None,
+    facility_certificate: FacilityCert = None,
     tech: Tech = None,
     note: Note = "",
     by: By = None,
@@ -106,7 +176,9 @@ def add(
         note,
         by,
         attach,
-        confirm,
+        confirm=confirm,
+        facility=_text(facility),
+        facility_certificate=_text(facility_certificate),
         mass_ng=_mass(mass, "--mass"),
         cylinder_code=cylinder,
         cylinder_before_ng=_mass(before, "--before"),
@@ -127,6 +199,8 @@ def recover(
     destination: Annotated[
         str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")
     ] = None,
+    facility: Facility = None,
+    facility_certificate: FacilityCert = None,
     tech: Tech = None,
     note: Note = "",
     by: By = None,
@@ -145,7 +219,9 @@ def recover(
         note,
         by,
         attach,
-        confirm,
+        confirm=confirm,
+        facility=_text(facility),
+        facility_certificate=_text(facility_certificate),
         mass_ng=_mass(mass, "--mass"),
         cylinder_code=cylinder,
         cylinder_before_ng=_mass(before, "--before"),
@@ -171,7 +247,7 @@ def check(
 
     Example: refledger log check DE-HAM/RACK-1 --on 2025-03-14 --result leak-found --where "LT suction header"
     """
-    _log("check", ref, on, tech, note, by, attach, confirm, result=result, location=where, method=method)
+    _log("check", ref, on, tech, note, by, attach, confirm=confirm, result=result, location=where, method=method)
 
 
 @app.command("repair")
@@ -189,7 +265,7 @@ def repair(
 
     Example: refledger log repair DE-HAM/RACK-1 --on 2025-03-15 --where "flare nut re-made"
     """
-    _log("repair", ref, on, tech, note, by, attach, confirm, location=where)
+    _log("repair", ref, on, tech, note, by, attach, confirm=confirm, location=where)
 
 
 @app.command("follow-up")
@@ -208,37 +284,43 @@ def follow_up(
 
     Example: refledger log follow-up DE-HAM/RACK-1 --on 2025-03-20 --result pass
     """
-    _log("follow-up", ref, on, tech, note, by, attach, confirm, result=result, method=method)
+    _log("follow-up", ref, on, tech, note, by, attach, confirm=confirm, result=result, method=method)
 
 
 @app.command("detection-on")
-def detection_on(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
-                 confirm: Confirm = False) -> None:
+def detection_on(
+    ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
+    confirm: Confirm = False,
+) -> None:
     """Leak detection system installed.
 
     Example: refledger log detection-on DE-HAM/RACK-1 --on 2025-01-10
     """
-    _log("detection-on", ref, on, tech, note, by, attach, confirm)
+    _log("detection-on", ref, on, tech, note, by, attach, confirm=confirm)
 
 
 @app.command("detection-off")
-def detection_off(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
-                 confirm: Confirm = False) -> None:
+def detection_off(
+    ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
+    confirm: Confirm = False,
+) -> None:
     """Leak detection system removed or out of use.
 
     Example: refledger log detection-off DE-HAM/RACK-1 --on 2025-01-10
     """
-    _log("detection-off", ref, on, tech, note, by, attach, confirm)
+    _log("detection-off", ref, on, tech, note, by, attach, confirm=confirm)
 
 
 @app.command("detection-check")
-def detection_check(ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
-                 confirm: Confirm = False) -> None:
+def detection_check(
+    ref: Ref, on: On, tech: Tech = None, note: Note = "", by: By = None, attach: Attach = None,
+    confirm: Confirm = False,
+) -> None:
     """Leak detection system checked.
 
     Example: refledger log detection-check DE-HAM/RACK-1 --on 2025-06-01
     """
-    _log("detection-check", ref, on, tech, note, by, attach, confirm)
+    _log("detection-check", ref, on, tech, note, by, attach, confirm=confirm)
 
 
 @app.command("charge")
@@ -256,7 +338,7 @@ def charge(
 
     Example: refledger log charge DE-HAM/RACK-1 --on 2025-02-01 --charge 310kg --note "by calculation"
     """
-    _log("charge-revised", ref, on, tech, note, by, attach, confirm, charge_ng=_mass(charge_, "--charge"))
+    _log("charge-revised", ref, on, tech, note, by, attach, confirm=confirm, charge_ng=_mass(charge_, "--charge"))
 
 
 @app.command("retrofit")
@@ -275,8 +357,10 @@ def retrofit(
 
     Example: refledger log retrofit DE-HAM/RACK-1 --on 2025-05-01 --refrigerant R-448A --charge 280kg
     """
-    _log("retrofit", ref, on, tech, note, by, attach, confirm, refrigerant=refrigerant,
-         charge_ng=_mass(charge_, "--charge"))
+    _log(
+        "retrofit", ref, on, tech, note, by, attach,
+        confirm=confirm, refrigerant=refrigerant, charge_ng=_mass(charge_, "--charge"),
+    )
 
 
 @app.command("retire")
@@ -288,6 +372,8 @@ def retire(
         str | None, typer.Option("--destination", help="reuse, reclaim, destruction, returned, unknown.")
     ] = None,
     cylinder: Cylinder = None,
+    facility: Facility = None,
+    facility_certificate: FacilityCert = None,
     tech: Tech = None,
     note: Note = "",
     by: By = None,
@@ -306,7 +392,9 @@ def retire(
         note,
         by,
         attach,
-        confirm,
+        confirm=confirm,
+        facility=_text(facility),
+        facility_certificate=_text(facility_certificate),
         mass_ng=_mass(recovered, "--recovered", allow_zero=True),
         destination=destination,
         cylinder_code=cylinder,
@@ -315,17 +403,60 @@ def retire(
 
 @app.command("void")
 def void(
-    event_id: Annotated[int, typer.Argument(help="Id of the event to void.")],
+    ref: Ref,
+    event_id: Annotated[int, typer.Argument(metavar="EVENT", help="Id of the event to void (of that system).")],
     reason: Annotated[str, typer.Option("--reason", help="Why it is wrong.")],
-    by: By = None,
+    by: Annotated[str | None, typer.Option("--by", help="Who is voiding it (required).")] = None,
+    yes: Annotated[bool, typer.Option("--yes", help="Void without asking (needed when not at a terminal).")] = False,
+    json_out: Annotated[bool, typer.Option("--json", help="Print the voided event and the void as JSON.")] = False,
 ) -> None:
-    """Void an earlier event; it stays in the ledger, marked, with the reason.
+    """Void an earlier event of SITE/TAG; it stays in the ledger, marked, with the reason.
 
-    Record the corrected event afterwards with the matching `log` command.
+    Shows the event and asks before voiding it (or give --yes). Record the corrected event
+    afterwards with the matching `log` command.
 
-    Example: refledger log void 1042 --reason "mass typed in lb, was kg"
+    Example: refledger log void DE-HAM/RACK-1 1042 --reason "mass typed in lb, was kg" --by "Greta Lind"
     """
-    from ledger.services.recording import void_event
+    import sys
 
-    logged = void_event(context.open_db(), event_id=event_id, reason=reason, recorded_by=by)
-    typer.echo(f"event {logged.event_id} recorded: void of event {event_id} on {logged.site_code}/{logged.tag}")
+    from ledger.cli.render import dumps, fail
+    from ledger.inputs import parse_system_ref
+    from ledger.services.recording import void_event, void_preview
+
+    site_code, tag = parse_system_ref(ref)
+    if not (by or "").strip():
+        raise fail("--by: is required: who is voiding the event")
+    db = context.open_db()
+    target = void_preview(db, event_id=event_id, site_code=site_code, tag=tag)
+    shown = _event_line(target)
+    if not yes:
+        if json_out or not sys.stdin.isatty():
+            raise fail(f"log void: event {event_id} ({shown}) was not voided: add --yes to void it without asking")
+        typer.echo(f"event {event_id} on {target['system']}: {shown}")
+        if not typer.confirm("Void this event?", default=False):
+            raise fail(f"log void: event {event_id} was not voided (declined)")
+    logged = void_event(db, event_id=event_id, reason=reason, recorded_by=by, site_code=site_code, tag=tag)
+    if json_out:
+        typer.echo(dumps({"void_event_id": logged.event_id, "chain_hash": logged.chain_hash, "voided": target}))
+        return
+    where = f"{logged.site_code}/{logged.tag}"
+    typer.echo(f"event {logged.event_id} recorded: void of event {event_id} ({shown}) on {where}")
+
+
+def _event_line(e: dict[str, Any]) -> str:
+    """One line describing an event: day, kind, mass in the site's unit, who."""
+    from decimal import Decimal
+
+    from ledger.units import NG_PER_KG, format_mass
+
+    parts = [str(e["performed_on"]), e["kind"]]
+    for key in ("mass_kg", "charge_kg"):
+        if e.get(key) is not None:
+            ng = int(Decimal(e[key]) * NG_PER_KG)
+            parts.append(format_mass(ng, e["unit"], places=2 if ng >= 10 * 10**9 else 4))
+    for key in ("result", "destination"):
+        if e.get(key):
+            parts.append(str(e[key]))
+    if e.get("technician"):
+        parts.append(f"by {e['technician']}")
+    return " ".join(parts)

@@ -1,6 +1,6 @@
 """Validated input on its way into the ledger, and the checks that decide whether it may go in.
 
-A draft holds what the user asked for, already parsed (masses in mg, dates as ``date``).
+A draft holds what the user asked for, already parsed (masses in integer ng, dates as ``date``).
 ``validate_event`` compares it with the system's state and returns findings: errors stop the
 write, warnings are recorded with the event and shown.
 """
@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import date
+from decimal import Decimal
 
 from ledger.domain.certificates import WorkFacts
 from ledger.domain.certificates import certificate_findings as work_certificate_findings
@@ -26,6 +27,9 @@ from ledger.domain.records import (
     SystemState,
     Technician,
 )
+from ledger.domain.state import effective_events, state_of
+
+NG_PER_KG = 10**12
 
 # Event kinds that move refrigerant, and so may name a cylinder.
 MASS_KINDS = frozenset({EventKind.ADD, EventKind.RECOVER, EventKind.RETIRE})
@@ -54,11 +58,19 @@ class EventDraft:
     reason: str | None = None
     attachments: tuple[str, ...] = ()
     reclaimed: bool = False
+    facility: str | None = None  # EU Art 6(c): recycling/reclamation/destruction facility
+    facility_certificate: str | None = None  # ... its certificate number, where applicable
 
 
 def error(field: str, message: str, source: str = "input") -> Finding:
     """An error finding about one field."""
     return Finding(source=source, message=f"{field}: {message}", severity=Severity.ERROR, field=field)
+
+
+def _kg(ng: int) -> str:
+    """A nanogram mass as exact kilograms for a message (``48.2 kg``)."""
+    text = format(Decimal(ng) / NG_PER_KG, "f")
+    return (text.rstrip("0").rstrip(".") if "." in text else text) + " kg"
 
 
 def cylinder_mass_ng(draft: EventDraft) -> tuple[int | None, list[Finding]]:
@@ -74,8 +86,8 @@ def cylinder_mass_ng(draft: EventDraft) -> tuple[int | None, list[Finding]]:
     moved = before - after if draft.kind is EventKind.ADD else after - before
     if moved <= 0:
         if draft.kind is EventKind.ADD:
-            return None, [error("--before", f"{before} mg is not heavier than --after {after} mg")]
-        return None, [error("--after", f"{after} mg is not heavier than --before {before} mg")]
+            return None, [error("--before", f"{_kg(before)} is not heavier than --after {_kg(after)}")]
+        return None, [error("--after", f"{_kg(after)} is not heavier than --before {_kg(before)}")]
     if draft.mass_ng is not None and draft.mass_ng != moved:
         return None, [error("--mass", "disagrees with the cylinder weights; give one or the other")]
     return moved, []
@@ -144,6 +156,11 @@ def validate_event(
         )
     if cylinder is not None and kind not in MASS_KINDS:
         found.append(error("--cylinder", f"does not apply to a {kind.value} event"))
+    for flag, value in (("--facility", draft.facility), ("--facility-certificate", draft.facility_certificate)):
+        if value is not None and kind not in MASS_KINDS:
+            found.append(error(flag, f"does not apply to a {kind.value} event (only to add, recover, retire)"))
+    if draft.facility_certificate is not None and not draft.facility:
+        found.append(error("--facility-certificate", "needs --facility (the facility it certifies)"))
     if kind is EventKind.CHECK:
         if draft.result not in {r.value for r in CheckResult}:
             found.append(error("--result", f"{draft.result!r} is not one of no-leak, leak-found"))
@@ -182,31 +199,69 @@ def certificate_findings(technician: Technician, on: date) -> list[Finding]:
     ]
 
 
-def confirmation_reasons(draft: EventDraft, history: Sequence[Event], system: System) -> tuple[str, ...]:
-    """Why a draft may be a mistake the user should confirm (empty: record it without asking).
+# --- plausibility: what asks for a confirmation -----------------------------------------------
 
-    Only one check today: the same kind of event on the same system, day, mass and technician
-    is already recorded (and not voided): most likely the same entry sent twice.
+# A single addition or recovery above this share of the system's full charge is more likely a
+# typing slip (a unit, a decimal mark) than a fact: common practice, no source. Configurable
+# per call (``charge_share``); 1 = the whole full charge.
+DEFAULT_CHARGE_SHARE = Decimal(1)
+SMALLEST_PLAUSIBLE_NG = 10**9  # 1 g: less is below what a service scale shows (common practice, no source)
+_MOVING = frozenset({EventKind.ADD, EventKind.RECOVER, EventKind.RETIRE})
+_MOVING_WORD = {EventKind.ADD: "addition", EventKind.RECOVER: "recovery", EventKind.RETIRE: "recovery at retirement"}
+
+
+def _shown(ng: int, unit: str) -> str:
+    from ledger.units import format_mass
+
+    places = 2 if ng >= 10 * 10**9 else 4  # 1 g shows as 0.0010 kg
+    return format_mass(ng, unit, places=places)
+
+
+def confirmation_reasons(
+    draft: EventDraft,
+    history: Sequence[Event],
+    system: System,
+    *,
+    unit: str = "kg",
+    charge_share: Decimal = DEFAULT_CHARGE_SHARE,
+) -> tuple[str, ...]:
+    """The doubts about a valid draft that a person must confirm before it is recorded.
 
     Args:
-        draft: the requested event (mass already worked out from cylinder weights).
-        history: the system's events so far.
-        system: the system the draft is for.
+        draft: the event to record (masses resolved, e.g. from cylinder weights).
+        history: the system's events recorded so far (voids applied here).
+        system: the system the event is for (named in the sentences).
+        unit: the site's display unit (``kg`` or ``lb``).
+        charge_share: a single mass above this share of the full charge asks (1 = 100 %).
     Returns:
-        One sentence per reason.
+        One sentence per doubt; empty when there is nothing to confirm.
     """
-    voided = {e.voids_id for e in history if e.voids_id is not None}
-    for e in history:
-        if (
-            e.id not in voided
-            and e.system_id == system.id
-            and e.kind is draft.kind
-            and e.performed_on == draft.performed_on
-            and e.mass_ng == draft.mass_ng
-            and (e.technician or None) == (draft.technician or None)
-        ):
-            return (
-                f"event {e.id} already records {draft.kind.value} on {system.site_code}/{system.tag} "
-                f"on {draft.performed_on.isoformat()} with the same mass and technician",
+    reasons: list[str] = []
+    mass = draft.mass_ng
+    if draft.kind in _MOVING and mass is not None and mass > 0:
+        word = _MOVING_WORD[draft.kind]
+        full = state_of(history, draft.performed_on).full_charge_ng
+        if full > 0 and mass > full * charge_share:
+            share = f"{(charge_share * 100).normalize():f} % of "
+            limit = "its full charge" if charge_share == 1 else f"{share}its full charge"
+            reasons.append(
+                f"The {word} of {_shown(mass, unit)} is more than {limit} ({_shown(full, unit)}) of {system.tag}."
             )
-    return ()
+        if mass < SMALLEST_PLAUSIBLE_NG:
+            reasons.append(f"The {word} of {_shown(mass, unit)} is less than 1 g.")
+    if draft.kind is not EventKind.VOID:
+        for e in effective_events(history):
+            if (
+                e.kind is draft.kind
+                and e.performed_on == draft.performed_on
+                and e.mass_ng == mass
+                and (e.technician or None) == (draft.technician or None)
+            ):
+                who = f" by {e.technician}" if e.technician else " with no technician"
+                what = f" of {_shown(mass, unit)}" if mass is not None else ""
+                reasons.append(
+                    f"Event {e.id} already records the same {draft.kind.value}{what} on {system.tag} on "
+                    f"{draft.performed_on.isoformat()}{who}."
+                )
+                break
+    return tuple(reasons)

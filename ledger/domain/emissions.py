@@ -1,7 +1,7 @@
 """Refrigerant flows over a period and the corporate scope-1 estimates built on them.
 
-Pure: records in, numbers out; no I/O, no clock. Masses are integer milligrams until the very
-end, so every total reconciles with the events to the milligram; emission estimates that apply
+Pure: records in, numbers out; no I/O, no clock. Masses are integer nanograms until the very
+end, so every total reconciles with the events to the nanogram; emission estimates that apply
 percentage factors are exact ``Decimal`` kilograms.
 
 Three published methods (GHG Protocol / US EPA Center for Corporate Climate Leadership, "Direct
@@ -49,9 +49,9 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import effective_events
 
-NG_PER_KG = Decimal(1_000_000)
+NG_PER_KG = Decimal(10**12)
 UNKNOWN_REFRIGERANT = "unknown"  # label for mass moved while no refrigerant is recorded
-_EXACT = Context(prec=60)  # wide enough that sums of mg x percent x GWP products stay exact
+_EXACT = Context(prec=60)  # wide enough that sums of ng x percent x GWP products stay exact
 
 MATERIAL_BALANCE = "material-balance"
 SIMPLIFIED_MATERIAL_BALANCE = "simplified-material-balance"
@@ -168,7 +168,7 @@ class Addition:
 
 @dataclass(frozen=True, slots=True)
 class Flow:
-    """One system's movements of one refrigerant over a period (integer milligrams).
+    """One system's movements of one refrigerant over a period (integer nanograms).
 
     A system has one flow per refrigerant it held in the period (two across a retrofit).
     """
@@ -182,7 +182,7 @@ class Flow:
     added_ng: int = 0  # every addition
     initial_fill_ng: int = 0  # additions on the in-service / retrofit day (part of the charge)
     recovered_ng: int = 0  # recover events plus the mass recovered at retirement
-    recovered_to: tuple[tuple[str, int], ...] = ()  # (destination, mg), by destination
+    recovered_to: tuple[tuple[str, int], ...] = ()  # (destination, ng), by destination
     new_charge_ng: int = 0  # CN: full charge of units placed in service (or retrofitted to it)
     retired_charge_ng: int = 0  # CD: full charge of units retired (or retrofitted away)
     retired_recovered_ng: int = 0  # RD: recovered from those units on their last day
@@ -409,10 +409,10 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
 # --- the three methods ------------------------------------------------------------------------
 
 
-def kg(mg: int | Decimal) -> Decimal:
-    """Exact kilograms of a milligram figure."""
+def kg(ng: int | Decimal) -> Decimal:
+    """Exact kilograms of a nanogram figure."""
     with localcontext(_EXACT):
-        return Decimal(mg) / NG_PER_KG
+        return Decimal(ng) / NG_PER_KG
 
 
 def co2e_t(mass_kg: Decimal, gwp: Decimal) -> Decimal:

@@ -44,8 +44,8 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import effective_events
 
-NG_PER_LB = Decimal("453592.37")  # exact: the international avoirdupois pound (1959)
-NG_PER_KG = Decimal(1_000_000)
+NG_PER_LB = Decimal(453_592_370_000)  # exact: the international avoirdupois pound (1959)
+NG_PER_KG = Decimal(10**12)
 YEAR_DAYS = 365  # both methods annualize to 365 days (40 CFR 82.152, "leak rate")
 
 ANNUALIZING = "annualizing"
@@ -104,7 +104,7 @@ def _show(value: Fraction) -> Decimal:
 
 def _check_charge(full_charge_ng: int) -> None:
     if full_charge_ng <= 0:
-        raise ValueError(f"full charge must be positive, got {full_charge_ng} mg")
+        raise ValueError(f"full charge must be positive, got {full_charge_ng} ng")
 
 
 def annualizing_fraction(

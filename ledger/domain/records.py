@@ -1,7 +1,7 @@
 """Frozen domain records that rules and reports consume.
 
-Masses are integer milligrams (``*_ng``): exact, summable, and fine enough that a pound
-(453 592.37 mg) or an ounce is stored to within half a milligram. Dates that something
+Masses are integer nanograms (``*_ng``): exact and summable; a pound (453 592 370 000 ng) and
+an ounce (28 349 523 125 ng) are whole numbers of them. Dates that something
 happened are site-local ``date``s (``*_on``); times the ledger recorded are aware UTC
 ``datetime``s (``*_at``).
 """
@@ -231,6 +231,8 @@ class Event:
     # False when the work was recorded without a certificate valid for it (none named, lapsed,
     # out of scope): such a check does not meet a leak-check or follow-up-check duty.
     certified: bool = True
+    facility: str | None = None  # EU Art 6(c): recycling/reclamation/destruction facility, name and address
+    facility_certificate: str | None = None  # ... and its certificate number, where applicable
 
 
 @dataclass(frozen=True, slots=True)

@@ -168,8 +168,9 @@ ART6_MAP: tuple[tuple[str, str, str], ...] = (
     ("(b)", "quantities added during installation, maintenance or servicing or due to leakage",
      "events 'refrigerant added': quantity (kg), added for (installation / servicing / leak)"),
     ("(c)", "whether recycled or reclaimed gas was used, with the facility and its certificate",
-     "events: 'recycled or reclaimed gas' column, cylinder and cylinder kind; the reclaimer's "
-     "name and certificate go in the note"),
+     "events: 'recycled or reclaimed gas' column, cylinder and cylinder kind; the recycling, "
+     "reclamation or destruction facility (name, address) and its certificate number on additions "
+     "and recoveries (--facility, --facility-certificate)"),
     ("(d)", "quantity of gas recovered",
      "events 'refrigerant recovered' and 'taken out of service': quantity (kg), recovered gas to"),
     ("(e)", "identity of the undertaking that installed, serviced, checked or decommissioned, "

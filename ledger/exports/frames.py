@@ -283,6 +283,8 @@ EVENT_COLUMNS: tuple[Column, ...] = (
     Column("cylinder_before_kg", "cylinder before (kg)", KG),
     Column("cylinder_after_kg", "cylinder after (kg)", KG),
     Column("reclaimed", "recycled or reclaimed gas", BOOL),
+    Column("facility", "recycling/reclamation/destruction facility", TEXT, width=30),
+    Column("facility_certificate", "facility certificate", TEXT),
     Column("result", "result", TEXT),
     Column("location", "location", TEXT, width=24),
     Column("method", "check method", TEXT),

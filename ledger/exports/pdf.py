@@ -731,6 +731,9 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
             gas.append(cyl)
         if e["reclaimed"]:
             gas.append("recycled/reclaimed gas")
+        if e.get("facility"):
+            cert = f", cert. {e['facility_certificate']}" if e.get("facility_certificate") else ""
+            gas.append(f"facility {e['facility']}{cert}")
         if e["added_for"]:
             gas.append(f"for {e['added_for']}")
         outcome = [x for x in (e["result"], e["location"], e["method"],

@@ -153,14 +153,14 @@ class RegimeModule(Protocol):
 
 
 def kg_of(mass_ng: int) -> Decimal:
-    """Exact kilograms of a milligram mass."""
+    """Exact kilograms of a nanogram mass."""
     return Decimal(mass_ng) / NG_PER_KG
 
 
 def at_least_lb(mass_ng: int, pounds: Decimal | int) -> bool:
-    """True when a mass is at least ``pounds`` lb, compared exactly in milligrams.
+    """True when a mass is at least ``pounds`` lb, compared exactly in nanograms.
 
-    50 lb is 22 679 618.5 mg, so 22 679 618 mg is below it and 22 679 619 mg is not.
+    50 lb is 22 679 618 500 000 ng, so 22 679 618 499 999 ng is below it.
     """
     return Decimal(mass_ng) >= Decimal(pounds) * NG_PER_LB
 
@@ -182,10 +182,11 @@ def fmt_kg(kilograms: Decimal) -> str:
 
 
 def fmt_lb(mass_ng: int) -> str:
-    """Pounds of a milligram mass for a sentence: two decimals, truncated.
+    """Pounds of a nanogram mass for a sentence: two decimals, truncated.
 
-    A mass typed in pounds is stored to the nearest milligram (half a milligram is about
-    1.1e-6 lb), so the value is first rounded to 5 decimals: 620 lb shows as 620.00 lb, not
+    A mass typed in pounds is exact, but one recorded before migration 0004 was kept to the
+    nearest milligram (half a milligram is about 1.1e-6 lb), so the value is first rounded to
+    5 decimals: 620 lb shows as 620.00 lb, not
     619.99 lb, while a mass really below a threshold still never shows as the threshold.
     """
     pounds = (Decimal(mass_ng) / NG_PER_LB).quantize(Decimal("0.00001"), rounding=ROUND_HALF_UP)

@@ -91,7 +91,7 @@ B_REPORT = Basis("40 CFR 82.157(j)", Confidence.SECONDARY,
                  "next year (EPA fact sheet)")
 
 APPLIES_FROM = date(2020, 4, 10)
-FULL_CHARGE_LB = Decimal(50)  # = 22 679 618.5 mg exactly
+FULL_CHARGE_LB = Decimal(50)  # = 22 679 618 500 000 ng exactly
 REPAIR_DAYS = 30
 VERIFICATION_DAYS = 10
 INSPECTION_QUARTERLY_LB = Decimal(500)

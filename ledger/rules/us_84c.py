@@ -105,7 +105,7 @@ B_DETECTION = Basis(_ALD, Confidence.MEMORY,
 
 APPLIES_FROM = date(2026, 1, 1)
 GWP_ABOVE = Decimal(53)
-FULL_CHARGE_LB = Decimal(15)  # = 6 803 885.55 mg exactly
+FULL_CHARGE_LB = Decimal(15)  # = 6 803 885 550 000 ng exactly
 REPAIR_DAYS = 30
 VERIFICATION_DAYS = 10
 INSPECTION_QUARTERLY_LB = Decimal(500)

@@ -2,7 +2,7 @@
 
 Layout of an export folder:
 * ``<table>.jsonl``: one JSON object per row, every column, in primary-key order; dates as
-  ``YYYY-MM-DD``, times as ISO 8601 UTC, masses as integers (mg);
+  ``YYYY-MM-DD``, times as ISO 8601 UTC, masses as integers (ng);
 * ``manifest.json``: format version, schema revision, export time, and per table the row
   count and the SHA-256 of its file, plus the digest of all chain heads.
 
@@ -194,11 +194,11 @@ def restore_ledger(folder: Path, location: Location) -> BackupResult:
 # ---- the records as an import workbook ------------------------------------------------------
 
 
-def _mass_text(mg: int | None) -> str:
-    """Exact kg text for a mass (the import parses it back to the same milligram)."""
-    if mg is None:
+def _mass_text(ng: int | None) -> str:
+    """Exact kg text for a mass (the import parses it back to the same nanogram)."""
+    if ng is None:
         return ""
-    text = format(Decimal(mg) / 1_000_000, "f")
+    text = format(Decimal(ng) / 10**12, "f")
     if "." in text:
         text = text.rstrip("0").rstrip(".")
     return f"{text} kg"
@@ -279,6 +279,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
                 "recorded_at": e.recorded_at.isoformat() if e.recorded_at else "",
                 "attachments": " ".join(e.attachments),
                 "voids": hashes.get(e.voids_id, "") if e.voids_id else "", "reason": e.reason or "",
+                "facility": e.facility or "", "facility_certificate": e.facility_certificate or "",
             })
     book = Workbook()
     book.remove(book.active)

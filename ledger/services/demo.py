@@ -201,7 +201,7 @@ def correct_at_the_desk(db: Database) -> None:
     from ledger.services.recording import log_event, void_event
 
     wrong = log_event(db, site_code="DE-LEJ", tag="CU-DAIRY", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2026, 11, 5), mass_ng=16_000_000,
-        technician="Jana Köhler", recorded_by="Greta Lind", note="from the service sheet"))
+        kind=EventKind.ADD, performed_on=date(2026, 11, 5), mass_ng=16_000_000_000_000,
+        technician="Jana Köhler", recorded_by="Greta Lind", note="from the service sheet"), confirm=True)
     void_event(db, event_id=wrong.event_id, reason="typed 16 kg for 1.6 kg; the 1.6 kg entry of the same day stands",
                recorded_by="Greta Lind")

@@ -96,6 +96,8 @@ COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
                 "attachments",
                 "voids",
                 "reason",
+                "facility",
+                "facility_certificate",
             }
         ),
     ),
@@ -781,6 +783,8 @@ class _Job:
                 reclaimed=c.flag("reclaimed") if cells.get("reclaimed") else False,
                 voids_id=voids_id,
                 reason=text("reason") or None,
+                facility=text("facility") or None,
+                facility_certificate=text("facility_certificate") or None,
             )
             if draft.technician and draft.technician not in techs:
                 c.fail("tech", "is not a technician in the ledger or the input")
@@ -861,6 +865,8 @@ class _Job:
                     "reason": draft.reason,
                     "attachments": attached,
                     "reclaimed": int(reclaimed),
+                    "facility": draft.facility,
+                    "facility_certificate": draft.facility_certificate,
                     "v": chain.CHAIN_VERSION,
                 },
             )
@@ -870,7 +876,8 @@ class _Job:
                     sid, kind.value, on, recorded_at, draft.mass_ng, refrigerant, draft.charge_ng, draft.result,
                     draft.location, draft.method, draft.destination, cylinder_ids.get(draft.cylinder_code or ""),
                     draft.cylinder_before_ng, draft.cylinder_after_ng, tech_id, cert_id, draft.recorded_by,
-                    draft.note, attached, reclaimed, key, voids_id, draft.reason, prev, chain_hash,
+                    draft.note, attached, reclaimed, key, voids_id, draft.reason, draft.facility,
+                    draft.facility_certificate, prev, chain_hash,
                 )
             )
             keys.add(key)
@@ -971,7 +978,7 @@ _EVENT_COLUMNS = (
     "system_id", "kind", "performed_on", "recorded_at", "mass_ng", "refrigerant", "charge_ng", "result",
     "location", "method", "destination", "cylinder_id", "cylinder_before_ng", "cylinder_after_ng",
     "technician_id", "certificate_id", "recorded_by", "note", "attachments", "reclaimed", "content_key",
-    "voids_id", "reason", "prev_hash", "chain_hash",
+    "voids_id", "reason", "facility", "facility_certificate", "prev_hash", "chain_hash",
 )
 # The kinds that decide a system's refrigerant and retirement (see _Job.events).
 _FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RETIRE, EventKind.VOID,
@@ -979,10 +986,12 @@ _FOLD_KINDS = frozenset({EventKind.IN_SERVICE, EventKind.RETROFIT, EventKind.RET
 _KINDS = {k.value: k for k in EventKind}
 _KIND_CHOICES = sorted(k.value for k in IMPORT_KINDS)
 _IMPORTED = {k.value: k for k in IMPORT_KINDS}
-# chain.canonical's JSON object: its keys in sorted order, each with what precedes its value
+# chain.canonical's JSON object: its keys in sorted order, with the row key each is read from
+# and whether it is left out when null (chain.OPTIONAL_FIELDS)
 _CANONICAL = tuple(
-    (("{" if i == 0 else ",") + _quote(name) + ":", name)
-    for i, name in enumerate(sorted((*chain.CANONICAL_FIELDS, "v")))
+    (_quote(name) + ":", chain.LEGACY_MASS_KEYS.get(name, name), name in chain.LEGACY_MASS_KEYS,
+     name in chain.OPTIONAL_FIELDS)
+    for name in sorted((*chain.CANONICAL_FIELDS, *chain.OPTIONAL_FIELDS, "v"))
 )
 
 
@@ -992,15 +1001,18 @@ def _utc_text(moment: datetime) -> str:
 
 
 def _chain_link(prev_hash: str, body: dict[str, Any]) -> str:
-    """``chain.link`` of a body that holds ``chain.CANONICAL_FIELDS`` and ``v`` (the chain
-    version) as the plain values ``chain.canonical`` makes of them (text, integers, None)."""
-    text = "".join(
-        [
-            opener + ("null" if (v := body[name]) is None else _quote(v) if type(v) is str else _json_value(v))
-            for opener, name in _CANONICAL
-        ]
-    )
-    return hashlib.sha256(f"{prev_hash}\n{text}}}".encode()).hexdigest()
+    """``chain.link`` of a body that holds the row keys of ``chain.CANONICAL_FIELDS`` (masses
+    as ``*_ng``), optionally ``chain.OPTIONAL_FIELDS``, and ``v`` (the chain version), as the
+    plain values ``chain.canonical`` makes of them (text, integers, None)."""
+    parts = []
+    for key, source, is_mass, optional in _CANONICAL:
+        v = body.get(source)
+        if v is None and optional:
+            continue
+        if is_mass:
+            v = chain.legacy_mg(v)  # ng-rename: keep
+        parts.append(key + ("null" if v is None else _quote(v) if type(v) is str else _json_value(v)))
+    return hashlib.sha256(f"{prev_hash}\n{{{','.join(parts)}}}".encode()).hexdigest()
 
 
 def _json_value(value: Any) -> str:
@@ -1022,5 +1034,6 @@ def _column_for(f: Finding) -> str:
         "refrigerant": "refrigerant",
         "destination": "destination",
         "tech": "tech",
+        "facility-certificate": "facility_certificate",
     }
     return mapping.get(name, name or "kind")

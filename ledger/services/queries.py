@@ -19,9 +19,9 @@ from ledger.store.db import Database
 from ledger.units import ng_to_kg, ng_to_lb
 
 
-def kg(mg: int | None) -> Decimal | None:
+def kg(ng: int | None) -> Decimal | None:
     """Exact kg for JSON output (None stays None)."""
-    return None if mg is None else ng_to_kg(mg)
+    return None if ng is None else ng_to_kg(ng)
 
 
 def sites(db: Database) -> list[dict[str, Any]]:
@@ -188,6 +188,8 @@ def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
         "void_reason": void.reason if void else None,
         "attachments": list(e.attachments),
         "reclaimed": e.reclaimed,
+        "facility": e.facility,
+        "facility_certificate": e.facility_certificate,
         "chain_hash": e.chain_hash,
     }
 

@@ -10,12 +10,19 @@ import hashlib
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from datetime import date, datetime
+from decimal import Decimal
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from ledger.domain.certificates import WorkFacts
-from ledger.domain.drafts import EventDraft, confirmation_reasons, cylinder_mass_ng, validate_event
+from ledger.domain.drafts import (
+    DEFAULT_CHARGE_SHARE,
+    EventDraft,
+    confirmation_reasons,
+    cylinder_mass_ng,
+    validate_event,
+)
 from ledger.domain.records import (
     Application,
     Certificate,
@@ -46,6 +53,9 @@ class Logged:
     warnings: tuple[Finding, ...] = field(default=())
     site_code: str = ""
     tag: str = ""
+    mass_ng: int | None = None  # the mass stored with the event (resolved from cylinder weights)
+    unit: str = "kg"  # the site's display unit
+    leak_rate: dict[str, Any] | None = None  # US sites, additions: the rate at this addition
 
 
 def site_today(timezone: str) -> date:
@@ -351,7 +361,7 @@ def _prepared(draft: EventDraft, reference: Any) -> EventDraft:
 
 
 def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, reference: Any, *,  # type: ignore[no-untyped-def]
-                    confirm: bool) -> tuple[int, str, list[Finding]]:
+                    confirm: bool, charge_share: Decimal = DEFAULT_CHARGE_SHARE) -> tuple[int, str, list[Finding]]:
     """Check one prepared draft against the system's state inside the caller's transaction and
     append it: the one step every event-recording use case goes through.
 
@@ -386,7 +396,7 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
     )
     _raise_first_error(findings)
     if not confirm:
-        reasons = confirmation_reasons(draft, events, sys_)
+        reasons = confirmation_reasons(draft, events, sys_, unit=the_site.mass_unit, charge_share=charge_share)
         if reasons:
             raise NeedsConfirmation(reasons)
     tech_id, cert_id, _ = _technician_for(draft.technician, facts, conn=conn)
@@ -410,6 +420,8 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
         "note": draft.note,
         "attachments": " ".join(draft.attachments),
         "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
+        "facility": draft.facility,
+        "facility_certificate": draft.facility_certificate,
     }
     findings = [*findings, *servicing_warnings(reference, the_site, sys_, state, draft.kind,
                                                draft.performed_on, values["reclaimed"])]
@@ -421,24 +433,39 @@ def _warnings(findings: Sequence[Finding]) -> tuple[Finding, ...]:
     return tuple(f for f in findings if f.severity is Severity.WARNING)
 
 
-def log_event(db: Database, *, site_code: str, tag: str, draft: EventDraft, confirm: bool = False) -> Logged:
+def log_event(
+    db: Database,
+    *,
+    site_code: str,
+    tag: str,
+    draft: EventDraft,
+    confirm: bool = False,
+    charge_share: Decimal = DEFAULT_CHARGE_SHARE,
+) -> Logged:
     """Validate an event against the system's state and append it.
 
+    Args:
+        confirm: record it even when ``confirmation_reasons`` has doubts about it.
+        charge_share: a single addition or recovery above this share of the full charge asks
+            for confirmation (1 = 100 %).
     Raises:
         InputError: the first error finding; nothing is written.
+        NeedsConfirmation: doubts and ``confirm`` is False; nothing is written.
         NotFound: unknown site, system, technician or cylinder.
-        NeedsConfirmation: the event looks like a duplicate and ``confirm`` is False.
     """
     reference = load_reference()
     draft = _prepared(draft, reference)
     with db.write() as conn:
         the_site, sys_ = repo.get_system(site_code, tag, conn=conn)
-        event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm)
-    return Logged(event_id, head, _warnings(findings), site_code, tag)
+        event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm,
+                                                   charge_share=charge_share)
+        rate = _leak_rate_at(conn, the_site, sys_, draft, event_id)
+    return Logged(event_id, head, _warnings(findings), site_code, tag, draft.mass_ng, the_site.mass_unit, rate)
 
 
 def record_visit(
-    db: Database, *, site_code: str, tag: str, drafts: Sequence[EventDraft], confirm: bool = False
+    db: Database, *, site_code: str, tag: str, drafts: Sequence[EventDraft], confirm: bool = False,
+    charge_share: Decimal = DEFAULT_CHARGE_SHARE,
 ) -> tuple[Logged, ...]:
     """Record one visit to a system (e.g. leak check, repair, top-up, follow-up) as one unit.
 
@@ -466,11 +493,14 @@ def record_visit(
         the_site, sys_ = repo.get_system(site_code, tag, conn=conn)
         for draft in prepared:
             try:
-                event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference, confirm=confirm)
+                event_id, head, findings = _append_checked(conn, the_site, sys_, draft, reference,
+                                                           confirm=confirm, charge_share=charge_share)
             except LedgerError as exc:
                 exc.visit_part = draft.kind  # type: ignore[attr-defined]  # which part, for the form
                 raise
-            logged.append(Logged(event_id, head, _warnings(findings), site_code, tag))
+            rate = _leak_rate_at(conn, the_site, sys_, draft, event_id)
+            logged.append(Logged(event_id, head, _warnings(findings), site_code, tag, draft.mass_ng,
+                                 the_site.mass_unit, rate))
     return tuple(logged)
 
 
@@ -497,25 +527,76 @@ def work_facts(draft: EventDraft, state: SystemState, site: Site, system: System
     return WorkFacts(draft.kind, draft.performed_on, site.regimes, charge or 0, system.hermetic, state.refrigerant)
 
 
+def _leak_rate_at(conn, site: Site, sys_: System, draft: EventDraft, event_id: int) -> dict[str, Any] | None:  # type: ignore[no-untyped-def]
+    """US sites, additions: the leak rate at the addition just appended (shown after saving)."""
+    if site.country != "US" or draft.kind is not EventKind.ADD:
+        return None
+    from ledger.domain.leak_rate import leak_rates_json
+
+    history = repo.load_histories(conn=conn, system_id=sys_.id)[0]
+    return next((r for r in leak_rates_json(history, date.max) if r["event_id"] == event_id), None)
+
+
 def placed_on(events: Sequence[Event]) -> date | None:
     """The day a system was placed in service, from its whole history."""
     return min((e.performed_on for e in events if e.kind is EventKind.IN_SERVICE), default=None)
 
 
-def void_event(db: Database, *, event_id: int, reason: str, recorded_by: str | None = None) -> Logged:
-    """Void an earlier event (it stays in the ledger, marked, with the reason)."""
+def _void_target(event_id: int, site_code: str | None, tag: str | None, *, conn) -> tuple[int, str, Event]:  # type: ignore[no-untyped-def]
+    """The event to void, checked: it exists, belongs to SITE/TAG (when named) and may be voided."""
+    system_id, kind, ref = repo.event_system(event_id, conn=conn)
+    if site_code is not None and ref != f"{site_code}/{tag}":
+        raise Conflict(f"event: {event_id} belongs to {ref}, not to {site_code}/{tag}; nothing was voided")
+    events = repo.load_events([system_id], conn=conn)[system_id]
+    if kind == EventKind.VOID.value:
+        raise Conflict(f"event: {event_id} is itself a void; void cannot be voided")
+    if kind == EventKind.IN_SERVICE.value:
+        raise Conflict(f"event: {event_id} places the system in service and cannot be voided")
+    if any(e.voids_id == event_id for e in events):
+        raise Conflict(f"event: {event_id} is already voided")
+    return system_id, ref, next(e for e in events if e.id == event_id)
+
+
+def void_preview(db: Database, *, event_id: int, site_code: str, tag: str) -> dict[str, Any]:
+    """The event ``void_event`` would void, as plain data to show before asking (read only).
+
+    Raises:
+        NotFound: unknown event; Conflict: another system's event, or one that cannot be voided.
+    """
+    from ledger.services.queries import event_json
+
+    with db.read() as conn:
+        the_site, _ = repo.get_system(site_code, tag, conn=conn)
+        _, ref, target = _void_target(event_id, site_code, tag, conn=conn)
+    return {"system": ref, "unit": the_site.mass_unit, **event_json(target, {})}
+
+
+def void_event(
+    db: Database,
+    *,
+    event_id: int,
+    reason: str,
+    recorded_by: str | None = None,
+    site_code: str | None = None,
+    tag: str | None = None,
+) -> Logged:
+    """Void an earlier event (it stays in the ledger, marked, with the reason).
+
+    Args:
+        site_code, tag: the system the event must belong to (the CLI always names it).
+        recorded_by: who voids it; required.
+    Raises:
+        InputError: no reason or no one recording it; Conflict: the event is another system's
+            or cannot be voided; NotFound: unknown event. Nothing is written.
+    """
     if not reason.strip():
         raise InputError("--reason", reason, "must say why the event is voided")
+    if not (recorded_by or "").strip():
+        raise InputError("--by", recorded_by or "", "is required: who is voiding the event")
     with db.write() as conn:
-        system_id, kind, ref = repo.event_system(event_id, conn=conn)
-        events = repo.load_events([system_id], conn=conn)[system_id]
-        if kind == EventKind.VOID.value:
-            raise Conflict(f"event: {event_id} is itself a void; void cannot be voided")
-        if kind == EventKind.IN_SERVICE.value:
-            raise Conflict(f"event: {event_id} places the system in service and cannot be voided")
-        if any(e.voids_id == event_id for e in events):
-            raise Conflict(f"event: {event_id} is already voided")
-        target = next(e for e in events if e.id == event_id)
+        if site_code is not None:
+            repo.get_system(site_code, tag or "", conn=conn)  # an unknown system says so first
+        system_id, ref, target = _void_target(event_id, site_code, tag, conn=conn)
         new_id, head = repo.append_event(
             conn=conn,
             values={
@@ -524,11 +605,11 @@ def void_event(db: Database, *, event_id: int, reason: str, recorded_by: str | N
                 "performed_on": target.performed_on,
                 "voids_id": event_id,
                 "reason": reason.strip(),
-                "recorded_by": recorded_by,
+                "recorded_by": (recorded_by or "").strip(),
             },
         )
-    site_code, _, tag = ref.partition("/")
-    return Logged(new_id, head, (), site_code, tag)
+    site_part, _, tag_part = ref.partition("/")
+    return Logged(new_id, head, (), site_part, tag_part)
 
 
 def record_filing(

@@ -2,10 +2,10 @@
 
 The database is read once per report (``load_histories``: three set-based queries, plus the
 cylinder list for logbooks); everything after that is plain Python over the loaded records.
-Masses are summed as integer milligrams and turned into exact ``Decimal`` kg at the end, so
-every total reconciles with the events to the milligram. The dicts returned here are the JSON
-contract of ``refledger report ... --json`` (docs/reports.md) and the input of the writers in
-``ledger.exports``.
+Masses are summed as integer nanograms (Python ints, which cannot overflow) and turned into
+exact ``Decimal`` kg at the end, so every total reconciles with the events to the nanogram.
+The dicts returned here are the JSON contract of ``refledger report ... --json``
+(docs/reports.md) and the input of the writers in ``ledger.exports``.
 """
 
 from __future__ import annotations
@@ -45,8 +45,9 @@ from ledger.store.db import Database
 _EXACT = Context(prec=60)
 _SHOW = Context(prec=28)
 # Derived figures are rounded half-up once, where they are made, so that the JSON, the
-# spreadsheet (15 significant digits) and the PDF show the same number: t CO2e and emission
-# estimates to the gram, percentages to 1e-4. Masses of record stay exact (whole mg).
+# spreadsheet (15 significant digits) and the PDF show the same number: t CO2e to the gram,
+# emission estimates in kg to the milligram, percentages to 1e-4. Masses of record stay exact
+# (whole ng).
 CO2E_PLACES = 6
 KG_PLACES = 6
 PERCENT_PLACES = 4
@@ -74,8 +75,8 @@ KIND_LABELS: Mapping[EventKind, str] = {
 }
 
 
-def _kg(mg: int | None) -> Decimal | None:
-    return None if mg is None else em.kg(mg)
+def _kg(ng: int | None) -> Decimal | None:
+    return None if ng is None else em.kg(ng)
 
 
 def rounded(value: Decimal | None, places: int) -> Decimal | None:
@@ -231,12 +232,12 @@ _MASS_FIELDS = (
 
 
 def _totals(flows: Sequence[em.Flow], gwp: _Gwp) -> dict[str, Any]:
-    """Integer-mg totals of flows plus exact CO2e of their service additions."""
+    """Integer-ng totals of flows plus exact CO2e of their service additions."""
     t: dict[str, Any] = {name: sum(getattr(f, name) for f in flows) for name in _MASS_FIELDS}
     to: dict[str, int] = defaultdict(int)
     for f in flows:
-        for where, mg in f.recovered_to:
-            to[where] += mg
+        for where, ng in f.recovered_to:
+            to[where] += ng
     t["recovered_to"] = dict(sorted(to.items()))
     t["service_added_ng"] = t["added_ng"] - t["initial_fill_ng"]
     t["net_loss_ng"] = sum(f.net_loss_ng for f in flows)
@@ -252,15 +253,15 @@ def _merge_totals(parts: Sequence[Mapping[str, Any]]) -> dict[str, Any]:
     t: dict[str, Any] = {name: sum(p[name] for p in parts) for name in _SUMMED}
     to: dict[str, int] = defaultdict(int)
     for p in parts:
-        for where, mg in p["recovered_to"].items():
-            to[where] += mg
+        for where, ng in p["recovered_to"].items():
+            to[where] += ng
     t["recovered_to"] = dict(sorted(to.items()))
     t["co2e_t"] = _sum(p["co2e_t"] for p in parts)
     return t
 
 
 def _mass_view(t: Mapping[str, Any], full_charge_ng: int) -> dict[str, Any]:
-    """The kg keys of a summary row from integer-mg totals."""
+    """The kg keys of a summary row from integer-ng totals."""
     return {
         "full_charge_kg": em.kg(full_charge_ng),
         "full_charge_start_kg": em.kg(t["charge_start_ng"]),
@@ -500,7 +501,7 @@ def assemble_annual(
     }
 
     # scope 1: the three methods read sums only, so one merged flow per refrigerant and
-    # screening row stands for all of them (C x T: the sum of mg-days over the year's days)
+    # screening row stands for all of them (C x T: the sum of ng-days over the year's days)
     screened: dict[tuple[str, str], list[int]] = {}
     for p in parts:
         for k, sums in p.by_screening.items():
@@ -520,17 +521,17 @@ def assemble_annual(
     yearly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     for p in parts:
         for r, per in p.monthly_ng.items():
-            for month, mg in per.items():
-                monthly_ng[r][month] += mg
+            for month, ng in per.items():
+                monthly_ng[r][month] += ng
         for r, per in p.yearly_ng.items():
-            for y, mg in per.items():
-                yearly_ng[r][y] += mg
+            for y, ng in per.items():
+                yearly_ng[r][y] += ng
     monthly = []
     for month in range(1, 13):
-        mg = sum(monthly_ng[r][month] for r in monthly_ng)
+        ng = sum(monthly_ng[r][month] for r in monthly_ng)
         monthly.append({
             "month": f"{year}-{month:02d}",
-            "added_kg": em.kg(mg),
+            "added_kg": em.kg(ng),
             "co2e_t": rounded(_sum(em.co2e_t(em.kg(monthly_ng[r][month]), gwp(r))
                                    for r in monthly_ng), CO2E_PLACES),
         })
@@ -968,6 +969,8 @@ def logbook_data(
             "cylinder_before_kg": _kg(e.cylinder_before_ng),
             "cylinder_after_kg": _kg(e.cylinder_after_ng),
             "reclaimed": e.reclaimed,
+            "facility": e.facility,
+            "facility_certificate": e.facility_certificate,
             "result": e.result,
             "location": e.location,
             "method": e.method,
@@ -1024,7 +1027,7 @@ def logbook_data(
         "composition": composition,
         "safety_class": ref.safety_class if ref else None,
         "full_charge_kg": em.kg(state.full_charge_ng),
-        "full_charge_lb": rounded(Decimal(state.full_charge_ng) / Decimal("453592.37"), KG_PLACES)
+        "full_charge_lb": rounded(Decimal(state.full_charge_ng) / Decimal(453_592_370_000), KG_PLACES)
         if site.country == "US" else None,
         "gwp_basis": basis,
         "gwp": gwp,

@@ -14,6 +14,7 @@ import hashlib
 import json
 from collections.abc import Mapping
 from datetime import UTC, date, datetime
+from decimal import Decimal
 from typing import Any
 
 GENESIS = "0" * 64
@@ -29,16 +30,16 @@ CANONICAL_FIELDS: tuple[str, ...] = (
     "kind",
     "performed_on",
     "recorded_at",
-    "mass_ng",
+    "mass_mg",  # ng-rename: keep (hashed name; exact mg value of *_ng)
     "refrigerant",
-    "charge_ng",
+    "charge_mg",  # ng-rename: keep (hashed name; exact mg value of *_ng)
     "result",
     "location",
     "method",
     "destination",
     "cylinder",  # cylinder id as marked on it
-    "cylinder_before_ng",
-    "cylinder_after_ng",
+    "cylinder_before_mg",  # ng-rename: keep (hashed name; exact mg value of *_ng)
+    "cylinder_after_mg",  # ng-rename: keep (hashed name; exact mg value of *_ng)
     "technician",  # name
     "certificate",  # "scheme|number" of the certificate valid on the day
     "recorded_by",
@@ -62,18 +63,67 @@ def _plain(value: Any) -> Any:
     return value
 
 
+# Masses are stored in nanograms but hashed under their first names with the exact milligram
+# value (an int when whole, else a plain decimal string such as "453592.37"), so chains
+# written when the ledger kept milligrams still verify and a pound entry hashes exactly.
+# Hashed key -> the row's key.
+LEGACY_MASS_KEYS: Mapping[str, str] = {
+    "mass_mg": "mass_ng",  # ng-rename: keep
+    "charge_mg": "charge_ng",  # ng-rename: keep
+    "cylinder_before_mg": "cylinder_before_ng",  # ng-rename: keep
+    "cylinder_after_mg": "cylinder_after_ng",  # ng-rename: keep
+}
+# Fields added after chains were first written: hashed only when not null, so every event
+# recorded before they existed keeps its hash (docs/integrity.md).
+OPTIONAL_FIELDS: tuple[str, ...] = (
+    "facility",  # EU 2024/573 Art 6(c): recycling/reclamation/destruction facility, name and address
+    "facility_certificate",  # ... and its certificate number, where applicable
+)
+# ng-rename: off (milligrams on purpose, to the end marker below)
+_NG_PER_MG = 1_000_000
+
+
+def legacy_mg(ng: int | None) -> int | str | None:
+    """The exact milligram figure of a nanogram mass, as the canonical form writes it."""
+    if ng is None:
+        return None
+    whole, rest = divmod(int(ng), _NG_PER_MG)
+    if rest == 0:
+        return whole
+    return format(Decimal(int(ng)) / _NG_PER_MG, "f")
+
+
+def hashed_body(row: Mapping[str, Any]) -> dict[str, Any]:
+    """The JSON object the chain hashes for an event row: plain values under hashed keys.
+
+    Args:
+        row: a mapping holding the row keys of ``CANONICAL_FIELDS`` (masses under their
+            ``*_ng`` names, see ``LEGACY_MASS_KEYS``) with natural keys, and optionally
+            ``OPTIONAL_FIELDS``; missing ones count as null.
+    """
+    body: dict[str, Any] = {}
+    for name in CANONICAL_FIELDS:
+        source = LEGACY_MASS_KEYS.get(name)
+        body[name] = _plain(row.get(name)) if source is None else legacy_mg(row.get(source))
+    # ng-rename: on
+    for name in OPTIONAL_FIELDS:
+        value = _plain(row.get(name))
+        if value is not None:
+            body[name] = value
+    body["v"] = CHAIN_VERSION
+    return body
+
+
 def canonical(row: Mapping[str, Any]) -> bytes:
     """The canonical bytes of an event's content.
 
     Args:
-        row: a mapping holding ``CANONICAL_FIELDS`` with natural keys (missing ones count as
-            null); ``repository.natural_keys`` adds them to an event row.
+        row: as for ``hashed_body``; ``repository.natural_keys`` adds the natural keys to an
+            event row.
     Returns:
         Compact, key-sorted JSON as UTF-8 bytes.
     """
-    body = {name: _plain(row.get(name)) for name in CANONICAL_FIELDS}
-    body["v"] = CHAIN_VERSION
-    return json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
+    return json.dumps(hashed_body(row), sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
 
 
 def link(prev_hash: str, row: Mapping[str, Any]) -> str:

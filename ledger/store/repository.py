@@ -484,6 +484,8 @@ def _events_query():  # type: ignore[no-untyped-def]
             _raw(event.c.attachments, "attachments"),
             _raw(event.c.reclaimed, "reclaimed"),
             _raw(event.c.chain_hash, "chain_hash"),
+            _raw(event.c.facility, "facility"),
+            _raw(event.c.facility_certificate, "facility_certificate"),
         )
         .outerjoin(technician, technician.c.id == event.c.technician_id)
         .outerjoin(company, company.c.id == technician.c.company_id)
@@ -508,7 +510,7 @@ def _event_records(rows: Iterable[Sequence[Any]], into: dict[int, list[Event]], 
     for (
         id_, system_id, kind, on, recorded, mass, refrigerant, charge, result, location, method,
         destination, cylinder_code, before, after, tech, company_name, scheme, number, category,
-        recorded_by, note, voids, reason, attachments, reclaimed, chain_hash,
+        recorded_by, note, voids, reason, attachments, reclaimed, chain_hash, facility, facility_certificate,
     ) in rows:
         day = shared.get(on)
         if day is None:
@@ -551,6 +553,8 @@ def _event_records(rows: Iterable[Sequence[Any]], into: dict[int, list[Event]], 
                 bool(reclaimed),
                 chain_hash,
                 number is not None,
+                same(facility, facility),
+                same(facility_certificate, facility_certificate),
             )
         )
 

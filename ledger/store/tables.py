@@ -5,7 +5,7 @@ of a second (SQLModel pulls in the ORM and pydantic, about twice the import time
 estate-wide work is set-based SQL anyway. Rows are mapped to the frozen domain records in
 ``repository.py``.
 
-Masses are BIGINT milligrams; dates that something happened are DATE; times the ledger
+Masses are BIGINT nanograms (up to 9.2e18 ng, about 9 223 t); dates that something happened are DATE; times the ledger
 recorded are timezone-aware UTC.
 """
 
@@ -159,6 +159,10 @@ event = Table(
     Column("attachments", Text, nullable=False, server_default=""),  # space-separated SHA-256
     Column("reclaimed", Boolean, nullable=False, server_default="0"),
     Column("content_key", String(64)),  # import idempotency: digest of the imported row
+    # EU 2024/573 Art 6(c) (517/2014 Art 6(1)(c)): the recycling, reclamation or destruction
+    # facility (name and address) and, where applicable, its certificate number
+    Column("facility", Text),
+    Column("facility_certificate", String(200)),
     Column("prev_hash", String(64), nullable=False),
     Column("chain_hash", String(64), nullable=False, unique=True),
     Index("ix_event_system_id_id", "system_id", "id"),

@@ -26,7 +26,7 @@ def _ledger(location: Location) -> None:
         ["system", "add", "S/A", "--refrigerant", "R-134a", "--charge", "50kg", "--application",
          "comfort-cooling", "--in-service", "2024-01-01"],
         ["log", "add", "S/A", "--on", "2024-02-01", "--mass", "2kg", "--by", "Ines Okafor"],
-        ["log", "void", "2", "--reason", "wrong day"],
+        ["log", "void", "S/A", "2", "--reason", "wrong day", "--by", "Ines Okafor", "--yes"],
         ["log", "add", "S/A", "--on", "2024-02-02", "--mass", "2kg"],
     ):
         result = run(location, *args)

@@ -25,20 +25,20 @@ from ledger.domain.records import (
 )
 
 D = date
-NG_PER_LB = Decimal("453592.37")  # exact: the international avoirdupois pound (1959)
+NG_PER_LB = Decimal(453_592_370_000)  # exact: the international avoirdupois pound (1959)
 
 
 def kg(value: str | int) -> int:
-    """Milligrams of a kilogram figure written as text (exact; must be whole mg)."""
-    mg = Decimal(str(value)) * 1_000_000
-    assert mg == mg.to_integral_value(), value
-    return int(mg)
+    """Nanograms of a kilogram figure written as text (exact; must be whole ng)."""
+    ng = Decimal(str(value)) * 10**12
+    assert ng == ng.to_integral_value(), value
+    return int(ng)
 
 
 def lb(value: str | int) -> int:
-    """Milligrams of a pound figure, rounded up to the next whole mg (so it is >= value lb)."""
-    mg = Decimal(str(value)) * NG_PER_LB
-    return int(mg.to_integral_value(rounding="ROUND_CEILING"))
+    """Nanograms of a pound figure, rounded up to the next whole ng (so it is >= value lb)."""
+    ng = Decimal(str(value)) * NG_PER_LB
+    return int(ng.to_integral_value(rounding="ROUND_CEILING"))
 
 
 def site(code: str = "S1", country: str = "DE", regimes: tuple[str, ...] = ("eu",), *,

@@ -30,7 +30,7 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import effective_events, state_of
 
-KG = 1_000_000  # mg per kg
+KG = 10**12  # ng per kg
 SITE = Site(1, "DE-1", "Store", "DE", None, "Europe/Berlin", ("eu",))
 
 
@@ -193,10 +193,10 @@ def test_voided_events_do_not_count() -> None:
         ev(1, EventKind.IN_SERVICE, date(2020, 1, 1), refrigerant="R-134a", charge_ng=10 * KG),
         ev(2, EventKind.ADD, date(2024, 2, 1), mass_ng=9 * KG),
         ev(3, EventKind.VOID, date(2024, 2, 1), voids_id=2, reason="typed 9 kg, was 0.9 kg"),
-        ev(4, EventKind.ADD, date(2024, 2, 1), mass_ng=900_000),
+        ev(4, EventKind.ADD, date(2024, 2, 1), mass_ng=900_000_000_000),
     )
     (f,) = em.period_flows(h, date(2024, 1, 1), date(2024, 12, 31))
-    assert f.added_ng == 900_000
+    assert f.added_ng == 900_000_000_000
 
 
 # --- property: flows reconcile with the events ----------------------------------------------

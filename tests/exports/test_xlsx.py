@@ -27,7 +27,7 @@ from ledger.exports.xlsx import write_annual_xlsx, write_logbook_xlsx
 from ledger.reference import load_reference
 from ledger.services import reporting
 
-KG = 1_000_000
+KG = 10**12  # ng per kg
 REF = load_reference()
 GENERATED = datetime(2026, 1, 5, 9, 30, tzinfo=UTC)
 SITE = Site(1, "DE-HAM", "Hamburg store", "DE", None, "Europe/Berlin", ("eu",))
@@ -56,8 +56,8 @@ def sample_histories() -> list[SystemHistory]:
             e(3, 1, EventKind.REPAIR, date(2025, 3, 2), location="suction header", **tech),
             e(4, 1, EventKind.ADD, date(2025, 3, 2), mass_ng=65 * KG, note="=HYPERLINK(\"x\")", **tech),
             e(5, 1, EventKind.VOID, date(2025, 3, 2), voids_id=4, reason="typed 65 kg, was 6.5 kg"),
-            e(6, 1, EventKind.ADD, date(2025, 3, 2), mass_ng=6_500_000, cylinder_id="HAM-C-014",
-              cylinder_before_ng=48_200_000, cylinder_after_ng=41_700_000, reclaimed=True, **tech),
+            e(6, 1, EventKind.ADD, date(2025, 3, 2), mass_ng=6_500_000_000_000, cylinder_id="HAM-C-014",
+              cylinder_before_ng=48_200_000_000_000, cylinder_after_ng=41_700_000_000_000, reclaimed=True, **tech),
             e(7, 1, EventKind.ADD, date(2025, 8, 14), mass_ng=12 * KG, note="+ top-up", **tech),
         )),
         SystemHistory(SITE, unit, (
@@ -67,9 +67,9 @@ def sample_histories() -> list[SystemHistory]:
         )),
         SystemHistory(US, ac, (
             e(10, 3, EventKind.IN_SERVICE, date(2016, 4, 18), refrigerant="R-410A",
-              charge_ng=11_793_402),
-            e(11, 3, EventKind.ADD, date(2025, 3, 11), mass_ng=8_175_000),
-            e(12, 3, EventKind.ADD, date(2025, 9, 9), mass_ng=9_309_000),
+              charge_ng=11_793_402_000_000),
+            e(11, 3, EventKind.ADD, date(2025, 3, 11), mass_ng=8_175_000_000_000),
+            e(12, 3, EventKind.ADD, date(2025, 9, 9), mass_ng=9_309_000_000_000),
         )),
     ]
 

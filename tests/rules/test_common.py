@@ -51,16 +51,16 @@ def test_constant_is_frozen():
         c.value = 6  # type: ignore[misc]
 
 
-def test_pound_thresholds_compare_exactly_in_milligrams():
-    # 1 lb = 453 592.37 mg exactly (international pound, 1959): 50 lb = 22 679 618.5 mg,
-    # 15 lb = 6 803 885.55 mg, 500 lb = 226 796 185 mg
-    assert not at_least_lb(22_679_618, 50) and at_least_lb(22_679_619, 50)
-    assert not at_least_lb(6_803_885, 15) and at_least_lb(6_803_886, 15)
-    assert at_least_lb(226_796_185, 500) and not at_least_lb(226_796_184, 500)
+def test_pound_thresholds_compare_exactly_in_nanograms():
+    # 1 lb = 0.45359237 kg exactly (international pound, 1959 agreement) = 453 592 370 000 ng:
+    # 50 lb = 22 679 618 500 000 ng, 15 lb = 6 803 885 550 000 ng, 500 lb = 226 796 185 000 000 ng
+    assert at_least_lb(22_679_618_500_000, 50) and not at_least_lb(22_679_618_499_999, 50)
+    assert at_least_lb(6_803_885_550_000, 15) and not at_least_lb(6_803_885_549_999, 15)
+    assert at_least_lb(226_796_185_000_000, 500) and not at_least_lb(226_796_184_999_999, 500)
 
 
 def test_masses_and_display():
-    assert kg_of(1_324_504) == Decimal("1.324504")
+    assert kg_of(1_324_504_000_000) == Decimal("1.324504")
     # truncated, never rounded up across a threshold (our display rule)
     assert fmt_t(Decimal("4.9999999")) == "4.999 t CO2e"
 

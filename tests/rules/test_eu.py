@@ -70,10 +70,10 @@ def test_tier_confidence_marks():
 
 
 def test_one_kilogram_of_olefin_inside_a_blend():
-    # R-455A is 75.5 % R-1234yf (ASHRAE 34): 1 324 504 mg holds 1 000 000.52 mg of olefin
-    # (>= 1 kg, Art 5(1)); 1 324 503 mg holds 999 999.77 mg (under 1 kg). Hand-worked.
-    over = _tier("R-455A", 1_324_504)
-    under = _tier("R-455A", 1_324_503)
+    # R-455A is 75.5 % R-1234yf (ASHRAE 34): 1.324504 kg holds 1.00000052 kg of olefin
+    # (>= 1 kg, Art 5(1)); 1.324503 kg holds 0.999999765 kg (under 1 kg). Hand-worked.
+    over = _tier("R-455A", 1_324_504_000_000)
+    under = _tier("R-455A", 1_324_503_000_000)
     assert (over.band, over.interval_months) == ("1–10 kg Annex II s.1", 12)
     assert under.band == BELOW_THRESHOLD and under.interval_months is None
 

@@ -2,7 +2,7 @@
 
 Leak rates are hand-worked from the definition in 40 CFR 82.152 ("leak rate"); thresholds are
 40 CFR 82.157(c)(2); deadlines 82.157(d), (e), (g), (j) as marked in reference-notes.md.
-1 lb = 453 592.37 mg exactly, so 50 lb = 22 679 618.5 mg.
+1 lb = 0.45359237 kg exactly (1959 agreement) = 453 592 370 000 ng, so 50 lb = 22 679 618 500 000 ng.
 """
 
 from __future__ import annotations
@@ -35,10 +35,11 @@ def _tier(refrigerant, charge_ng):
     return us_82f.tier_of(_history(log), REF, D(2024, 6, 1))
 
 
-def test_scope_starts_at_50_lb_compared_in_exact_milligrams():
-    # 40 CFR 82.157(a): full charge >= 50 lb; 50 lb = 22 679 618.5 mg
-    assert _tier("R-22", 22_679_618).band == BELOW_THRESHOLD
-    assert _tier("R-22", 22_679_619).band == "≥ 50 lb ozone-depleting"
+def test_scope_starts_at_50_lb_compared_in_exact_nanograms():
+    # 40 CFR 82.157(a): "a full charge of 50 or more pounds"; 50 lb = 22 679 618 500 000 ng
+    assert _tier("R-22", 22_679_618_499_999).band == BELOW_THRESHOLD
+    assert _tier("R-22", 22_679_618_500_000).band == "≥ 50 lb ozone-depleting"
+    assert _tier("R-22", lb(50)).band == "≥ 50 lb ozone-depleting"
 
 
 def test_only_ozone_depleting_refrigerants():

@@ -2,7 +2,7 @@
 
 Scope facts are the trade-press summary in reference-notes.md (secondary); the leak-rate
 arithmetic is hand-worked from the definition in 40 CFR 82.152, which Part 84 follows (from
-memory). 15 lb = 6 803 885.55 mg exactly.
+memory). 15 lb = 6 803 885 550 000 ng exactly (1 lb = 0.45359237 kg, 1959 agreement).
 """
 
 from __future__ import annotations
@@ -33,10 +33,10 @@ def _tier(refrigerant, charge_ng, **kw):
     return us_84c.tier_of(_history(log, **kw), REF, D(2026, 6, 1))
 
 
-def test_scope_starts_at_15_lb_in_exact_milligrams():
-    # 40 CFR 84 Subpart C (trade press): full charge >= 15 lb = 6 803 885.55 mg
-    assert _tier("R-134a", 6_803_885).band == BELOW_THRESHOLD
-    assert _tier("R-134a", 6_803_886).band == "≥ 15 lb, GWP > 53"
+def test_scope_starts_at_15_lb_in_exact_nanograms():
+    # 40 CFR 84 Subpart C (trade press): full charge >= 15 lb = 6 803 885 550 000 ng
+    assert _tier("R-134a", 6_803_885_549_999).band == BELOW_THRESHOLD
+    assert _tier("R-134a", 6_803_885_550_000).band == "≥ 15 lb, GWP > 53"
 
 
 def test_gwp_must_be_above_53_on_the_ar4_basis():
@@ -90,7 +90,7 @@ def test_automatic_leak_detection_for_new_systems_at_installation():
 def test_no_automatic_leak_detection_duty_for_old_small_or_comfort_systems():
     for installed, charge, application in (
         (D(2016, 12, 31), lb(2000), COMMERCIAL),  # installed before 2017
-        (D(2020, 1, 1), 680_388_554, COMMERCIAL),  # 1 500 lb = 680 388 555 mg: just under
+        (D(2020, 1, 1), 680_388_554_999_999, COMMERCIAL),  # 1 500 lb = 680 388 555 000 000 ng: just under
         (D(2020, 1, 1), lb(2000), Application.COMFORT_COOLING),
     ):
         log = Log()

@@ -4,7 +4,7 @@ Inspection intervals are 17 CCR 95385 and the repair deadline 95386 as given in
 reference-notes.md; scope and size classes from the same notes (secondary); the report date
 from the notes without a section number. Tests named test_2026_12_* are the corrections of
 the check in December 2026 (reference-notes.md, "Checked in December 2026"). "TEST-150" is a fictitious refrigerant
-of GWP exactly 150. 50 lb = 22 679 618.5 mg exactly.
+of GWP exactly 150. 50 lb = 22 679 618 500 000 ng exactly (1 lb = 0.45359237 kg, 1959 agreement).
 """
 
 from __future__ import annotations
@@ -39,8 +39,10 @@ def _tier(refrigerant, charge_ng, detection=False):
 
 def test_scope_over_50_lb_of_gwp_150_or_more():
     # 17 CCR 95380 ff. (notes): > 50 lb; GWP >= 150 (AR4)
-    assert _tier("TEST-150", 22_679_618).band == BELOW_THRESHOLD  # under 50 lb
-    assert _tier("TEST-150", 22_679_619).band == "50–200 lb"  # over 50 lb
+    # 95385(c): "full charge greater than 50, but less than 200 pounds": exactly 50 lb is not in
+    assert _tier("TEST-150", 22_679_618_500_000).band == BELOW_THRESHOLD  # exactly 50 lb
+    assert _tier("TEST-150", lb(50)).band == BELOW_THRESHOLD
+    assert _tier("TEST-150", 22_679_618_500_001).band == "50–200 lb"  # 1 ng over 50 lb
     assert _tier("TEST-53", lb(100)).band == OUT_OF_SCOPE  # GWP 53 < 150
     assert _tier("R-744", lb(5000)).band == OUT_OF_SCOPE
 

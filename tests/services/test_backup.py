@@ -20,13 +20,13 @@ from ledger.store.db import Database, Location
 def _fill(db: Database) -> None:
     add_site(db, code="GB-1", name="Leeds", country="GB")
     add_technician(db, name="Ana Ortiz", certificate="GB-9", scheme="GB F-gas cat I", company="Frost Ltd")
-    add_cylinder(db, code="C1", refrigerant="R-404A", kind="reclaimed", tare_ng=10_000_000)
+    add_cylinder(db, code="C1", refrigerant="R-404A", kind="reclaimed", tare_ng=10_000_000_000_000)
     add_system(
         db,
         site_code="GB-1",
         tag="R1",
         refrigerant="R-404A",
-        charge_ng=80_000_000,
+        charge_ng=80_000_000_000_000,
         application="commercial-refrigeration",
         in_service_on=date(2020, 5, 1),
         technician="Ana Ortiz",
@@ -39,13 +39,13 @@ def _fill(db: Database) -> None:
             kind=EventKind.ADD,
             performed_on=date(2024, 2, 1),
             cylinder_code="C1",
-            cylinder_before_ng=30_000_000,
-            cylinder_after_ng=27_500_000,
+            cylinder_before_ng=30_000_000_000_000,
+            cylinder_after_ng=27_500_000_000_000,
             technician="Ana Ortiz",
             note="=SUM(1)",
         ),
     )
-    void_event(db, event_id=e.event_id, reason="wrong cylinder")
+    void_event(db, event_id=e.event_id, reason="wrong cylinder", recorded_by="Office")
 
 
 def _snapshot(db: Database):  # type: ignore[no-untyped-def]

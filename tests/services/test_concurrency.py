@@ -19,14 +19,16 @@ EVENTS_EACH = 200
 def _writer(url: str, worker: int) -> int:
     db = Database(Location(url, "test"))
     for i in range(EVENTS_EACH):
-        # half the writes go to a shared system, half to the worker's own
+        # half the writes go to a shared system, half to the worker's own; the masses differ by
+        # worker and write, so that no write is the same event as another (which asks to confirm)
         tag = "SHARED" if i % 2 else f"W{worker}"
         log_event(
             db,
             site_code="S",
             tag=tag,
             draft=EventDraft(
-                kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_ng=1000 + i, note=f"w{worker}-{i}"
+                kind=EventKind.ADD, performed_on=date(2024, 1, 1 + i % 28), mass_ng=(worker + 1) * 10**10 + i,
+                note=f"w{worker}-{i}",
             ),
             confirm=True,  # workers write the same entries on the shared system on purpose
         )
@@ -42,7 +44,7 @@ def test_parallel_loggers_lose_nothing(db: Database, location: Location) -> None
             site_code="S",
             tag=tag,
             refrigerant="R-134a",
-            charge_ng=100_000_000,
+            charge_ng=100_000_000_000_000,
             application="comfort-cooling",
             in_service_on=date(2023, 1, 1),
         )

@@ -43,7 +43,7 @@ def _count(db: Database) -> int:
 def test_killed_import_is_all_or_nothing(db: Database, location: Location, tmp_path: Path, kill_after: float) -> None:
     add_site(db, code="S", name="S", country="DE")
     for i in range(20):
-        add_system(db, site_code="S", tag=f"T{i}", refrigerant="R-134a", charge_ng=200_000_000,
+        add_system(db, site_code="S", tag=f"T{i}", refrigerant="R-134a", charge_ng=200_000_000_000_000,
                    application="comfort-cooling", in_service_on=date(2021, 1, 1))
     before = _count(db)
     path = _events_file(tmp_path)

@@ -63,8 +63,15 @@ def test_content_key_is_the_digest_of_its_json(kind: str, cells: dict[str, str])
 plain = st.one_of(st.none(), text, st.integers(min_value=-(2**63), max_value=2**63))
 
 
+ROW_KEYS = (*(chain.LEGACY_MASS_KEYS.get(n, n) for n in chain.CANONICAL_FIELDS), *chain.OPTIONAL_FIELDS)
+
+
 @given(
-    values=st.fixed_dictionaries({name: plain for name in chain.CANONICAL_FIELDS}),
+    values=st.fixed_dictionaries({
+        name: st.one_of(st.none(), st.integers(min_value=-(2**63), max_value=2**63))
+        if name in chain.LEGACY_MASS_KEYS.values() else plain
+        for name in ROW_KEYS
+    }),
     prev=st.sampled_from([chain.GENESIS, "ab" * 32]),
 )
 def test_chain_link_is_chain_link(values: dict[str, object], prev: str) -> None:
@@ -101,14 +108,14 @@ def test_validate_event_reads_only_the_refrigerant_and_the_retirement() -> None:
     day = date(2024, 5, 1)
     states = [
         EMPTY_STATE,
-        SystemState(True, "R-404A", 10**7, True, date(2020, 1, 1), None, day, day, (7,), date(2020, 1, 1)),
-        SystemState(False, "R-404A", 10**7, False, date(2020, 1, 1), date(2023, 1, 1), None, None, (), None),
+        SystemState(True, "R-404A", 10**13, True, date(2020, 1, 1), None, day, day, (7,), date(2020, 1, 1)),
+        SystemState(False, "R-404A", 10**13, False, date(2020, 1, 1), date(2023, 1, 1), None, None, (), None),
     ]
     tech = Technician(1, "Ada", "", (Certificate("EU", "N-1", "I", date(2010, 1, 1), date(2020, 1, 1)),))
     cylinder = Cylinder("C-1", "R-448A", CylinderKind.VIRGIN)
     read: set[str] = set()
     for kind in EventKind:
-        for refrigerant, mass, result in ((None, None, None), ("R-404A", 10**6, "no-leak"), ("R-448A", 0, "x")):
+        for refrigerant, mass, result in ((None, None, None), ("R-404A", 10**12, "no-leak"), ("R-448A", 0, "x")):
             for state in states:
                 for cyl in (None, cylinder):
                     reads = _Reads(state)
@@ -144,7 +151,7 @@ def histories(draw: st.DrawFn) -> list[Event]:
                 kind=kind,
                 performed_on=day,
                 refrigerant=draw(st.sampled_from(["R-404A", "R-448A", None])),
-                charge_ng=draw(st.sampled_from([None, 10**6])),
+                charge_ng=draw(st.sampled_from([None, 10**12])),
                 result=draw(st.sampled_from([None, "leak-found", "no-leak"])),
                 voids_id=voids,
             )
@@ -174,11 +181,13 @@ def test_rows_written_as_tuples_are_the_rows_insert_writes(db: Database, tmp_pat
         system_id = conn.execute(select(event.c.system_id)).scalar_one()
         values = {
             "system_id": system_id, "kind": "add", "performed_on": date(2024, 2, 29),
-            "recorded_at": datetime(2024, 3, 1, 8, 30, 1, 250, tzinfo=UTC), "mass_ng": 1_500_000,
+            "recorded_at": datetime(2024, 3, 1, 8, 30, 1, 250, tzinfo=UTC), "mass_ng": 1_500_000_000_000,
             "refrigerant": None, "charge_ng": None, "result": None, "location": "valve ü", "method": None,
-            "destination": None, "cylinder_id": None, "cylinder_before_ng": 14_000_000, "cylinder_after_ng": None,
+            "destination": None, "cylinder_id": None, "cylinder_before_ng": 14 * 10**12,
+            "cylinder_after_ng": None,
             "technician_id": None, "certificate_id": None, "recorded_by": "Office", "note": "a \"note\"",
             "attachments": "", "reclaimed": True, "content_key": "k" * 64, "voids_id": None, "reason": None,
+            "facility": "Reclaim Nord, Kiel", "facility_certificate": None,
             "prev_hash": chain.GENESIS, "chain_hash": "1" * 64,
         }
         conn.execute(insert(event), [values])
@@ -270,7 +279,7 @@ def test_each_row_is_checked_against_the_state_the_rows_before_it_leave(db: Data
         ("void", "2024-07-01"), ("add", "2024-07-03"),
     ]
     added = events[2]
-    assert (added.mass_ng, added.cylinder_id, added.reclaimed, added.technician) == (10**6, "C-448", True, None)
+    assert (added.mass_ng, added.cylinder_id, added.reclaimed, added.technician) == (10**12, "C-448", True, None)
     assert events[1].refrigerant == "R-448A" and events[1].certificate == "EU 2015/2067 NL-1"
     assert events[4].recorded_at == datetime(2024, 5, 1, 16, 0, tzinfo=UTC)
     assert events[5].voids_id == events[4].id and events[8].voids_id == events[7].id

@@ -26,7 +26,7 @@ def _ledger(db: Database) -> list[int]:
         site_code="S",
         tag="A",
         refrigerant="R-134a",
-        charge_ng=50_000_000,
+        charge_ng=50_000_000_000_000,
         application="comfort-cooling",
         in_service_on=date(2023, 1, 1),
     )
@@ -35,7 +35,7 @@ def _ledger(db: Database) -> list[int]:
         site_code="S",
         tag="B",
         refrigerant="R-134a",
-        charge_ng=50_000_000,
+        charge_ng=50_000_000_000_000,
         application="comfort-cooling",
         in_service_on=date(2023, 1, 1),
     )
@@ -46,7 +46,7 @@ def _ledger(db: Database) -> list[int]:
                 db,
                 site_code="S",
                 tag="A",
-                draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, day), mass_ng=1_000_000 * day),
+                draft=EventDraft(kind=EventKind.ADD, performed_on=date(2024, 1, day), mass_ng=1_000_000_000_000 * day),
             ).event_id
         )
     return ids

@@ -32,7 +32,7 @@ def test_eu_periodic_check_and_follow_up(db: Database) -> None:
     add_site(db, code="DE", name="DE", country="DE")
     # R-404A 20 kg = 78.4 t CO2e (EU 517/2014 Annex IV figure 3 922): 50-500 t tier, every 6 months
     # (Reg. (EU) 2024/573 Art 5(1))
-    add_system(db, site_code="DE", tag="R", refrigerant="R-404A", charge_ng=20_000_000,
+    add_system(db, site_code="DE", tag="R", refrigerant="R-404A", charge_ng=20_000_000_000_000,
                application="commercial-refrigeration", in_service_on=date(2025, 1, 31))
     rows = due(db, as_of=date(2025, 6, 1)).rows
     leak_checks = [r for r in rows if r["kind"] == "leak-check"]
@@ -52,7 +52,7 @@ def test_eu_periodic_check_and_follow_up(db: Database) -> None:
 def test_gb_hcfc_leak_found_needs_repair_within_14_days(db: Database) -> None:
     add_site(db, code="GB", name="GB", country="GB")
     # R-22 40 kg: >= 30 kg, every 6 months (gov.uk ODS leak-check guidance)
-    add_system(db, site_code="GB", tag="C", refrigerant="R-22", charge_ng=40_000_000,
+    add_system(db, site_code="GB", tag="C", refrigerant="R-22", charge_ng=40_000_000_000_000,
                application="comfort-cooling", in_service_on=date(2010, 1, 1))
     _certified(db, "gb")
     log_event(db, site_code="GB", tag="C", draft=EventDraft(
@@ -68,12 +68,12 @@ def test_gb_hcfc_leak_found_needs_repair_within_14_days(db: Database) -> None:
 def test_us_exceedance_opens_repair_and_verification(db: Database) -> None:
     add_site(db, code="TX", name="TX", country="US", subdivision="US-TX")
     # 100 lb R-404A commercial refrigeration: 40 CFR 84 Subpart C applies (>= 15 lb, GWP > 53)
-    add_system(db, site_code="TX", tag="R", refrigerant="R-404A", charge_ng=45_359_237,
+    add_system(db, site_code="TX", tag="R", refrigerant="R-404A", charge_ng=45_359_237_000_000,
                application="commercial-refrigeration", in_service_on=date(2020, 1, 1))
     # 25 lb added on 2026-03-01, no earlier addition: annualizing rate = 25/100 x 365/365 = 25 %
     # > 20 % (40 CFR 82.157(c)(2) threshold, hand-worked from the definition in 82.152)
     log_event(db, site_code="TX", tag="R", draft=EventDraft(
-        kind=EventKind.ADD, performed_on=date(2026, 3, 1), mass_ng=11_339_809))
+        kind=EventKind.ADD, performed_on=date(2026, 3, 1), mass_ng=11_339_809_250_000))
     rows = due(db, as_of=date(2026, 3, 2)).rows
     repair = [r for r in rows if r["kind"] == "repair" and r["regime"] == "us-84c"]
     assert repair and repair[0]["due_on"] == date(2026, 3, 31)  # 30 days (82.157(d))
@@ -84,7 +84,7 @@ def test_california_large_system_monthly_inspection_without_detection(db: Databa
     add_site(db, code="CA", name="CA", country="US", subdivision="US-CA")
     # 2 100 lb of R-448A (GWP >= 150): large; without automatic leak detection inspected monthly
     # (17 CCR 95385)
-    add_system(db, site_code="CA", tag="R", refrigerant="R-448A", charge_ng=952_543_977,
+    add_system(db, site_code="CA", tag="R", refrigerant="R-448A", charge_ng=952_543_977_000_000,
                application="commercial-refrigeration", in_service_on=date(2025, 12, 1))
     rows = due(db, as_of=date(2026, 1, 15)).rows
     inspections = [r for r in rows if r["regime"] == "us-ca" and r["kind"] == "leak-inspection"]
@@ -96,9 +96,9 @@ def test_california_large_system_monthly_inspection_without_detection(db: Databa
 def test_natural_refrigerant_and_no_regime(db: Database) -> None:
     add_site(db, code="DE", name="DE", country="DE")
     add_site(db, code="JP", name="JP", country="JP")
-    add_system(db, site_code="DE", tag="CO2", refrigerant="R-744", charge_ng=300_000_000,
+    add_system(db, site_code="DE", tag="CO2", refrigerant="R-744", charge_ng=300_000_000_000_000,
                application="commercial-refrigeration", in_service_on=date(2024, 1, 1))
-    add_system(db, site_code="JP", tag="X", refrigerant="R-404A", charge_ng=300_000_000,
+    add_system(db, site_code="JP", tag="X", refrigerant="R-404A", charge_ng=300_000_000_000_000,
                application="commercial-refrigeration", in_service_on=date(2024, 1, 1))
     listing = due(db, as_of=date(2026, 1, 1))
     assert listing.rows == []
@@ -112,7 +112,7 @@ def test_a_recorded_filing_meets_the_california_report(db: Database) -> None:
     add_site(db, code="CA", name="CA", country="US", subdivision="US-CA")
     # 2 100 lb (large facility): annual report by 1 March (CARB notices, secondary); an
     # unfiled one stays overdue when the next is due (issue 14 correction)
-    add_system(db, site_code="CA", tag="R", refrigerant="R-448A", charge_ng=952_543_977,
+    add_system(db, site_code="CA", tag="R", refrigerant="R-448A", charge_ng=952_543_977_000_000,
                application="commercial-refrigeration", in_service_on=date(2024, 1, 1))
     day = date(2026, 1, 15)
     report = [r for r in due(db, as_of=day).rows if r["kind"] == "report"]

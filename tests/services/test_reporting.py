@@ -43,7 +43,7 @@ from ledger.services.recording import (
 )
 from ledger.store.db import Database
 
-KG = 1_000_000
+KG = 10**12  # ng per kg
 REF = load_reference()
 REFRIGERANTS = ("R-404A", "R-134a", "R-744", "R-410A", "R-290")
 SITES = (
@@ -101,7 +101,7 @@ def test_annual_totals_reconcile_with_events(histories: list[SystemHistory], yea
     added = sum(e.mass_ng or 0 for h in histories for e in _in_year(h, year) if e.kind is EventKind.ADD)
     recovered = sum(e.mass_ng or 0 for h in histories for e in _in_year(h, year)
                     if e.kind in (EventKind.RECOVER, EventKind.RETIRE))
-    # the estate equals the events, to the milligram
+    # the estate equals the events, to the nanogram
     assert s["estate"]["added_kg"] == Decimal(added) / KG
     assert s["estate"]["recovered_kg"] == Decimal(recovered) / KG
     # CO2e: every addition that is not an initial charge, times the GWP of what the system held
@@ -129,16 +129,19 @@ def test_annual_totals_reconcile_with_events(histories: list[SystemHistory], yea
     # the simplified material balance's PS input is the additions excluding initial charges
     smb = s["scope1"][1]
     assert smb["method"] == em.SIMPLIFIED_MATERIAL_BALANCE
-    assert smb["inputs"].get("ps_kg", Decimal(0)) == s["estate"]["service_added_kg"]
+    # (estimates are rounded to the mg where they are made; masses of record stay exact in ng)
+    places = reporting.KG_PLACES
+    assert smb["inputs"].get("ps_kg", Decimal(0)) == reporting.rounded(s["estate"]["service_added_kg"], places)
     # the material balance, per refrigerant, adds up to the systems' net losses (HCFC parts
     # included); the scope 1 total counts only Kyoto-gas parts of 0 or more, the rest is
     # flagged (US EPA 2014 guidance / GHG Protocol: negative balances are not netted)
     mb = s["scope1"][0]
     parts = [p["emissions_kg"] for p in mb["by_refrigerant"] + mb["outside_scope1"]]
-    assert sum(parts, Decimal(0)) == s["estate"]["net_loss_kg"]  # whole mg: exact
+    # each part is rounded to the mg: the sum may differ by half a mg a part
+    assert abs(sum(parts, Decimal(0)) - s["estate"]["net_loss_kg"]) <= Decimal("0.0000005") * len(parts)
     assert mb["emissions_kg"] == sum((p["emissions_kg"] for p in mb["by_refrigerant"]
                                       if p["emissions_kg"] >= 0), Decimal(0))
-    negative = [p for p in mb["by_refrigerant"] if p["emissions_kg"] < 0]
+    negative = [p for p in mb["by_refrigerant"] if p["emissions_kg"].is_signed()]  # -0.000000 included
     assert len([f for f in mb["flags"] if "negative balance" in f]) == len(negative)
 
 
@@ -249,9 +252,9 @@ def _ledger(db: Database) -> None:
         technician="Ada Novak")
     wrong = log("RACK", kind=EventKind.ADD, performed_on=date(2024, 3, 2), mass_ng=65 * KG,
                 technician="Ada Novak", note='=HYPERLINK("x")')
-    void_event(db, event_id=wrong, reason="typed 65 kg, was 6.5 kg")
+    void_event(db, event_id=wrong, reason="typed 65 kg, was 6.5 kg", recorded_by="Office")
     log("RACK", kind=EventKind.ADD, performed_on=date(2024, 3, 2), cylinder_code="CY-R",
-        cylinder_before_ng=48_200_000, cylinder_after_ng=41_700_000, technician="Ada Novak")
+        cylinder_before_ng=48_200_000_000_000, cylinder_after_ng=41_700_000_000_000, technician="Ada Novak")
     log("RACK", kind=EventKind.FOLLOW_UP, performed_on=date(2024, 3, 20), result="pass",
         technician="Ada Novak")
     log("RACK", kind=EventKind.RECOVER, performed_on=date(2024, 6, 1), mass_ng=2 * KG,

@@ -71,7 +71,7 @@ def test_a_duplicate_asks_for_confirmation_and_writes_nothing(db: Database) -> N
     before = _count(db)
     with pytest.raises(NeedsConfirmation) as caught:
         log_event(db, site_code="US-1", tag="RACK", draft=draft)
-    assert caught.value.reasons and "already records add on US-1/RACK" in caught.value.reasons[0]
+    assert caught.value.reasons and "already records the same add" in caught.value.reasons[0]
     assert _count(db) == before
     with pytest.raises(NeedsConfirmation):
         record_visit(db, site_code="US-1", tag="RACK", drafts=[draft])

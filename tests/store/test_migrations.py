@@ -29,7 +29,7 @@ def test_events_are_append_only_in_the_database(location: Location) -> None:
     add_site(db, code="S1", name="Site", country="DE")
     from datetime import date
 
-    add_system(db, site_code="S1", tag="T1", refrigerant="R-134a", charge_ng=5_000_000,
+    add_system(db, site_code="S1", tag="T1", refrigerant="R-134a", charge_ng=5_000_000_000_000,
                application="comfort-cooling", in_service_on=date(2024, 1, 1))
     for statement in ("UPDATE event SET note = 'x'", "DELETE FROM event"):
         try:
@@ -57,7 +57,7 @@ def test_upgrade_from_the_first_revision_keeps_data_and_makes_a_backup(tmp_path)
     assert (before, after) == ("0001", HEAD_REVISION)
     assert saved is not None and saved.name == "old.db.bak-0001" and saved.exists()
     add_site(db, code="S", name="S", country="DE")
-    add_system(db, site_code="S", tag="T", refrigerant="R-134a", charge_ng=1_000_000,
+    add_system(db, site_code="S", tag="T", refrigerant="R-134a", charge_ng=1_000_000_000_000,
                application="other", in_service_on=date(2024, 1, 1))
     db.close()
 
