@@ -283,3 +283,19 @@ def test_the_api_answers_with_the_cli_json_contract(web, location) -> None:  # t
     assert web.get("/api/verify").json() == _cli_json(location, "verify", "--json")
     assert web.get("/api/due?regime=nope").status_code == 400
     assert "/api/due" in web.get("/api/openapi.json").json()["paths"]
+
+
+def test_the_verify_page_names_a_record_changed_outside_the_ledger(web) -> None:  # type: ignore[no-untyped-def]
+    # issue 12's record chain seen from the auditor's page: a direct UPDATE of a system's
+    # hermetic flag is a broken record, not "intact" (common practice, no source)
+    from sqlalchemy import update
+
+    from ledger.store.tables import system
+
+    login(web, "auditor")
+    assert "Intact." in web.get("/verify").text
+    with web.app_state.db.write() as conn:
+        conn.execute(update(system).where(system.c.tag == "RACK-A").values(hermetic=True))
+    html = web.get("/verify").text
+    assert "Intact." not in html and "NOT VERIFIED" in html
+    assert "US-TX/RACK-A: changed" in html
