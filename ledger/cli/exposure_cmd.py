@@ -31,6 +31,7 @@ def exposure(
     from datetime import UTC, datetime
 
     from ledger.cli.render import print_json, table
+    from ledger.exports.common import gwp_text
     from ledger.inputs import parse_day
     from ledger.services.exposure import exposure_view
 
@@ -48,8 +49,8 @@ def exposure(
             [
                 [f"{r['site']}/{r['system']}", r["regime"], r["from_on"],
                  "in force" if r["in_force"] else "coming", _use(r["refrigerant_use"]), r["refrigerant"],
-                 f"{r['gwp']:.0f}", r["charge_kg"], r["co2e_t"],
-                 "" if r["retrofit_to"] is None else f"{r['retrofit_to']} (GWP {r['retrofit_gwp']:.0f})",
+                 gwp_text(r["gwp"]), r["charge_kg"], r["co2e_t"],
+                 "" if r["retrofit_to"] is None else f"{r['retrofit_to']} (GWP {gwp_text(r['retrofit_gwp'])})",
                  "" if r["saved_t"] is None else r["saved_t"], f"{r['citation']} [{r['confidence']}]"]
                 for r in view["rows"]
             ],

@@ -29,7 +29,7 @@ def mass_in(kg: Any, unit: str) -> Decimal | None:
 def print_system(view: dict[str, Any]) -> None:
     """A system's state, tiers, obligations, leak rates and events as text tables."""
     status = "in service" if view["in_service"] else f"retired {view['retired_on'] or ''}".strip()
-    from ledger.exports.common import TONNES, fmt
+    from ledger.exports.common import TONNES, fmt, gwp_text
 
     typer.echo(f"{view['site']}/{view['tag']}  {view['description']}".rstrip())
     unit = view["unit"]
@@ -38,7 +38,7 @@ def print_system(view: dict[str, Any]) -> None:
               f"({num(mass_in(view['full_charge_kg'], other))} {other})")
     typer.echo(
         f"  {view['refrigerant']} ({view['safety_class']}), full charge {charge}, "
-        f"{fmt(view['co2e_t'], TONNES)} t CO2e (GWP {num(view['gwp'], 0)}, basis {view['gwp_basis']})"
+        f"{fmt(view['co2e_t'], TONNES)} t CO2e (GWP {gwp_text(view['gwp'])}, basis {view['gwp_basis']})"
     )
     typer.echo(
         f"  {view['application']}, {status}, detection system: "

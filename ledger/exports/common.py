@@ -108,6 +108,18 @@ def in_unit(kg: Any, unit: str) -> Decimal | None:
     return Decimal(kg) * NG_PER_KG / NG_PER_LB if unit == "lb" else Decimal(kg)
 
 
+def gwp_text(value: Any) -> str:
+    """A GWP as its table gives it, never rounded: 0.501 stays 0.501, 3922 stays 3,922.
+
+    A GWP below 1 (R-1234yf 0.501 under Reg. (EU) 2024/573 Annex II) rounded to a whole
+    number would read 1 or 0, neither of which the table says.
+    """
+    if is_blank(value):
+        return ""
+    number = Decimal(str(value)) if isinstance(value, float) else Decimal(value)
+    return f"{number.normalize():,f}"
+
+
 def fmt(value: Any, kind: str, places: int | None = None) -> str:
     """A value as display text for PDFs and text output (rounded half-up for display only)."""
     if is_blank(value):

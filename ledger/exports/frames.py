@@ -25,6 +25,7 @@ from ledger.exports.common import (
     TEXT,
     TONNES,
     Column,
+    gwp_text,
 )
 
 
@@ -388,7 +389,7 @@ def logbook_facts(book: Mapping[str, Any]) -> list[dict[str, Any]]:
         charge += f" ({fmt(book['full_charge_lb'], KG, 2)} lb)"
     co2e = ""
     if book["co2e_t"] is not None:
-        co2e = (f"{fmt(book['co2e_t'], TONNES)} t (GWP {fmt(book['gwp'], NUMBER, 1)}, "
+        co2e = (f"{fmt(book['co2e_t'], TONNES)} t (GWP {gwp_text(book['gwp'])}, "
                 f"basis {book['gwp_basis']})")
         if book.get("gwp_note"):
             co2e += f"; {book['gwp_note']}"

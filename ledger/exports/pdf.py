@@ -60,6 +60,7 @@ from ledger.exports.common import (
     TONNES,
     VOIDED_INK,
     fmt,
+    gwp_text,
     in_unit,
     recorded_text,
     report_lines,
@@ -699,7 +700,7 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
         Tile(charge, "full charge", charge_sub),
         Tile(f"{fmt(book['co2e_t'], TONNES)} t" if book["co2e_t"] is not None else "-",
              "CO2e of the full charge",
-             f"GWP {fmt(book['gwp'], NUMBER, 0)} ({book['gwp_basis']})" if book["gwp"] is not None
+             f"GWP {gwp_text(book['gwp'])} ({book['gwp_basis']})" if book["gwp"] is not None
              else ""),
         Tile(str(len(events)), "events in the period",
              f"{voided} voided, kept and marked" if voided else "none voided"),
