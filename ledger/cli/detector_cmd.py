@@ -142,19 +142,10 @@ def review(
     )
     data = result.review.to_json()
     if pdf is not None:
-        from ledger.exports.detector_pdf import render_review_pdf
+        from ledger.exports.detector_pdf import write_channel_review
 
         with writing(pdf, "--pdf"):
-            render_review_pdf(
-                pdf,
-                result.review,
-                result.readings,
-                title=f"Detector review {site_code}/{code}",
-                system_label=f"{site_code}/{result.channel.system_tag}",
-                refrigerant=result.refrigerant,
-                molar_mass_g_mol=result.molar_mass_g_mol,
-                repairs=result.repairs,
-            )
+            write_channel_review(pdf, result)
         typer.echo(f"wrote {pdf}", err=json_out)
     if json_out:
         print_json(data)

@@ -11,6 +11,7 @@ import io
 from collections.abc import Sequence
 from datetime import date, datetime
 from pathlib import Path
+from typing import Any
 from zoneinfo import ZoneInfo
 
 import numpy as np
@@ -441,3 +442,19 @@ def render_review_pdf(
     )
     doc.build(story, onFirstPage=footer, onLaterPages=footer)
     return path
+
+
+def write_channel_review(path: Path, result: Any) -> Path:
+    """Write a channel's review (``services.detectors.review``'s plain result) as a PDF, titled
+    by the channel and its system: the one writer the CLI and the demo share."""
+    channel = result.channel
+    return render_review_pdf(
+        path,
+        result.review,
+        result.readings,
+        title=f"Detector review {channel.site_code}/{channel.code}",
+        system_label=f"{channel.site_code}/{channel.system_tag}",
+        refrigerant=result.refrigerant,
+        molar_mass_g_mol=result.molar_mass_g_mol,
+        repairs=result.repairs,
+    )

@@ -145,21 +145,10 @@ def load_detectors(db: Database, location: Location, folder: Path) -> list:  # t
 
 def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
     """The demo's detector review PDF for the first channel."""
-    from ledger.exports.detector_pdf import render_review_pdf
+    from ledger.exports.detector_pdf import write_channel_review
 
     channel = result.channel
-    path = out / f"detector-review-{channel.site_code}-{channel.code}.pdf"
-    render_review_pdf(
-        path,
-        result.review,
-        result.readings,
-        title=f"Detector review {channel.site_code}/{channel.code}",
-        system_label=f"{channel.site_code}/{channel.system_tag}",
-        refrigerant=result.refrigerant,
-        molar_mass_g_mol=result.molar_mass_g_mol,
-        repairs=result.repairs,
-    )
-    return path
+    return write_channel_review(out / f"detector-review-{channel.site_code}-{channel.code}.pdf", result)
 
 
 def file_past_reports(db: Database) -> None:
