@@ -43,8 +43,6 @@ COUNTRIES: frozenset[str] = frozenset({
 })
 # Northern Ireland: the EU F-gas Regulation applies under the Windsor Framework (from memory).
 SUBDIVISIONS: frozenset[str] = frozenset({"GB-NIR"})
-MASS_UNIT = "kg"
-LEAK_RATES = False  # no leak-rate test: periodic checks by band
 RECORD_TITLE = "EU 517/2014 Art 6"
 # EU 517/2014 Art 6 record items (kept by Reg. (EU) 2024/573 Art 7) and where a logbook shows
 # each; the PDF and the spreadsheet print this table, and tests check each mapping.
@@ -212,8 +210,8 @@ REGIME = Regime(
                            check_basis=B_DETECTION_CHECK),
     ),
     emit_from=APPLIES_FROM, change_dates=(APPLIES_FROM,), certified_only=True,
-    countries=COUNTRIES, subdivisions=SUBDIVISIONS, mass_unit=MASS_UNIT, leak_rates=LEAK_RATES,
-    record_title=RECORD_TITLE, record_items=RECORD_ITEMS,
+    countries=COUNTRIES, subdivisions=SUBDIVISIONS, record_title=RECORD_TITLE,
+    record_items=RECORD_ITEMS,
 )
 tier_of = REGIME.tier_of
 compute_obligations = REGIME.compute_obligations

@@ -35,14 +35,6 @@ REGIME_VERSION = "gb-2"  # bump when a rule or constant here changes
 TITLE = "Great Britain: F-gas Regulation (EU) 517/2014 as retained, and HCFC leak checks"
 GWP_BASIS = "gb"  # Reg. (EU) 517/2014 values as retained (docs/refrigerants.md)
 
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-COUNTRIES: frozenset[str] = frozenset({"GB"})
-EXCEPT_SUBDIVISIONS: frozenset[str] = frozenset({"GB-NIR"})  # Northern Ireland: regime eu
-MASS_UNIT = "kg"
-LEAK_RATES = False
-RECORD_TITLE = eu.RECORD_TITLE  # 517/2014 Art 6 itself, as retained
-RECORD_ITEMS = eu.RECORD_ITEMS
-
 _FGAS = "Reg. (EU) 517/2014 as retained in GB"
 _ODS = "Reg. (EC) 1005/2009 Art 23(2) as retained in GB (gov.uk ODS leak-check guidance)"
 
@@ -158,9 +150,9 @@ REGIME = Regime(
                            APPLIES_FROM, check_months=DETECTION_CHECK_MONTHS,
                            check_basis=B_DETECTION_CHECK),
     ),
-    certified_only=True, countries=COUNTRIES, except_subdivisions=EXCEPT_SUBDIVISIONS,
-    mass_unit=MASS_UNIT, leak_rates=LEAK_RATES, record_title=RECORD_TITLE,
-    record_items=RECORD_ITEMS,
+    certified_only=True, countries=frozenset({"GB"}),
+    except_subdivisions=frozenset({"GB-NIR"}),  # Northern Ireland: regime eu
+    record_title=eu.RECORD_TITLE, record_items=eu.RECORD_ITEMS,  # 517/2014 Art 6, as retained
 )
 tier_of = REGIME.tier_of
 compute_obligations = REGIME.compute_obligations

@@ -38,11 +38,6 @@ REGIME_VERSION = "us-82f-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 82 Subpart F: ozone-depleting refrigerants, appliances of 50 lb and up"
 GWP_BASIS = "ar4"
 
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-COUNTRIES: frozenset[str] = frozenset({"US"})
-MASS_UNIT = "lb"
-LEAK_RATES = True  # duties follow the leak rate at each addition
-
 ODS_CLASSES = frozenset({"HCFC", "CFC"})  # class II / class I refrigerants
 
 B_APPLIES = Basis("40 CFR 82.157(a)", Confidence.CHECKED,
@@ -128,8 +123,8 @@ REGIME = Regime(
                                  INSPECTION_MONTHS),
         en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE),
     ),
-    countries=COUNTRIES, mass_unit=MASS_UNIT, leak_rates=LEAK_RATES,
-    chronic_percent=CHRONIC_PERCENT,
+    # a US site: masses in pounds, leak-rate tables, the chronic-leak report share
+    countries=frozenset({"US"}), mass_unit="lb", leak_rates=True, chronic_percent=CHRONIC_PERCENT,
 )
 tier_of = REGIME.tier_of
 compute_obligations = REGIME.compute_obligations

@@ -36,11 +36,6 @@ REGIME_VERSION = "us-84c-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 84 Subpart C: HFC refrigerants above GWP 53, appliances of 15 lb and up"
 GWP_BASIS = "ar4"
 
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-COUNTRIES: frozenset[str] = frozenset({"US"})
-MASS_UNIT = "lb"
-LEAK_RATES = True
-
 _SUBPART = "40 CFR 84 Subpart C (89 FR 82682)"
 _REPAIR = "40 CFR 84.106"  # leak repair; section per Hixson (EH&S consultancy), Apr 2025
 _ALD = "40 CFR 84.108"  # automatic leak detection; same source
@@ -142,8 +137,7 @@ REGIME = Regime(
                            installed_from=DETECTION_INSTALLED_FROM,
                            existing_by=DETECTION_EXISTING_BY),
     ),
-    countries=COUNTRIES, mass_unit=MASS_UNIT, leak_rates=LEAK_RATES,
-    chronic_percent=CHRONIC_PERCENT,
+    chronic_percent=CHRONIC_PERCENT, leak_rates=True, mass_unit="lb", countries=frozenset({"US"}),
 )
 tier_of = REGIME.tier_of
 compute_obligations = REGIME.compute_obligations

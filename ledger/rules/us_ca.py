@@ -32,11 +32,6 @@ REGIME_VERSION = "us-ca-2"  # bump when a rule or constant here changes
 TITLE = "California refrigerant management program (17 CCR 95380 ff.)"
 GWP_BASIS = "ar4"
 
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-SUBDIVISIONS: frozenset[str] = frozenset({"US-CA"})
-MASS_UNIT = "lb"
-LEAK_RATES = True  # shown with the federal regimes of a US site
-
 B_SCOPE = Basis("17 CCR 95380 ff.", Confidence.SECONDARY,
                 "systems with more than 50 lb of a refrigerant with GWP 150 or more (AR4)")
 B_OVER = Basis("17 CCR 95385(c)", Confidence.CHECKED,
@@ -132,7 +127,8 @@ REGIME = Regime(
     ),
     site_duties=(en.AnnualReport(PROGRAM_FROM, REPORT_DAY, B_REPORT, INSPECTIONS,
                                  frozenset({"large", "medium"})),),
-    subdivisions=SUBDIVISIONS, mass_unit=MASS_UNIT, leak_rates=LEAK_RATES,
+    # California only; its sites show pounds and the federal leak-rate tables
+    subdivisions=frozenset({"US-CA"}), mass_unit="lb", leak_rates=True,
 )
 tier_of = REGIME.tier_of
 compute_obligations = REGIME.compute_obligations
