@@ -28,6 +28,7 @@ regime's declarations (see DEVELOPERS.md, "Adding a regime").
 
 from __future__ import annotations
 
+import calendar
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from datetime import date, timedelta
@@ -60,6 +61,7 @@ from ledger.rules.common import (
     UNKNOWN_REFRIGERANT,
     YEAR,
     Cadence,
+    Constant,
     ReferenceLike,
     Segment,
     Window,
@@ -570,6 +572,22 @@ class DetectionSystem:
                     w.cause, _window_detail(w, "check"))
 
 
+def banded_duties(*, follow_up_earliest_days: int, follow_up_months: int, detection_basis: Basis,
+                  detection_from: date, detection_check_months: int,
+                  detection_check_basis: Basis) -> tuple[Any, ...]:
+    """The duties of a banded periodic-check regime (`BandedChecks`): periodic leak checks,
+    repairs of found leaks, follow-up checks, and a leak detection system fitted where
+    required and checked every ``detection_check_months``."""
+    return (
+        PeriodicCheck(),
+        RepairDeadline("repair the leak found{where} by the {what} of {on} ({rule})"),
+        FollowUpWindow(follow_up_earliest_days, follow_up_months),
+        DetectionSystem(detection_basis, "fit a leak detection system (required from {trigger})",
+                        detection_from, check_months=detection_check_months,
+                        check_basis=detection_check_basis),
+    )
+
+
 # --- leak-rate duties (US) ------------------------------------------------------------------
 
 
@@ -602,6 +620,13 @@ def _leak_rows(job: Job, applies_from: date) -> tuple[str, list[LeakRate]]:
     return job.memo[key]  # type: ignore[no-any-return]
 
 
+def threshold_rows(basis: Basis) -> tuple[Constant, ...]:
+    """The leak-rate thresholds by application (`ledger.domain.leak_rate.THRESHOLD_PERCENT`,
+    the ones every leak rate is judged against), as printed constants."""
+    return tuple(Constant(f"leak-rate threshold, {app.value}", pct, "%", basis)
+                 for app, pct in THRESHOLD_PERCENT.items())
+
+
 def _pct(value: Decimal | None) -> str:
     return "?" if value is None else str(value.quantize(Decimal("0.01"), rounding="ROUND_DOWN"))
 
@@ -619,6 +644,16 @@ class LeakRateRepair:
     verification_days: int
     initial_basis: Basis
     follow_up_basis: Basis
+
+    def rows(self, *, initial: bool = True) -> tuple[Constant, ...]:
+        """The constants `refledger rules` prints for this duty (the ones it runs on)."""
+        return (
+            Constant("repair within", self.repair_days, "days after the exceedance", self.repair_basis),
+            *((Constant("initial verification test by", self.repair_days, "days after the exceedance",
+                        self.initial_basis),) if initial else ()),
+            Constant("follow-up verification test within", self.verification_days,
+                     "days after the initial test", self.follow_up_basis),
+        )
 
     def run(self, job: Job) -> None:
         method, rows = _leak_rows(job, self.applies_from)
@@ -677,6 +712,13 @@ class ExceedanceInspections:
     quarterly_lb: Decimal
     months: int
 
+    def rows(self) -> tuple[Constant, ...]:
+        """The constants `refledger rules` prints for this duty."""
+        return (Constant("quarterly inspections from (commercial / industrial process)",
+                         self.quarterly_lb, "lb", self.basis),
+                Constant("inspections continue after the last exceedance", self.months, "months",
+                         self.basis))
+
     def run(self, job: Job) -> None:
         _, rows = _leak_rows(job, self.applies_from)
         exceeded = [r for r in rows if r.exceeded]
@@ -716,6 +758,14 @@ class ChronicReport:
     percent: Decimal
     basis: Basis
     due: tuple[int, int]  # (month, day) of the next year
+
+    def rows(self, *, due: bool = True) -> tuple[Constant, ...]:
+        """The constants `refledger rules` prints for this duty."""
+        when = f"{self.due[1]} {calendar.month_name[self.due[0]]}"
+        return (Constant("chronic-leak report from", self.percent, "% of full charge per calendar year",
+                         self.basis),
+                *((Constant("chronic-leak report due", f"{when} of the next year", "", self.basis),)
+                  if due else ()))
 
     def run(self, job: Job) -> None:
         _, rows = _leak_rows(job, self.applies_from)

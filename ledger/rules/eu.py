@@ -201,14 +201,10 @@ CHECKS = en.BandedChecks(
 REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
     scope_basis=B_SCOPE, classify=CHECKS,
-    duties=(
-        en.PeriodicCheck(),
-        en.RepairDeadline("repair the leak found{where} by the {what} of {on} ({rule})"),
-        en.FollowUpWindow(FOLLOW_UP_EARLIEST_DAYS, FOLLOW_UP_MONTHS),
-        en.DetectionSystem(B_DETECTION, "fit a leak detection system (required from {trigger})",
-                           APPLIES_FROM, check_months=DETECTION_CHECK_MONTHS,
-                           check_basis=B_DETECTION_CHECK),
-    ),
+    duties=en.banded_duties(follow_up_earliest_days=FOLLOW_UP_EARLIEST_DAYS,
+                            follow_up_months=FOLLOW_UP_MONTHS, detection_basis=B_DETECTION,
+                            detection_from=APPLIES_FROM, detection_check_basis=B_DETECTION_CHECK,
+                            detection_check_months=DETECTION_CHECK_MONTHS),
     emit_from=APPLIES_FROM, change_dates=(APPLIES_FROM,), certified_only=True,
     countries=COUNTRIES, subdivisions=SUBDIVISIONS, record_title=RECORD_TITLE,
     record_items=RECORD_ITEMS,

@@ -54,9 +54,7 @@ B_HERMETIC = Basis(f"{_FGAS} Art 4(1)", Confidence.CHECKED,
 B_DETECTION = Basis(f"{_FGAS} Art 5(1)", Confidence.CHECKED, "from 500 t CO2e")
 B_DETECTION_CHECK = Basis(f"{_FGAS} Art 5(3)", Confidence.CHECKED,
                           "\"mindestens einmal alle 12 Monate kontrolliert\" (gesetze.legal)")
-B_REPAIR = Basis(f"{_FGAS} Art 3(3)", Confidence.POLICY,
-                 "the law says 'without undue delay'; the 14 days shown are a site-policy "
-                 "deadline, not a legal one")
+B_REPAIR = Basis(f"{_FGAS} Art 3(3)", Confidence.POLICY, eu.B_REPAIR.note)  # the same site policy
 B_FOLLOW_UP = Basis(f"{_FGAS} Art 3(3)", Confidence.CHECKED,
                     "where the equipment must be leak-checked: \"en el plazo de un mes tras la "
                     "reparación\" (517/2014 Art 3(3), Spanish text)")
@@ -86,7 +84,7 @@ HERMETIC_CO2E_T = Decimal(10)
 DETECTION_CO2E_T = Decimal(500)
 DETECTION_CHECK_MONTHS = 12
 REPAIR_DAYS = 14  # F-gas: site policy for "without undue delay"; HCFC: the guidance's 14 days
-REPAIR_RULE = "'without undue delay': 14-day site-policy deadline, not a legal one"
+REPAIR_RULE = eu.REPAIR_RULE  # the same 14-day site policy for "without undue delay"
 FOLLOW_UP_EARLIEST_DAYS = 0  # 517/2014 accepts a re-check straight after the repair
 FOLLOW_UP_MONTHS = 1
 
@@ -141,15 +139,11 @@ CHECKS = en.BandedChecks(
 REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
     scope_basis=B_SCOPE, classify=CHECKS, emit_from=APPLIES_FROM, change_dates=(APPLIES_FROM,),
-    duties=(
-        en.PeriodicCheck(),
-        en.RepairDeadline("repair the leak found{where} by the {what} of {on} ({rule})"),
-        # 517/2014 accepts a re-check straight after the repair: no earliest day
-        en.FollowUpWindow(FOLLOW_UP_EARLIEST_DAYS, FOLLOW_UP_MONTHS),
-        en.DetectionSystem(B_DETECTION, "fit a leak detection system (required from {trigger})",
-                           APPLIES_FROM, check_months=DETECTION_CHECK_MONTHS,
-                           check_basis=B_DETECTION_CHECK),
-    ),
+    # 517/2014 accepts a re-check straight after the repair: FOLLOW_UP_EARLIEST_DAYS is 0
+    duties=en.banded_duties(detection_basis=B_DETECTION, detection_check_basis=B_DETECTION_CHECK,
+                            detection_from=APPLIES_FROM, detection_check_months=DETECTION_CHECK_MONTHS,
+                            follow_up_months=FOLLOW_UP_MONTHS,
+                            follow_up_earliest_days=FOLLOW_UP_EARLIEST_DAYS),
     certified_only=True, countries=frozenset({"GB"}),
     except_subdivisions=frozenset({"GB-NIR"}),  # Northern Ireland: regime eu
     record_title=eu.RECORD_TITLE, record_items=eu.RECORD_ITEMS,  # 517/2014 Art 6, as retained

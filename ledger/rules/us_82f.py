@@ -27,7 +27,7 @@ from __future__ import annotations
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.leak_rate import THRESHOLD_PERCENT, YEAR_DAYS
+from ledger.domain.leak_rate import YEAR_DAYS
 from ledger.domain.records import Basis, Confidence
 from ledger.rules import engines as en
 from ledger.rules.common import Constant, ReferenceLike
@@ -77,26 +77,21 @@ REPORT_PERCENT = Decimal(125)
 CHRONIC_PERCENT = REPORT_PERCENT  # share of full charge added in a year that calls for a report
 REPORT_DUE = (3, 1)  # 1 March of the next year
 
+# The leak-rate duties of 82.157(d), (e), (g), (j), configured by the constants above.
+REPAIRS = en.LeakRateRepair(APPLIES_FROM, REPAIR_DAYS, B_REPAIR, VERIFICATION_DAYS, B_INITIAL,
+                            B_FOLLOW_UP)
+INSPECTIONS = en.ExceedanceInspections(APPLIES_FROM, B_INSPECTION, INSPECTION_QUARTERLY_LB,
+                                       INSPECTION_MONTHS)
+REPORTS = en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE)
+
 CONSTANTS: tuple[Constant, ...] = (
     Constant("applies from", APPLIES_FROM, "date", B_APPLIES),
     Constant("full charge from", FULL_CHARGE_LB, "lb", B_APPLIES),
-    *(Constant(f"leak-rate threshold, {app.value}", pct, "%", B_THRESHOLDS)
-      for app, pct in THRESHOLD_PERCENT.items()),
+    *en.threshold_rows(B_THRESHOLDS),
     Constant("leak-rate window", YEAR_DAYS, "days", B_RATE),
     Constant("rolling average restarts at a passing follow-up verification test", "yes", "",
              B_ROLLING_RESET),
-    Constant("repair within", REPAIR_DAYS, "days after the exceedance", B_REPAIR),
-    Constant("initial verification test by", REPAIR_DAYS, "days after the exceedance",
-             B_INITIAL),
-    Constant("follow-up verification test within", VERIFICATION_DAYS,
-             "days after the initial test", B_FOLLOW_UP),
-    Constant("quarterly inspections from (commercial / industrial process)",
-             INSPECTION_QUARTERLY_LB, "lb", B_INSPECTION),
-    Constant("inspections continue after the last exceedance", INSPECTION_MONTHS, "months",
-             B_INSPECTION),
-    Constant("chronic-leak report from", REPORT_PERCENT, "% of full charge per calendar year",
-             B_REPORT),
-    Constant("chronic-leak report due", "1 March of the next year", "", B_REPORT),
+    *REPAIRS.rows(), *INSPECTIONS.rows(), *REPORTS.rows(),
 )
 
 
@@ -116,13 +111,7 @@ REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
     scope_basis=B_APPLIES,
     classify=en.LeakRateScope(SCOPE, "≥ 50 lb ozone-depleting", B_THRESHOLDS),
-    duties=(
-        en.LeakRateRepair(APPLIES_FROM, REPAIR_DAYS, B_REPAIR, VERIFICATION_DAYS, B_INITIAL,
-                          B_FOLLOW_UP),
-        en.ExceedanceInspections(APPLIES_FROM, B_INSPECTION, INSPECTION_QUARTERLY_LB,
-                                 INSPECTION_MONTHS),
-        en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE),
-    ),
+    duties=(REPAIRS, INSPECTIONS, REPORTS),
     # a US site: masses in pounds, leak-rate tables, the chronic-leak report share
     countries=frozenset({"US"}), mass_unit="lb", leak_rates=True, chronic_percent=CHRONIC_PERCENT,
 )

@@ -24,12 +24,11 @@ from __future__ import annotations
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.leak_rate import THRESHOLD_PERCENT
 from ledger.domain.records import Application, Basis, Confidence
 from ledger.rules import engines as en
+from ledger.rules import us_82f
 from ledger.rules.common import Constant
 from ledger.rules.regime import Regime
-from ledger.rules.us_82f import ODS_CLASSES
 
 CODE = "us-84c"
 REGIME_VERSION = "us-84c-2"  # bump when a rule or constant here changes
@@ -75,33 +74,38 @@ GWP_ABOVE = Decimal(53)
 FULL_CHARGE_LB = Decimal(15)  # = 6 803 885 550 000 ng exactly
 REPAIR_DAYS = 30
 VERIFICATION_DAYS = 10
-INSPECTION_QUARTERLY_LB = Decimal(500)
-INSPECTION_MONTHS = 12
-REPORT_PERCENT = Decimal(125)
-CHRONIC_PERCENT = REPORT_PERCENT
-REPORT_DUE = (3, 1)  # 1 March of the next year
+# Inspections and the chronic-leak report as in 40 CFR 82.157(g), (j): their Part 84 figures
+# were not found (B_INSPECTION, B_REPORT), so Part 82's are used.
+INSPECTION_QUARTERLY_LB = us_82f.INSPECTION_QUARTERLY_LB
+INSPECTION_MONTHS = us_82f.INSPECTION_MONTHS
+REPORT_PERCENT = CHRONIC_PERCENT = us_82f.REPORT_PERCENT
+REPORT_DUE = us_82f.REPORT_DUE
 DETECTION_LB = Decimal(1500)
 DETECTION_INSTALLED_FROM = date(2017, 1, 1)  # older systems need no automatic leak detection
 DETECTION_EXISTING_BY = date(2027, 1, 1)  # systems installed 2017-2025
 DETECTION_APPLICATIONS = frozenset({Application.COMMERCIAL_REFRIGERATION,
                                     Application.INDUSTRIAL_PROCESS})
 
+# Part 84 duties, as Part 82's leak-rate duties plus automatic leak detection (84.108).
+REPAIRS = en.LeakRateRepair(APPLIES_FROM, REPAIR_DAYS, B_REPAIR, VERIFICATION_DAYS, B_INITIAL,
+                            B_FOLLOW_UP)
+LEAK_DUTIES = (
+    REPAIRS,
+    en.ExceedanceInspections(APPLIES_FROM, B_INSPECTION, INSPECTION_QUARTERLY_LB, INSPECTION_MONTHS),
+    en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE),
+    # at installation from 2026, by 1 January 2027 for systems installed 2017-2025
+    en.DetectionSystem(B_DETECTION, f"fit automatic leak detection (≥ {DETECTION_LB} lb, "
+                       "installed {installed})", APPLIES_FROM, installed_from=DETECTION_INSTALLED_FROM,
+                       existing_by=DETECTION_EXISTING_BY),
+)
+
 CONSTANTS: tuple[Constant, ...] = (
     Constant("applies from", APPLIES_FROM, "date", B_SCOPE),
     Constant("GWP above (AR4)", GWP_ABOVE, "", B_SCOPE),
     Constant("GWP basis", GWP_BASIS, "", B_GWP),
     Constant("full charge from", FULL_CHARGE_LB, "lb", B_SCOPE),
-    *(Constant(f"leak-rate threshold, {app.value}", pct, "%", B_THRESHOLDS)
-      for app, pct in THRESHOLD_PERCENT.items()),
-    Constant("repair within", REPAIR_DAYS, "days after the exceedance", B_REPAIR),
-    Constant("follow-up verification test within", VERIFICATION_DAYS,
-             "days after the initial test", B_FOLLOW_UP),
-    Constant("quarterly inspections from (commercial / industrial process)",
-             INSPECTION_QUARTERLY_LB, "lb", B_INSPECTION),
-    Constant("inspections continue after the last exceedance", INSPECTION_MONTHS, "months",
-             B_INSPECTION),
-    Constant("chronic-leak report from", REPORT_PERCENT, "% of full charge per calendar year",
-             B_REPORT),
+    *en.threshold_rows(B_THRESHOLDS), *REPAIRS.rows(initial=False), *LEAK_DUTIES[1].rows(),
+    *LEAK_DUTIES[2].rows(due=False),
     Constant("automatic leak detection from", DETECTION_LB, "lb", B_DETECTION_SIZE),
     Constant("automatic leak detection: systems installed from", DETECTION_INSTALLED_FROM,
              "date", B_DETECTION),
@@ -112,7 +116,7 @@ CONSTANTS: tuple[Constant, ...] = (
 
 SCOPE = en.ChargeScope(
     basis=B_SCOPE, gwp_basis=GWP_BASIS, residential="residential appliance: excluded from Subpart C",
-    ods_classes=ODS_CLASSES, ods=False,
+    ods_classes=us_82f.ODS_CLASSES, ods=False,
     ods_text="{d} is ozone-depleting: covered by 40 CFR 82, not here",
     gwp_from=GWP_ABOVE, gwp_strictly_above=True, low_gwp="{d} has GWP {gwp}{note}, not above 53",
     charge_lb=FULL_CHARGE_LB, charge_strictly_over=False,
@@ -125,18 +129,7 @@ REGIME = Regime(
     classify=en.LeakRateScope(SCOPE, "≥ 15 lb, GWP > 53", B_THRESHOLDS, APPLIES_FROM,
                               "; duties start on 1 January 2026", DETECTION_LB,
                               DETECTION_APPLICATIONS),
-    duties=(
-        en.LeakRateRepair(APPLIES_FROM, REPAIR_DAYS, B_REPAIR, VERIFICATION_DAYS, B_INITIAL,
-                          B_FOLLOW_UP),
-        en.ExceedanceInspections(APPLIES_FROM, B_INSPECTION, INSPECTION_QUARTERLY_LB,
-                                 INSPECTION_MONTHS),
-        en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE),
-        # automatic leak detection: at installation from 2026, by 2027 for 2017-2025 systems
-        en.DetectionSystem(B_DETECTION, f"fit automatic leak detection (≥ {DETECTION_LB} lb, "
-                           "installed {installed})", APPLIES_FROM,
-                           installed_from=DETECTION_INSTALLED_FROM,
-                           existing_by=DETECTION_EXISTING_BY),
-    ),
+    duties=LEAK_DUTIES,
     chronic_percent=CHRONIC_PERCENT, leak_rates=True, mass_unit="lb", countries=frozenset({"US"}),
 )
 tier_of = REGIME.tier_of
