@@ -121,17 +121,18 @@ CHECKS = en.BandedChecks(
         en.BandTest("ods", "ods", en.fraction_kg("ods"), fmt_kg, "{} of HCFC/CFC", ODS_BANDS,
                     B_ODS_TIERS, _ODS_TERMS, hermetic_below=ODS_HERMETIC_KG, doubles=False),
     ),
-    scope_basis=B_SCOPE,
-    out_of_scope=(("II-1", "{d} holds no Annex I gas (Annex II olefins are outside the 517/2014 "
-                   "leak-check duty): out of scope"),),
-    not_covered="{d} is neither a fluorinated gas nor ozone-depleting: out of scope",
-    below="; under 5 t CO2e and 3 kg HCFC/CFC: no periodic leak check",
-    hermetic_basis=B_HERMETIC,
-    hermetic="; hermetically sealed and labelled, under 10 t CO2e / 6 kg HCFC: no periodic leak "
-             "check",
+    # the sentences of each verdict, mixtures tested both ways first
     both="; both the F-gas and the HCFC tests apply, the shorter interval wins",
     detection_note="; a leak detection system is required (Art 5)",
     detection_factor=DETECTION_FACTOR,
+    hermetic="; hermetically sealed and labelled, under 10 t CO2e / 6 kg HCFC: no periodic leak "
+             "check",
+    hermetic_basis=B_HERMETIC,
+    below="; under 5 t CO2e and 3 kg HCFC/CFC: no periodic leak check",
+    out_of_scope=(("II-1", "{d} holds no Annex I gas (Annex II olefins are outside the 517/2014 "
+                   "leak-check duty): out of scope"),),
+    not_covered="{d} is neither a fluorinated gas nor ozone-depleting: out of scope",
+    scope_basis=B_SCOPE,
     repair_by=("ods", "f-gas"),  # an HCFC/CFC part brings the guidance's firm 14 days
     follow_up_by=("f-gas", "ods"),
 )

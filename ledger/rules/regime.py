@@ -21,21 +21,9 @@ from functools import lru_cache
 from itertools import groupby
 from typing import Any, Protocol
 
+from ledger.domain import records as rec
 from ledger.domain.booking import Booking, book
-from ledger.domain.records import (
-    Basis,
-    Event,
-    EventId,
-    EventKind,
-    Finding,
-    Obligation,
-    ObligationKind,
-    RegimeCode,
-    System,
-    SystemHistory,
-    SystemState,
-    Tier,
-)
+from ledger.domain.records import Basis, Event, EventId, EventKind, Obligation, ObligationKind, System
 from ledger.domain.state import EMPTY_STATE
 from ledger.rules.common import (
     MONTH,
@@ -89,7 +77,7 @@ class Classifier(Protocol):
     ``change_dates`` (whether each has come): answers are memoised on exactly those.
     """
 
-    def __call__(self, reference: Any, system: System, state: SystemState, day: date) -> Assessment: ...
+    def __call__(self, reference: Any, system: System, state: rec.SystemState, day: date) -> Assessment: ...
 
 
 class Duty(Protocol):
@@ -113,7 +101,7 @@ class Regime:
     cheaply.
     """
 
-    code: RegimeCode
+    code: rec.RegimeCode
     version: str  # bump when a rule or constant changes (kept results go stale anyway)
     title: str
     gwp_basis: str
@@ -151,7 +139,7 @@ class Regime:
     def CONSTANTS(self) -> tuple[Constant, ...]:  # noqa: N802
         return self.constants
 
-    def assess(self, reference: ReferenceLike, system: System, state: SystemState,
+    def assess(self, reference: ReferenceLike, system: System, state: rec.SystemState,
                day: date) -> Assessment:
         """The classifier's answer for an in-service state, memoised (see `Classifier`)."""
         steps = tuple(day >= d for d in self.change_dates)
@@ -159,8 +147,8 @@ class Regime:
                             system.residential, state.refrigerant, state.full_charge_ng,
                             state.detection_system, steps)
 
-    def tier_of(self, history: SystemHistory | Booking, reference: ReferenceLike,
-                as_of: date) -> Tier:
+    def tier_of(self, history: rec.SystemHistory | Booking, reference: ReferenceLike,
+                as_of: date) -> rec.Tier:
         """The system's band on ``as_of`` and the interval it sets.
 
         Args:
@@ -174,17 +162,17 @@ class Regime:
         if idle is not None:
             return idle
         a = self.assess(reference, booked.system, state, as_of)
-        return Tier(self.code, a.band, a.interval_months, a.basis, a.reason)
+        return rec.Tier(self.code, a.band, a.interval_months, a.basis, a.reason)
 
     def run(self, booked: Sequence[Booking], reference: ReferenceLike,
-            as_of: date) -> tuple[list[Obligation], list[Finding]]:
+            as_of: date) -> tuple[list[Obligation], list[rec.Finding]]:
         """Every duty of this regime over booked systems (of one or several sites).
 
         Returns:
             (obligations earliest due first, findings about the data).
         """
         obligations: list[Obligation] = []
-        findings: list[Finding] = []
+        findings: list[rec.Finding] = []
         for b in booked:
             findings.extend(history_findings(b.history, reference, as_of, b.until(as_of).events))
             job = Job(self, b.until(as_of), reference, as_of)
@@ -203,8 +191,8 @@ class Regime:
         obligations.sort(key=obligation_sort_key)
         return obligations, findings
 
-    def compute_obligations(self, histories: Sequence[SystemHistory], reference: ReferenceLike,
-                            as_of: date) -> tuple[list[Obligation], list[Finding]]:
+    def compute_obligations(self, histories: Sequence[rec.SystemHistory], reference: ReferenceLike,
+                            as_of: date) -> tuple[list[Obligation], list[rec.Finding]]:
         """`run` over histories not yet booked (each is booked here).
 
         Args:
@@ -254,7 +242,7 @@ class Job:
     reference: ReferenceLike
     as_of: date
     out: list[Obligation] = field(default_factory=list)
-    findings: list[Finding] = field(default_factory=list)
+    findings: list[rec.Finding] = field(default_factory=list)
     memo: dict[Any, Any] = field(default_factory=dict)  # shared between engines of one job
 
     def __post_init__(self) -> None:
@@ -267,7 +255,7 @@ class Job:
     def system(self) -> System:
         return self.booked.system
 
-    def state(self, day: date) -> SystemState:
+    def state(self, day: date) -> rec.SystemState:
         """The system's state at the end of ``day``."""
         return self.booked.state(day)
 
