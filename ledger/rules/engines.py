@@ -33,7 +33,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from datetime import date, timedelta
 from decimal import Context, Decimal, localcontext
-from typing import Any
+from typing import Any, cast
 
 from ledger.domain.booking import Booking
 from ledger.domain.dates import add_months
@@ -213,13 +213,13 @@ class BandedChecks:
         said = f"{designation}, {fmt_kg(charge_kg)} charge: " + " and ".join(figures)
         terms = next(t.repair for name in self.repair_by for t in present if t.name == name)
         follow = next(t.repair for name in self.follow_up_by for t in present if t.name == name)
-        duty = {"repair_days": terms.days, "repair_basis": terms.basis,
+        duty: dict[str, Any] = {"repair_days": terms.days, "repair_basis": terms.basis,
                 "repair_rule": terms.rule, "follow_up_basis": follow.follow_up_basis}
 
         if self.residential is not None and system.hermetic and system.residential:
             below_kg, basis, sentence = self.residential
             if charge_kg * sum(parts.values()) < below_kg:
-                return Assessment(EXEMPT, said + sentence, basis, None, **duty)  # type: ignore[arg-type]
+                return Assessment(EXEMPT, said + sentence, basis, None, **duty)
 
         options: list[tuple[int, str, str, Basis]] = []  # (months, band, note, basis)
         sealed_off = False
@@ -238,8 +238,8 @@ class BandedChecks:
                                  for t in counted)
         if not options:
             if sealed_off:
-                return Assessment(EXEMPT, said + self.hermetic, self.hermetic_basis, None, **duty)  # type: ignore[arg-type]
-            return Assessment(BELOW_THRESHOLD, said + self.below, self.scope_basis, None, **duty)  # type: ignore[arg-type]
+                return Assessment(EXEMPT, said + self.hermetic, self.hermetic_basis, None, **duty)
+            return Assessment(BELOW_THRESHOLD, said + self.below, self.scope_basis, None, **duty)
 
         months, band, note, basis = min(options, key=lambda o: o[0])  # ties keep the first test
         reason = said + (self.both if len(options) > 1 else "")
@@ -247,7 +247,7 @@ class BandedChecks:
             reason += self.detection_note
         cadence = Cadence(f"{months}-month leak check ({band}{note})", basis, months=months)
         return Assessment(band, reason, basis, cadence, detection_required=detection_required,
-                          **duty)  # type: ignore[arg-type]
+                          **duty)
 
 
 # --- coverage by charge in pounds (US) ------------------------------------------------------
@@ -364,14 +364,14 @@ class InspectionBands:
             return excluded
         b = self.band_of(state.full_charge_ng)
         said = f"{resolve(reference, state.refrigerant)}, {fmt_lb(state.full_charge_ng)}: "
-        duty = {"repair_days": self.repair.days, "repair_basis": self.repair.basis,
+        duty: dict[str, Any] = {"repair_days": self.repair.days, "repair_basis": self.repair.basis,
                 "repair_rule": self.repair.rule}
         if b.waived_by_detection is not None and state.detection_system:
             return Assessment(b.band, f"{said}automatic leak detection used, periodic "
                               f"inspections waived ({b.waived_by_detection.citation})",
-                              b.waived_by_detection, None, **duty)  # type: ignore[arg-type]
+                              b.waived_by_detection, None, **duty)
         cadence = Cadence(b.label, b.basis, period=b.period)
-        return Assessment(b.band, said + b.label, b.basis, cadence, **duty)  # type: ignore[arg-type]
+        return Assessment(b.band, said + b.label, b.basis, cadence, **duty)
 
 
 # --- duties ---------------------------------------------------------------------------------
@@ -617,7 +617,7 @@ def _leak_rows(job: Job, applies_from: date) -> tuple[str, list[LeakRate]]:
         history = SystemHistory(site, job.system, job.events)
         job.memo[key] = (method, [r for r in leak_rates(history, method)
                                   if r.counted and covered(r.added_on)])
-    return job.memo[key]  # type: ignore[no-any-return]
+    return cast(tuple[str, list[LeakRate]], job.memo[key])
 
 
 def threshold_rows(basis: Basis) -> tuple[Constant, ...]:

@@ -19,7 +19,7 @@ from datetime import date, timedelta
 from decimal import Decimal
 from functools import lru_cache
 from itertools import groupby
-from typing import Any, Protocol
+from typing import Any, Protocol, cast
 
 from ledger.domain import records as rec
 from ledger.domain.booking import Booking, book
@@ -273,7 +273,7 @@ class Job:
         if "changes" not in self.memo:
             extras = [d for d in self.regime.change_dates if d <= self.as_of]
             self.memo["changes"] = [*self.booked.dates, *extras]
-        return self.memo["changes"]  # type: ignore[no-any-return]
+        return cast(list[date], self.memo["changes"])
 
     def of_kind(self, *kinds: EventKind) -> list[Event]:
         """The events of some kinds; for CHECK and FOLLOW_UP only certified ones count where
@@ -284,7 +284,7 @@ class Job:
             certified = self.regime.certified_only
             self.memo[key] = [e for e in self.events if e.kind in kinds and (
                 not certified or e.kind not in _CERTIFIED_WORK or e.certified)]
-        return self.memo[key]  # type: ignore[no-any-return]
+        return cast(list[Event], self.memo[key])
 
     def add(self, kind: ObligationKind, due: date, basis: Basis, met: Event | None,
             cause: EventId | None, detail: str, earliest: date | None = None,
