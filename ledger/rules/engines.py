@@ -41,6 +41,7 @@ from ledger.domain.leak_rate import ANNUALIZING, METHODS, THRESHOLD_PERCENT, Lea
 from ledger.domain.records import (
     Application,
     Basis,
+    Event,
     EventId,
     EventKind,
     Finding,
@@ -531,6 +532,7 @@ class DetectionSystem:
             if trigger > job.as_of:
                 continue
             due = max(trigger, floor)
+            met: Event | None
             if present_at(trigger):
                 met = [e for e in ons if e.performed_on <= trigger][-1]
             else:

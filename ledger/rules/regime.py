@@ -143,7 +143,7 @@ class Regime:
                day: date) -> Assessment:
         """The classifier's answer for an in-service state, memoised (see `Classifier`)."""
         steps = tuple(day >= d for d in self.change_dates)
-        return _assess_memo(self, reference, system.application, system.hermetic,
+        return _assess_memo(self, cast(Any, reference), system.application, system.hermetic,
                             system.residential, state.refrigerant, state.full_charge_ng,
                             state.detection_system, steps)
 
@@ -214,7 +214,7 @@ def _representative_day(change_dates: tuple[date, ...], steps: tuple[bool, ...])
 
 
 @lru_cache(maxsize=1 << 16)
-def _assess_memo(regime: Regime, reference: ReferenceLike, application: Any, hermetic: bool,
+def _assess_memo(regime: Regime, reference: Any, application: Any, hermetic: bool,
                  residential: bool, refrigerant: str | None, charge_ng: int, detection: bool,
                  steps: tuple[bool, ...]) -> Assessment:
     # An estate's thousands of (system, day) questions reduce to a few distinct answers.
