@@ -421,6 +421,7 @@ def _walk_segment(
     as_of: date,
 ) -> list[Window]:
     out: list[Window] = []
+    cause: EventId | None
     anchor, cause, end = seg.start_on, seg.cause, seg.end_on
     check_days = [c.performed_on for c in checks]  # both lists are in date order: bisect into them
     while anchor <= as_of:
