@@ -24,7 +24,7 @@ from typing import Any, Protocol, cast
 from ledger.domain import records as rec
 from ledger.domain.booking import Booking, book
 from ledger.domain.records import Basis, Event, EventId, EventKind, Obligation, ObligationKind, System
-from ledger.domain.state import EMPTY_STATE
+from ledger.domain.state import EMPTY_STATE, state_of
 from ledger.rules.common import (
     MONTH,
     QUARTER,
@@ -156,12 +156,14 @@ class Regime:
             reference: the refrigerant tables.
             as_of: the day.
         """
-        booked = history if isinstance(history, Booking) else book(history)
-        state = booked.until(as_of).state(as_of)
+        if isinstance(history, Booking):
+            state = history.until(as_of).state(as_of)
+        else:  # one day asked of an unbooked history: a single fold to that day is cheaper
+            state = state_of(history.events, as_of)
         idle = tier_for_state(self.code, state, self.scope_basis)
         if idle is not None:
             return idle
-        a = self.assess(reference, booked.system, state, as_of)
+        a = self.assess(reference, history.system, state, as_of)
         return rec.Tier(self.code, a.band, a.interval_months, a.basis, a.reason)
 
     def run(self, booked: Sequence[Booking], reference: ReferenceLike,
