@@ -81,7 +81,7 @@ from ledger.rules.common import (
     service_segments,
     status_of,
 )
-from ledger.rules.regime import Assessment, Job, Regime
+from ledger.rules.regime import PERIOD_MONTHS, Assessment, Job, Regime
 
 __all__ = [
     "AnnualReport", "BandTest", "BandedChecks", "CalendarInspections", "ChargeScope",
@@ -343,7 +343,18 @@ class InspectionBand:
     period: str  # MONTH, QUARTER or YEAR
     label: str  # the inspection in a sentence
     basis: Basis
+    printed: str  # the row `refledger rules` prints: "inspection, <printed>"
     waived_by_detection: Basis | None = None  # automatic leak detection waives it
+    printed_waived: str = ""  # the row of the waiver, if any
+
+    def rows(self) -> tuple[Constant, ...]:
+        """The constants printed for this band: its period in months, and its waiver."""
+        rows = [Constant(f"inspection, {self.printed}", PERIOD_MONTHS[self.period],
+                         f"months (calendar {self.period})", self.basis)]
+        if self.waived_by_detection is not None:
+            rows.append(Constant(f"inspection, {self.printed_waived}", "none (waived)", "",
+                                 self.waived_by_detection))
+        return tuple(rows)
 
 
 @dataclass(frozen=True, eq=False)
@@ -353,6 +364,10 @@ class InspectionBands:
     scope: ChargeScope
     bands: tuple[InspectionBand, ...]  # largest first; the last one starts at 0 lb
     repair: RepairTerms
+
+    def rows(self) -> tuple[Constant, ...]:
+        """The constants printed for the bands, largest first."""
+        return tuple(row for b in self.bands for row in b.rows())
 
     def band_of(self, full_charge_ng: int) -> InspectionBand:
         """The band of a full charge (of a covered system)."""

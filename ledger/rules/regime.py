@@ -41,7 +41,7 @@ from ledger.rules.common import (
 
 __all__ = ["Assessment", "Classifier", "Duty", "Job", "Regime", "SiteDuty"]
 
-_PERIOD_MONTHS = {MONTH: 1, QUARTER: 3, YEAR: 12}
+PERIOD_MONTHS = {MONTH: 1, QUARTER: 3, YEAR: 12}  # a calendar period counted in months
 UNCERTIFIED = "done by an uncertified person"
 
 
@@ -66,7 +66,7 @@ class Assessment:
         c = self.cadence
         if c is None:
             return None
-        return c.months if c.months is not None else _PERIOD_MONTHS.get(c.period or "")
+        return c.months if c.months is not None else PERIOD_MONTHS.get(c.period or "")
 
 
 class Classifier(Protocol):

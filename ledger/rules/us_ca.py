@@ -74,24 +74,6 @@ LARGE_LB = Decimal(2000)
 REPAIR_DAYS = 14
 REPORT_DAY = (3, 1)  # 1 March, for the previous calendar year
 
-CONSTANTS: tuple[Constant, ...] = (
-    Constant("program in force from", PROGRAM_FROM, "date", B_START),
-    Constant("refrigerant GWP from (AR4)", GWP_FROM, "", B_SCOPE),
-    Constant("system charge over", SYSTEM_OVER_LB, "lb", B_OVER),
-    Constant("medium size from", MEDIUM_LB, "lb", B_SIZE),
-    Constant("large size from", LARGE_LB, "lb", B_SIZE),
-    Constant("inspection, ≥ 2 000 lb without automatic leak detection (inside a building)", 1,
-             "months (calendar month)", B_INSPECTION_LARGE),
-    Constant("inspection, ≥ 2 000 lb with automatic leak detection", "none (waived)", "",
-             B_ALD_WAIVER_LARGE),
-    Constant("inspection, 200 to < 2 000 lb without automatic leak detection", 3,
-             "months (calendar quarter)", B_INSPECTION_MEDIUM),
-    Constant("inspection, 200 to < 2 000 lb with automatic leak detection", "none (waived)", "",
-             B_ALD_WAIVER_MEDIUM),
-    Constant("inspection, > 50 to < 200 lb", 12, "months (calendar year)", B_INSPECTION_SMALL),
-    Constant("repair within", REPAIR_DAYS, "days of detection", B_REPAIR),
-    Constant("annual report due", "1 March (large and medium facilities)", "", B_REPORT),
-)
 
 
 SCOPE = en.ChargeScope(
@@ -104,13 +86,28 @@ INSPECTIONS = en.InspectionBands(SCOPE, (
     en.InspectionBand(LARGE_LB, "large", "≥ 2 000 lb", MONTH,
                       "monthly leak inspection (≥ 2 000 lb, no automatic leak detection; applies "
                       "to a circuit inside an enclosed building)", B_INSPECTION_LARGE,
-                      waived_by_detection=B_ALD_WAIVER_LARGE),
+                      "≥ 2 000 lb without automatic leak detection (inside a building)",
+                      B_ALD_WAIVER_LARGE, "≥ 2 000 lb with automatic leak detection"),
     en.InspectionBand(MEDIUM_LB, "medium", "200–2 000 lb", QUARTER,
                       "quarterly leak inspection (200 to < 2 000 lb, no automatic leak detection)",
-                      B_INSPECTION_MEDIUM, waived_by_detection=B_ALD_WAIVER_MEDIUM),
+                      B_INSPECTION_MEDIUM, "200 to < 2 000 lb without automatic leak detection",
+                      B_ALD_WAIVER_MEDIUM, "200 to < 2 000 lb with automatic leak detection"),
     en.InspectionBand(Decimal(0), "small", "50–200 lb", YEAR,
-                      "annual leak inspection (> 50 to < 200 lb)", B_INSPECTION_SMALL),
+                      "annual leak inspection (> 50 to < 200 lb)", B_INSPECTION_SMALL,
+                      "> 50 to < 200 lb"),
 ), en.RepairTerms(REPAIR_DAYS, B_REPAIR, "", B_REPAIR))
+
+
+CONSTANTS: tuple[Constant, ...] = (
+    Constant("program in force from", PROGRAM_FROM, "date", B_START),
+    Constant("refrigerant GWP from (AR4)", GWP_FROM, "", B_SCOPE),
+    Constant("system charge over", SYSTEM_OVER_LB, "lb", B_OVER),
+    Constant("medium size from", MEDIUM_LB, "lb", B_SIZE),
+    Constant("large size from", LARGE_LB, "lb", B_SIZE),
+    *INSPECTIONS.rows(),
+    Constant("repair within", REPAIR_DAYS, "days of detection", B_REPAIR),
+    Constant("annual report due", "1 March (large and medium facilities)", "", B_REPORT),
+)
 
 
 def size_of(full_charge_ng: int) -> str:
