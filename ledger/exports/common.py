@@ -37,7 +37,6 @@ PERCENT = "percent"  # a percentage as a number (23.5 means 23.5 %), one decimal
 INT = "int"  # a count
 NUMBER = "number"  # any other number (GWP), shown as stored
 BOOL = "bool"  # yes / blank
-KINDS = (TEXT, DATE, DATETIME, KG, TONNES, PERCENT, INT, NUMBER, BOOL)
 
 # Own neutral palette: ink, muted greys and one blue-grey accent; overdue rows get a pale warm
 # sand tint plus a bold marker in the status cell, so the mark survives black-and-white print.
