@@ -197,7 +197,7 @@ ART6_MAP: tuple[tuple[str, str, str], ...] = (
 
 
 def report_lines(check: Mapping[str, Any]) -> list[str]:
-    """The integrity lines every report prints from ``integrity.report_check`` output: NOT
+    """The integrity lines every report prints from ``reporting.report_check`` output: NOT
     VERIFIED first when anything failed, then the verification and the checkpoint that covers
     the report (or that none does yet)."""
     lines = [f"NOT VERIFIED: {p}" for p in check["problems"]]
