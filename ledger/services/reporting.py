@@ -623,7 +623,22 @@ def annual_data(
 
 
 def method_json(m: em.MethodResult) -> dict[str, Any]:
-    """One scope-1 method result as plain data."""
+    """One scope-1 method result as plain data.
+
+    The total in kg is the sum of the rounded refrigerant rows it counts (those of 0 or more),
+    so the printed rows add up to the printed total (rounding the exact total could differ from
+    that sum by a milligram)."""
+    parts = [
+        {
+            "refrigerant": p.refrigerant,
+            "category": p.category,
+            "inputs": {k: rounded(v, KG_PLACES) for k, v in p.inputs_kg},
+            "emissions_kg": rounded(p.emissions_kg, KG_PLACES),
+            "gwp": p.gwp,
+            "co2e_t": rounded(p.co2e_t, CO2E_PLACES),
+        }
+        for p in m.parts
+    ]
     return {
         "method": m.method,
         "label": m.label,
@@ -644,18 +659,8 @@ def method_json(m: em.MethodResult) -> dict[str, Any]:
             }
             for f in m.factors
         ],
-        "by_refrigerant": [
-            {
-                "refrigerant": p.refrigerant,
-                "category": p.category,
-                "inputs": {k: rounded(v, KG_PLACES) for k, v in p.inputs_kg},
-                "emissions_kg": rounded(p.emissions_kg, KG_PLACES),
-                "gwp": p.gwp,
-                "co2e_t": rounded(p.co2e_t, CO2E_PLACES),
-            }
-            for p in m.parts
-        ],
-        "emissions_kg": rounded(m.emissions_kg, KG_PLACES),
+        "by_refrigerant": parts,
+        "emissions_kg": _sum(r["emissions_kg"] for r in parts if r["emissions_kg"] >= 0),
         "co2e_t": rounded(m.co2e_t, CO2E_PLACES),
         "outside_scope1": [
             {"refrigerant": p.refrigerant, "category": p.category,
