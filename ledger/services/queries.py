@@ -9,8 +9,8 @@ from collections.abc import Sequence
 from datetime import date
 from typing import Any
 
+from ledger.domain.booking import book
 from ledger.domain.records import ObligationStatus
-from ledger.domain.state import state_of
 from ledger.reference import load_reference
 from ledger.services.rows import event_json, kg, labels_of, obligation_json
 from ledger.store import repository as repo
@@ -140,7 +140,7 @@ def label_rows(db: Database, *, site_code: str, base_url: str) -> list[dict[str,
         histories = repo.load_histories(site_code, conn=conn)
     rows = []
     for h in histories:
-        state = state_of(h.events, date.max)
+        state = book(h).state(date.max)
         if not state.in_service:
             continue
         rows.append({
@@ -165,7 +165,7 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
     histories, evidence = load_evidence(db, system_id=sys_.id)
     history = histories[0]
     site = history.site
-    state = state_of(history.events, as_of)
+    state = book(history).state(as_of)
     basis = site_basis(site)
     co2e = None
     gwp = None

@@ -19,6 +19,7 @@ from typing import Any
 
 from ledger import __version__
 from ledger.domain import emissions as em
+from ledger.domain.booking import EVENT_ORDER, Booking, book
 from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import (
     CompanyCertificate,
@@ -32,7 +33,7 @@ from ledger.domain.records import (
     Site,
     SystemHistory,
 )
-from ledger.domain.state import effective_events, finds_leak, state_of
+from ledger.domain.state import finds_leak
 from ledger.errors import InputError, LedgerError
 from ledger.exports.common import CAUTION
 from ledger.reference import BASES, Reference, load_reference
@@ -350,13 +351,14 @@ def annual_part(
     monthly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     yearly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     for h in sorted(histories, key=lambda h: (h.site.code, h.system.tag)):
-        for a in em.additions(h):
+        booking = book(h)  # folded once: additions, flows, checks and the year-end state read it
+        for a in em.additions(booking):
             if a.initial or a.on > end:
                 continue
             yearly_ng[a.refrigerant][a.on.year] += a.mass_ng
             if a.on >= start:
                 monthly_ng[a.refrigerant][a.on.month] += a.mass_ng
-        flows = em.period_flows(h, start, end)
+        flows = em.period_flows(booking, start, end)
         if not flows:
             continue
         all_flows.extend(flows)
@@ -365,10 +367,9 @@ def annual_part(
         sys_totals[h.system.id] = t
         full_ng = flows[-1].last_charge_ng
         t["full_charge_ng"] = full_ng
-        kept = effective_events(h.events)
-        done = sum(1 for e in kept if e.kind is EventKind.CHECK and start <= e.performed_on <= end)
+        done = sum(1 for e in booking.events if e.kind is EventKind.CHECK and start <= e.performed_on <= end)
         checks_done[h.system.id] = done
-        end_state = state_of(h.events, end)
+        end_state = booking.state(end)
         names = list(dict.fromkeys(f.refrigerant for f in flows))
         chronic = full_ng > 0 and t["service_added_ng"] * 100 >= CHRONIC_PERCENT * full_ng
         t["chronic"] = chronic
@@ -779,14 +780,11 @@ def _parts_of(histories: Sequence[SystemHistory], obligations: Sequence[Obligati
 # --- logbook --------------------------------------------------------------------------------
 
 
-def _purpose(e: Event, events: Sequence[Event], charged_days: set[date]) -> str:
+def _purpose(e: Event, booking: Booking, charged_days: set[date], leak_days: set[date]) -> str:
     """Why refrigerant was added, derived from the record (EU 517/2014 Art 6(b) asks for it)."""
     if e.performed_on in charged_days:
         return "installation"
-    state = state_of(events, e.performed_on)
-    same_day = any(x.performed_on == e.performed_on and (x.kind is EventKind.REPAIR or finds_leak(x))
-                   for x in events)
-    return "leak" if state.open_leaks or same_day else "servicing"
+    return "leak" if booking.state(e.performed_on).open_leaks or e.performed_on in leak_days else "servicing"
 
 
 def logbook_data(
@@ -816,8 +814,8 @@ def logbook_data(
     from ledger.rules import REGIMES
 
     site, system = history.site, history.system
-    kept = effective_events(history.events)
-    state = state_of(history.events, to_on)
+    booking = book(history)  # folded once: the header state, each row's refrigerant and purpose
+    state = booking.state(to_on)
     basis = site_basis(site)
     ref = None
     gwp = co2e = None
@@ -850,15 +848,10 @@ def logbook_data(
     ]
     voided_by = {e.voids_id: e for e in history.events if e.kind is EventKind.VOID}
     charging = (EventKind.IN_SERVICE, EventKind.RETROFIT)
-    charged_days = {e.performed_on for e in kept if e.kind in charging}
-    held: dict[int, str | None] = {}
-    current: str | None = None
-    for e in sorted(history.events, key=lambda e: (e.performed_on, e.id)):
-        if e.kind in (EventKind.IN_SERVICE, EventKind.RETROFIT) and e.id not in voided_by:
-            current = e.refrigerant or current
-        held[e.id] = current
+    charged_days = {e.performed_on for e in booking.events if e.kind in charging}
+    leak_days = {e.performed_on for e in booking.events if e.kind is EventKind.REPAIR or finds_leak(e)}
     rows = []
-    for e in sorted(history.events, key=lambda e: (e.performed_on, e.id)):
+    for e in sorted(history.events, key=EVENT_ORDER):
         if e.performed_on > to_on or (from_on is not None and e.performed_on < from_on):
             continue
         void = voided_by.get(e.id)
@@ -868,10 +861,10 @@ def logbook_data(
             "on": e.performed_on,
             "kind": e.kind.value,
             "kind_label": KIND_LABELS.get(e.kind, e.kind.value),
-            "refrigerant": held.get(e.id),
+            "refrigerant": booking.state(e.performed_on).refrigerant,
             "mass_kg": _kg(e.mass_ng),
             "charge_kg": _kg(e.charge_ng),
-            "added_for": _purpose(e, kept, charged_days)
+            "added_for": _purpose(e, booking, charged_days, leak_days)
             if e.kind is EventKind.ADD and not void else None,
             "cylinder": e.cylinder_id,
             "cylinder_kind": cyl.kind.value if cyl else None,
@@ -915,7 +908,7 @@ def logbook_data(
         leak_rates = [
             {**r, **{k: rounded(r[k], PERCENT_PLACES) for k in
                      ("annualizing_percent", "rolling_percent", "percent")}}
-            for r in leak_rates_json(history, to_on) if from_on is None or r["on"] >= from_on
+            for r in leak_rates_json(booking, to_on) if from_on is None or r["on"] >= from_on
         ]
     period_from = from_on or (min((e.performed_on for e in history.events), default=to_on))
     return {
@@ -1110,6 +1103,6 @@ def _logbooks(
                      findings=found[f"{h.site.code}/{h.system.tag}"])
         for h in histories
     ]
-    for h, book in zip(histories, books, strict=True):
-        book["integrity"] = checks[h.system.id]
+    for h, page in zip(histories, books, strict=True):
+        page["integrity"] = checks[h.system.id]
     return books
