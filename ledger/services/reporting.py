@@ -192,9 +192,10 @@ def _event_days(histories: Iterable[SystemHistory]) -> dict[int, date]:
 def _obligation_row(
     ob: Obligation, labels: Mapping[int, tuple[str, str]], event_days: Mapping[int, date]
 ) -> dict[str, Any]:
-    site_code, tag = (ob.site_code, None)
-    if ob.system_id is not None:
-        site_code, tag = labels.get(ob.system_id, (ob.site_code, None))
+    """`rows.obligation_json` with the report's state (met, met late, missed, open) and the day
+    it was met."""
+    from ledger.services.rows import obligation_json
+
     met_on = event_days.get(ob.met_by) if ob.met_by is not None else None
     late = bool(met_on is not None and met_on > ob.due_on)
     if ob.status is ObligationStatus.MET:
@@ -203,22 +204,14 @@ def _obligation_row(
         state = "missed"
     else:
         state = "open"
-    return {
-        "site": site_code,
-        "system": tag,
-        "kind": ob.kind.value,
-        "due_on": ob.due_on,
-        "earliest_on": ob.earliest_on,
-        "status": ob.status.value,
-        "state": state,
-        "regime": ob.regime,
-        "basis": str(ob.basis),
-        "detail": ob.detail,
-        "caused_by": ob.caused_by,
-        "met_by": ob.met_by,
-        "met_on": met_on,
-        "late": late,
-    }
+    row: dict[str, Any] = {}
+    for key, value in obligation_json(ob, labels).items():
+        row[key] = value
+        if key == "status":
+            row["state"] = state
+    row["met_on"] = met_on
+    row["late"] = late
+    return row
 
 
 # --- annual summary -------------------------------------------------------------------------

@@ -6,7 +6,7 @@ none of them needs another to shape a row.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from decimal import Decimal
 from typing import Any
 
@@ -56,7 +56,7 @@ def event_json(e: Event, voided_by: dict[int, Event]) -> dict[str, Any]:
     }
 
 
-def obligation_json(ob: Obligation, labels: dict[int, tuple[str, str]]) -> dict[str, Any]:
+def obligation_json(ob: Obligation, labels: Mapping[int, tuple[str, str]]) -> dict[str, Any]:
     """One obligation as the `due --json` contract has it."""
     site_code, tag = labels.get(ob.system_id, (ob.site_code, None)) if ob.system_id else (ob.site_code, None)
     return {
