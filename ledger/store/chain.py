@@ -169,6 +169,11 @@ def _json(value: Any) -> str:
         return int.__repr__(value)
     if kind is date:
         return '"' + value.isoformat() + '"'
+    if kind is datetime:
+        aware = value.replace(tzinfo=UTC) if value.tzinfo is None else value.astimezone(UTC)
+        return '"' + aware.isoformat(timespec="microseconds") + '"'  # as _plain: ISO text needs no escape
+    if kind is bool:
+        return "1" if value else "0"  # as _plain: a flag hashes as 0 or 1
     return json.dumps(_plain(value), sort_keys=True, separators=(",", ":"), ensure_ascii=False)
 
 
