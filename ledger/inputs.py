@@ -57,3 +57,70 @@ def parse_code(text: str, *, field: str) -> str:
     if not value or "/" in value or len(value) > 100:
         raise InputError(field, text, "must be 1-100 characters without '/'")
     return value
+
+
+# --- import sheets ---------------------------------------------------------------------
+# The columns of each record type an import (CSV or workbook sheet) may carry; the import
+# (services/importing.py), the backup and the blank template (exports/template.py) share them.
+
+ORDER = ("sites", "technicians", "cylinders", "systems", "events")
+
+COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
+    # record type: (required columns, optional columns)
+    "sites": (
+        frozenset({"code", "name", "country"}),
+        frozenset({"subdivision", "timezone", "regimes", "leak_rate_method", "unit"}),
+    ),
+    "technicians": (
+        frozenset({"name", "scheme", "certificate"}),
+        frozenset({"company", "category", "valid_from", "valid_to", "scope", "issuer"}),
+    ),
+    "cylinders": (frozenset({"id", "refrigerant", "kind"}), frozenset({"tare"})),
+    "systems": (
+        frozenset({"site", "tag", "refrigerant", "charge", "application", "in_service"}),
+        frozenset(
+            {
+                "form",
+                "description",
+                "hermetic",
+                "residential",
+                "detection_system",
+                "location",
+                "maker",
+                "model",
+                "serial",
+                "defrost_every_hours",
+                "tech",
+                "by",
+                "recorded_at",
+            }
+        ),
+    ),
+    "events": (
+        frozenset({"site", "tag", "kind", "on"}),
+        frozenset(
+            {
+                "mass",
+                "cylinder",
+                "before",
+                "after",
+                "refrigerant",
+                "charge",
+                "result",
+                "where",
+                "method",
+                "destination",
+                "reclaimed",
+                "tech",
+                "by",
+                "note",
+                "recorded_at",
+                "attachments",
+                "voids",
+                "reason",
+                "facility",
+                "facility_certificate",
+            }
+        ),
+    ),
+}

@@ -215,20 +215,6 @@ class Review:
         """Episodes above the given 1-based level."""
         return tuple(e for e in self.episodes if e.level == level)
 
-    def episodes_frame(self) -> pd.DataFrame:
-        """The episodes as a DataFrame (one row each, columns as the ``Episode`` fields)."""
-        cols = [
-            "level",
-            "level_ppm",
-            "start",
-            "end",
-            "duration_hours",
-            "peak_ppm",
-            "peak_at",
-            "ppm_hours",
-        ]
-        return pd.DataFrame([[getattr(e, c) for c in cols] for e in self.episodes], columns=cols)
-
     def to_json(self) -> dict[str, Any]:
         """The review as JSON-ready plain data with ISO 8601 timestamps."""
         return {

@@ -39,6 +39,7 @@ from datetime import date, timedelta
 from decimal import Context, Decimal, localcontext
 from types import MappingProxyType
 
+from ledger.domain.booking import Booking, book
 from ledger.domain.records import (
     Application,
     Confidence,
@@ -47,7 +48,6 @@ from ledger.domain.records import (
     System,
     SystemHistory,
 )
-from ledger.domain.state import effective_events
 
 NG_PER_KG = Decimal(10**12)
 UNKNOWN_REFRIGERANT = "unknown"  # label for mass moved while no refrigerant is recorded
@@ -247,34 +247,39 @@ class _FlowBuilder:
         )
 
 
-def additions(history: SystemHistory) -> tuple[Addition, ...]:
+def additions(history: SystemHistory | Booking) -> tuple[Addition, ...]:
     """Every (effective) addition with the refrigerant the system held that day.
 
+    The refrigerant and whether an addition is an initial fill come from the booking's state
+    at the end of the day (the fold the rules read): an addition on an in-service or retrofit
+    day is that day's initial fill into the refrigerant the system holds from that day, in
+    whichever order the day's events were recorded.
+
     Args:
-        history: one system's history (voids applied here).
+        history: one system's history (booked here) or its Booking.
     Returns:
         Additions in date order; ``initial`` marks those on an in-service or retrofit day.
     """
-    refrigerant: str | None = None
-    charged_on: date | None = None
+    booking = history if isinstance(history, Booking) else book(history)
     found: list[Addition] = []
-    for e in effective_events(history.events):
-        if e.kind in (EventKind.IN_SERVICE, EventKind.RETROFIT):
-            refrigerant = e.refrigerant or refrigerant
-            charged_on = e.performed_on
-        elif e.kind is EventKind.ADD:
+    for e in booking.events:
+        if e.kind is EventKind.ADD:
+            state = booking.state(e.performed_on)
             found.append(
-                Addition(e.id, e.performed_on, refrigerant or UNKNOWN_REFRIGERANT, e.mass_ng or 0,
-                         e.performed_on == charged_on)
+                Addition(e.id, e.performed_on, state.refrigerant or UNKNOWN_REFRIGERANT, e.mass_ng or 0,
+                         e.performed_on in (state.refrigerant_since, state.in_service_on))
             )
     return tuple(found)
 
 
-def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, ...]:
-    """Fold one system's events into its refrigerant flows between two days (both included).
+def period_flows(history: SystemHistory | Booking, start: date, end: date) -> tuple[Flow, ...]:
+    """One system's refrigerant flows between two days (both included), from its booking.
+
+    The state on entering the period and each addition's refrigerant and initial-fill mark
+    are the booking's (the fold the rules read), as in `additions`.
 
     Args:
-        history: the system and all its events (voids applied here).
+        history: the system and all its events (booked here), or its Booking.
         start: first day of the period.
         end: last day of the period.
     Returns:
@@ -286,31 +291,16 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
     if end < start:
         raise ValueError(f"period ends ({end}) before it starts ({start})")
     days = (end - start).days + 1
-    events = effective_events(history.events)
-    in_service = False
-    refrigerant: str | None = None
-    charge = 0
-    charged_on: date | None = None
-    for e in events:
-        if e.performed_on >= start:
-            break
-        match e.kind:
-            case EventKind.IN_SERVICE:
-                in_service, refrigerant, charge = True, e.refrigerant, e.charge_ng or 0
-            case EventKind.RETROFIT:
-                refrigerant, charge = e.refrigerant or refrigerant, e.charge_ng or charge
-            case EventKind.CHARGE_REVISED:
-                charge = e.charge_ng or charge
-            case EventKind.RETIRE:
-                in_service = False
-            case _:
-                pass
+    booking = history if isinstance(history, Booking) else book(history)
+    events = booking.events
+    before = booking.state(start - timedelta(days=1)) if start > date.min else booking.state(start)
+    in_service, refrigerant, charge = before.in_service, before.refrigerant, before.full_charge_ng
     flows: dict[str, _FlowBuilder] = {}
 
     def flow(name: str | None) -> _FlowBuilder:
         key = name or UNKNOWN_REFRIGERANT
         if key not in flows:
-            flows[key] = _FlowBuilder(history.system.id, key, days)
+            flows[key] = _FlowBuilder(booking.system.id, key, days)
         return flows[key]
 
     since = start  # first day of the current stretch at constant charge and refrigerant
@@ -345,7 +335,7 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
         match e.kind:
             case EventKind.IN_SERVICE:
                 close(on)
-                in_service, refrigerant, charged_on = True, e.refrigerant, on
+                in_service, refrigerant = True, e.refrigerant
                 charge = e.charge_ng or 0
                 f = flow(refrigerant)
                 f.new_charge_ng += charge
@@ -357,7 +347,7 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
                 old = flow(refrigerant)
                 old.retired_charge_ng += charge
                 old.retired_recovered_ng += recovered_since_add.pop(old.refrigerant, 0)
-                refrigerant, charged_on = e.refrigerant or refrigerant, on
+                refrigerant = e.refrigerant  # as the booking's fold has it
                 charge = e.charge_ng or charge
                 new = flow(refrigerant)
                 new.new_charge_ng += charge
@@ -371,10 +361,11 @@ def period_flows(history: SystemHistory, start: date, end: date) -> tuple[Flow, 
                 charge = revised
                 flow(refrigerant).last_charge_ng = charge
             case EventKind.ADD:
-                f = flow(refrigerant)
+                day = booking.state(on)
+                f = flow(day.refrigerant)
                 f.added_ng += e.mass_ng or 0
                 recovered_since_add.pop(f.refrigerant, None)
-                if on == charged_on:
+                if on in (day.refrigerant_since, day.in_service_on):
                     f.initial_fill_ng += e.mass_ng or 0
                     pending = pending_pn.get(f.refrigerant)
                     weighed = e.cylinder_before_ng is not None and e.cylinder_after_ng is not None

@@ -35,6 +35,7 @@ from fractions import Fraction
 from types import MappingProxyType
 from typing import Any
 
+from ledger.domain.booking import Booking, book
 from ledger.domain.records import (
     Application,
     EventId,
@@ -42,7 +43,6 @@ from ledger.domain.records import (
     FollowUpResult,
     SystemHistory,
 )
-from ledger.domain.state import effective_events
 
 NG_PER_LB = Decimal(453_592_370_000)  # exact: the international avoirdupois pound (1959)
 NG_PER_KG = Decimal(10**12)
@@ -176,11 +176,11 @@ def exceeds(percent: Decimal | Fraction, threshold: Decimal | int) -> bool:
     return Fraction(percent) > Fraction(threshold)
 
 
-def leak_rates(history: SystemHistory, method: str) -> tuple[LeakRate, ...]:
+def leak_rates(history: SystemHistory | Booking, method: str) -> tuple[LeakRate, ...]:
     """The leak rate at every addition of refrigerant to one system, both methods.
 
     Args:
-        history: the system, its site and its events (voids applied here).
+        history: the system, its site and its events (booked here), or its Booking.
         method: ``annualizing`` or ``rolling``; decides ``percent`` and ``exceeded``.
     Returns:
         One row per ADD event, in date order.
@@ -196,7 +196,7 @@ def leak_rates(history: SystemHistory, method: str) -> tuple[LeakRate, ...]:
     passed_on: date | None = None  # last successful follow-up verification test
     counted: list[tuple[date, int]] = []
     rows: list[LeakRate] = []
-    for e in effective_events(history.events):
+    for e in (history if isinstance(history, Booking) else book(history)).events:
         match e.kind:
             case EventKind.IN_SERVICE:
                 in_service, charged_on, charge_ng = True, e.performed_on, e.charge_ng or 0
@@ -266,7 +266,7 @@ def _row(
     )
 
 
-def leak_rates_json(history: SystemHistory, as_of: date) -> list[dict[str, Any]]:
+def leak_rates_json(history: SystemHistory | Booking, as_of: date) -> list[dict[str, Any]]:
     """Leak-rate rows up to ``as_of`` as plain data for views (the site's own method).
 
     Args:

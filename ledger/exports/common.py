@@ -37,7 +37,6 @@ PERCENT = "percent"  # a percentage as a number (23.5 means 23.5 %), one decimal
 INT = "int"  # a count
 NUMBER = "number"  # any other number (GWP), shown as stored
 BOOL = "bool"  # yes / blank
-KINDS = (TEXT, DATE, DATETIME, KG, TONNES, PERCENT, INT, NUMBER, BOOL)
 
 # Own neutral palette: ink, muted greys and one blue-grey accent; overdue rows get a pale warm
 # sand tint plus a bold marker in the status cell, so the mark survives black-and-white print.
@@ -183,7 +182,7 @@ def __getattr__(name: str) -> Any:
 
 
 def report_lines(check: Mapping[str, Any]) -> list[str]:
-    """The integrity lines every report prints from ``integrity.report_check`` output: NOT
+    """The integrity lines every report prints from ``reporting.report_check`` output: NOT
     VERIFIED first when anything failed, then the verification and the checkpoint that covers
     the report (or that none does yet)."""
     lines = [f"NOT VERIFIED: {p}" for p in check["problems"]]

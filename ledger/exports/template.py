@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ledger.inputs import COLUMNS, ORDER
+
 # One example row per sheet; together they form a valid import (tests import the template).
 EXAMPLES: dict[str, dict[str, str]] = {
     "sites": {
@@ -56,8 +58,6 @@ EXAMPLES: dict[str, dict[str, str]] = {
 
 def columns(kind: str) -> list[str]:
     """The template's columns for a sheet: required first, then optional, each sorted."""
-    from ledger.services.importing import COLUMNS
-
     required, optional = COLUMNS[kind]
     return sorted(required) + sorted(optional)
 
@@ -66,8 +66,6 @@ def write_template(path: Path) -> None:
     """Write the import template workbook."""
     from openpyxl import Workbook
     from openpyxl.styles import Font
-
-    from ledger.services.importing import COLUMNS, ORDER
 
     book = Workbook()
     book.remove(book.active)

@@ -95,35 +95,6 @@ def put_text(ws: Worksheet, row: int, col: int, text: Any) -> Any:
     return cell
 
 
-def put_value(ws: Worksheet, row: int, col: int, value: Any, kind: str) -> Any:
-    """Write one value by its column kind (numbers as numbers, days as dates)."""
-    if kind in _NUMERIC:
-        if is_blank(value):
-            return ws.cell(row=row, column=col)
-        if isinstance(value, str):
-            return put_text(ws, row, col, value)
-        cell = ws.cell(row=row, column=col, value=to_number(value))
-        cell.number_format = NUMBER_FORMATS[kind]
-        return cell
-    if kind == DATE:
-        cell = ws.cell(row=row, column=col)
-        if isinstance(value, datetime):
-            value = value.date()
-        if isinstance(value, date):
-            cell.value = value
-            cell.number_format = NUMBER_FORMATS[DATE]
-        return cell
-    if kind == DATETIME:
-        cell = ws.cell(row=row, column=col)
-        if isinstance(value, datetime):
-            cell.value = value.replace(tzinfo=None)  # stored in UTC; the header says so
-            cell.number_format = NUMBER_FORMATS[DATETIME]
-        return cell
-    if kind == BOOL:
-        return put_text(ws, row, col, "yes" if value else "")
-    return put_text(ws, row, col, value)
-
-
 # --- streaming tables ---------------------------------------------------------------------------
 #
 # Tables are written row by row with ``ws.append`` (the annual summary and the logbook use

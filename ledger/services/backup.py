@@ -220,7 +220,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
     from openpyxl import Workbook
 
     from ledger.domain.records import EventKind
-    from ledger.services.importing import COLUMNS, ORDER
+    from ledger.inputs import COLUMNS, ORDER
     from ledger.store import repository as repo
 
     with db.read() as conn:

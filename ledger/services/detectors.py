@@ -14,9 +14,9 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo
 
+from ledger.domain.booking import book
 from ledger.domain.detector_policy import StoredEpisode
 from ledger.domain.records import EventKind, SystemHistory
-from ledger.domain.state import effective_events, state_of
 from ledger.errors import Conflict, InputError, NotFound
 from ledger.store import repository as repo
 from ledger.store.db import Database
@@ -215,9 +215,10 @@ def review(
         if others
         else {}
     )
+    booking = book(history)
     repairs = [
         e.performed_on
-        for e in effective_events(history.events)
+        for e in booking.events
         if e.kind is EventKind.REPAIR and (end is None or e.performed_on <= end)
     ]
     night_start, night_end = channel.night_start, channel.night_end
@@ -232,7 +233,7 @@ def review(
         readings, config, defrost_every_hours=history.system.defrost_every_hours, repairs=repairs, other_channels=other
     )
     reference = load_reference()
-    state = state_of(history.events, end or date.max)
+    state = booking.state(end or date.max)
     refrigerant = state.refrigerant or ""
     molar = float(reference.molar_mass_g_mol(refrigerant)) if refrigerant else float("nan")
     first = pd.Timestamp(readings["time"].iloc[0]).to_pydatetime()

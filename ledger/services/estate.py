@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from ledger.domain.state import state_of
+from ledger.domain.booking import book
 from ledger.reference import load_reference
 from ledger.services.recording import site_today
 from ledger.store import repository as repo
@@ -22,7 +22,7 @@ def systems_overview(db: Database, *, site_code: str | None = None) -> list[dict
         histories = repo.load_histories(site_code, conn=conn)
     rows = []
     for h in histories:
-        state = state_of(h.events, site_today(h.site.timezone))
+        state = book(h).state(site_today(h.site.timezone))
         basis = site_basis(h.site)
         co2e = None
         if state.refrigerant:

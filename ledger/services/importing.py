@@ -35,73 +35,12 @@ from ledger.domain.records import (
 )
 from ledger.domain.state import state_of
 from ledger.errors import InputError, LedgerError
+from ledger.inputs import COLUMNS, ORDER
 from ledger.reference import load_reference
 from ledger.store import chain
 from ledger.store import repository as repo
 from ledger.store.db import Database
 from ledger.units import parse_mass_ng
-
-ORDER = ("sites", "technicians", "cylinders", "systems", "events")
-
-COLUMNS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
-    # record type: (required columns, optional columns)
-    "sites": (
-        frozenset({"code", "name", "country"}),
-        frozenset({"subdivision", "timezone", "regimes", "leak_rate_method", "unit"}),
-    ),
-    "technicians": (
-        frozenset({"name", "scheme", "certificate"}),
-        frozenset({"company", "category", "valid_from", "valid_to", "scope", "issuer"}),
-    ),
-    "cylinders": (frozenset({"id", "refrigerant", "kind"}), frozenset({"tare"})),
-    "systems": (
-        frozenset({"site", "tag", "refrigerant", "charge", "application", "in_service"}),
-        frozenset(
-            {
-                "form",
-                "description",
-                "hermetic",
-                "residential",
-                "detection_system",
-                "location",
-                "maker",
-                "model",
-                "serial",
-                "defrost_every_hours",
-                "tech",
-                "by",
-                "recorded_at",
-            }
-        ),
-    ),
-    "events": (
-        frozenset({"site", "tag", "kind", "on"}),
-        frozenset(
-            {
-                "mass",
-                "cylinder",
-                "before",
-                "after",
-                "refrigerant",
-                "charge",
-                "result",
-                "where",
-                "method",
-                "destination",
-                "reclaimed",
-                "tech",
-                "by",
-                "note",
-                "recorded_at",
-                "attachments",
-                "voids",
-                "reason",
-                "facility",
-                "facility_certificate",
-            }
-        ),
-    ),
-}
 
 # Event kinds an import may carry (placing in service comes from the systems sheet). A void
 # names the voided event by its chain hash, so it can refer to a row of the same input.

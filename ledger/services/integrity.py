@@ -384,45 +384,9 @@ def check_guards(conn: Any) -> list[str]:
 def check_kept(conn: Any) -> list[str]:
     """One sentence per site whose kept results do not match the digest kept with them (rows
     removed or altered): `due` and the summary compute such a site again."""
-    from ledger.services.obligations import kept_mismatches
-    from ledger.services.reporting import kept_annual_mismatches
+    from ledger.services.kept import kept_annual_mismatches, kept_mismatches
 
     return kept_mismatches(conn) + kept_annual_mismatches(conn)
-
-
-def report_check(db: Database, *, site_code: str | None = None, system_ids: list[int] | None = None
-                 ) -> dict[str, Any]:
-    """What a report prints about the chains it was made from, recomputed now.
-
-    Recomputes the event chains of the report's systems (the site's, or these systems'), the
-    record chain (the site's records and those of no site), the database guards, and the
-    systems' heads against the newest stored checkpoint (its signature checked against the
-    key stored with it).
-
-    Returns:
-        ``verified`` (bool), ``problems`` (one line each), ``digest`` (``heads_digest`` of the
-        systems in scope), ``systems``, ``heads``, ``records_head`` and ``checkpoint`` (None, or
-        id, made_at, key_id, merkle_root and how many of the report's systems it covers).
-    """
-    from ledger.services.checkpoints import check_signature, newest_checkpoint
-
-    newest = newest_checkpoint(db)
-    signed = check_signature(newest) if newest is not None else None
-    statement = newest.statement if newest is not None and signed is not None and signed.ok else None
-    v = verify(db, site_code=site_code, system_ids=system_ids, checkpoint=statement, kept=False)
-    problems = v.problems()
-    if newest is not None and signed is not None and not signed.ok:
-        problems.append(f"checkpoint {newest.id}: {signed.problems[0]}")
-    cover = None
-    if newest is not None and statement is not None:
-        covered = sorted(name for name in v.heads if name in statement["chains"])
-        cover = {"id": newest.id, "made_at": newest.made_at, "key_id": newest.key_id,
-                 "merkle_root": statement["merkle_root"], "covers": len(covered), "of": len(v.heads)}
-    else:
-        covered = []
-    return {"verified": not problems, "problems": problems, "digest": v.digest, "systems": v.systems,
-            "heads": v.heads, "records_head": v.records_head, "checkpoint": cover, "covered_names": covered}
-
 
 
 def verification_json(result: Verification, found: Any = None, signed: Any = None) -> dict[str, Any]:

@@ -563,7 +563,7 @@ def void_preview(db: Database, *, event_id: int, site_code: str, tag: str) -> di
     Raises:
         NotFound: unknown event; Conflict: another system's event, or one that cannot be voided.
     """
-    from ledger.services.queries import event_json
+    from ledger.services.rows import event_json
 
     with db.read() as conn:
         the_site, _ = repo.get_system(site_code, tag, conn=conn)

@@ -10,9 +10,6 @@ The dicts returned here are the JSON contract of ``refledger report ... --json``
 
 from __future__ import annotations
 
-import hashlib
-import io
-import pickle
 from collections import defaultdict
 from collections.abc import Iterable, Mapping, Sequence, Set
 from dataclasses import dataclass, field, fields
@@ -22,6 +19,7 @@ from typing import Any
 
 from ledger import __version__
 from ledger.domain import emissions as em
+from ledger.domain.booking import EVENT_ORDER, Booking, book
 from ledger.domain.certificates import uncertified_work
 from ledger.domain.records import (
     CompanyCertificate,
@@ -35,7 +33,7 @@ from ledger.domain.records import (
     Site,
     SystemHistory,
 )
-from ledger.domain.state import effective_events, finds_leak, state_of
+from ledger.domain.state import finds_leak
 from ledger.errors import InputError, LedgerError
 from ledger.exports.common import CAUTION
 from ledger.reference import BASES, Reference, load_reference
@@ -194,9 +192,10 @@ def _event_days(histories: Iterable[SystemHistory]) -> dict[int, date]:
 def _obligation_row(
     ob: Obligation, labels: Mapping[int, tuple[str, str]], event_days: Mapping[int, date]
 ) -> dict[str, Any]:
-    site_code, tag = (ob.site_code, None)
-    if ob.system_id is not None:
-        site_code, tag = labels.get(ob.system_id, (ob.site_code, None))
+    """`rows.obligation_json` with the report's state (met, met late, missed, open) and the day
+    it was met."""
+    from ledger.services.rows import obligation_json
+
     met_on = event_days.get(ob.met_by) if ob.met_by is not None else None
     late = bool(met_on is not None and met_on > ob.due_on)
     if ob.status is ObligationStatus.MET:
@@ -205,22 +204,14 @@ def _obligation_row(
         state = "missed"
     else:
         state = "open"
-    return {
-        "site": site_code,
-        "system": tag,
-        "kind": ob.kind.value,
-        "due_on": ob.due_on,
-        "earliest_on": ob.earliest_on,
-        "status": ob.status.value,
-        "state": state,
-        "regime": ob.regime,
-        "basis": str(ob.basis),
-        "detail": ob.detail,
-        "caused_by": ob.caused_by,
-        "met_by": ob.met_by,
-        "met_on": met_on,
-        "late": late,
-    }
+    row: dict[str, Any] = {}
+    for key, value in obligation_json(ob, labels).items():
+        row[key] = value
+        if key == "status":
+            row["state"] = state
+    row["met_on"] = met_on
+    row["late"] = late
+    return row
 
 
 # --- annual summary -------------------------------------------------------------------------
@@ -353,13 +344,14 @@ def annual_part(
     monthly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     yearly_ng: dict[str, dict[int, int]] = defaultdict(lambda: defaultdict(int))
     for h in sorted(histories, key=lambda h: (h.site.code, h.system.tag)):
-        for a in em.additions(h):
+        booking = book(h)  # folded once: additions, flows, checks and the year-end state read it
+        for a in em.additions(booking):
             if a.initial or a.on > end:
                 continue
             yearly_ng[a.refrigerant][a.on.year] += a.mass_ng
             if a.on >= start:
                 monthly_ng[a.refrigerant][a.on.month] += a.mass_ng
-        flows = em.period_flows(h, start, end)
+        flows = em.period_flows(booking, start, end)
         if not flows:
             continue
         all_flows.extend(flows)
@@ -368,10 +360,9 @@ def annual_part(
         sys_totals[h.system.id] = t
         full_ng = flows[-1].last_charge_ng
         t["full_charge_ng"] = full_ng
-        kept = effective_events(h.events)
-        done = sum(1 for e in kept if e.kind is EventKind.CHECK and start <= e.performed_on <= end)
+        done = sum(1 for e in booking.events if e.kind is EventKind.CHECK and start <= e.performed_on <= end)
         checks_done[h.system.id] = done
-        end_state = state_of(h.events, end)
+        end_state = booking.state(end)
         names = list(dict.fromkeys(f.refrigerant for f in flows))
         chronic = full_ng > 0 and t["service_added_ng"] * 100 >= CHRONIC_PERCENT * full_ng
         t["chronic"] = chronic
@@ -626,7 +617,22 @@ def annual_data(
 
 
 def method_json(m: em.MethodResult) -> dict[str, Any]:
-    """One scope-1 method result as plain data."""
+    """One scope-1 method result as plain data.
+
+    The total in kg is the sum of the rounded refrigerant rows it counts (those of 0 or more),
+    so the printed rows add up to the printed total (rounding the exact total could differ from
+    that sum by a milligram)."""
+    parts = [
+        {
+            "refrigerant": p.refrigerant,
+            "category": p.category,
+            "inputs": {k: rounded(v, KG_PLACES) for k, v in p.inputs_kg},
+            "emissions_kg": rounded(p.emissions_kg, KG_PLACES),
+            "gwp": p.gwp,
+            "co2e_t": rounded(p.co2e_t, CO2E_PLACES),
+        }
+        for p in m.parts
+    ]
     return {
         "method": m.method,
         "label": m.label,
@@ -647,18 +653,8 @@ def method_json(m: em.MethodResult) -> dict[str, Any]:
             }
             for f in m.factors
         ],
-        "by_refrigerant": [
-            {
-                "refrigerant": p.refrigerant,
-                "category": p.category,
-                "inputs": {k: rounded(v, KG_PLACES) for k, v in p.inputs_kg},
-                "emissions_kg": rounded(p.emissions_kg, KG_PLACES),
-                "gwp": p.gwp,
-                "co2e_t": rounded(p.co2e_t, CO2E_PLACES),
-            }
-            for p in m.parts
-        ],
-        "emissions_kg": rounded(m.emissions_kg, KG_PLACES),
+        "by_refrigerant": parts,
+        "emissions_kg": _sum(r["emissions_kg"] for r in parts if r["emissions_kg"] >= 0),
         "co2e_t": rounded(m.co2e_t, CO2E_PLACES),
         "outside_scope1": [
             {"refrigerant": p.refrigerant, "category": p.category,
@@ -715,53 +711,18 @@ def annual_summary(
 
 def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: str | None,
                     as_of: date | None, recompute: bool) -> dict[str, Any]:
-    from ledger.services.obligations import rules_key, site_inputs
+    from ledger.services.kept import annual_parts
 
     reference = load_reference()
     as_of = as_of or min(date(year, 12, 31), today_utc())
-    key = rules_key()
-    with db.read() as conn:
-        if site_code is not None:
-            repo.get_site(site_code, conn=conn)  # NotFound, with the usual message
-        # revisions are read before the histories (PostgreSQL: a record committed in between
-        # leaves the kept part stale, never wrong)
-        heads = {sid: h for sid, h in repo.site_revisions(site_code, conn=conn).items() if h[2]}
-        sites = {s.id: s for s in repo.list_sites(conn=conn) if s.id in heads}
-        chosen = check_basis(basis) if basis else default_basis_of_sites(list(sites.values()))
-        kept = repo.load_kept_annual(year, chosen, None if site_code is None else list(heads), conn=conn)
-        parts: list[AnnualPart] = []
-        stale: list[int] = []
-        inputs = site_inputs(conn, list(heads))
-        for sid, (_, revision, _) in heads.items():
-            row = kept.get(sid)
-            part = None
-            if (not recompute and row is not None and row.as_of == as_of and row.rules_key == key
-                    and row.revision == revision and row.inputs == inputs[sid] and row.content == _annual_content(row)):
-                part = _unpack(row.body)
-            if part is None:
-                stale.append(sid)
-            else:
-                parts.append(part)
-        histories = repo.load_histories(conn=conn, site_ids=stale) if stale else []
-        from ledger.services.detectors import stored_episodes  # only for sites built anew
-
-        zones = {h.system.id: h.site.timezone for h in histories}
-        everything = site_code is None and len(stale) == len(heads)
-        episodes = stored_episodes(conn, None if everything else list(zones), zones) if zones else {}
-        codes = {sites[sid].code for sid in stale}
-        filings = [f for f in repo.load_filings(site_code, conn=conn) if f.site_code in codes]
-    if histories:
-        from ledger.services.obligations import Evidence, compute
-
-        obligations, _ = compute(histories, as_of, Evidence(episodes, filings))
-        fresh = _parts_of(histories, obligations, reference, year=year, basis=chosen)
-        parts.extend(fresh)
-        revisions = {code: (sid, rev, inputs[sid]) for sid, (code, rev, _) in heads.items()}
-        _keep_parts(db, fresh, revisions, year=year, basis=chosen, as_of=as_of)
+    parts, chosen = annual_parts(
+        db, year=year, as_of=as_of, site_code=site_code, recompute=recompute, part_type=AnnualPart,
+        basis=lambda sites: check_basis(basis) if basis else default_basis_of_sites(sites),
+        fresh=lambda conn, site_ids, chosen: _fresh_parts(conn, site_ids, reference, year=year, basis=chosen,
+                                                          as_of=as_of, site_code=site_code),
+    )
     summary = assemble_annual(parts, reference, year=year, basis=chosen, as_of=as_of, site_code=site_code,
                               generated_at=utc_now())
-    from ledger.services.integrity import report_check
-
     check = report_check(db, site_code=site_code)
     # every head of an estate is a long list; the digest stands for them (`verify --json` lists them)
     summary["integrity"] = {k: v for k, v in check.items() if k not in ("heads", "covered_names")}
@@ -769,80 +730,22 @@ def _annual_summary(db: Database, *, year: int, site_code: str | None, basis: st
     return summary
 
 
-# --- kept annual parts ------------------------------------------------------------------------
+def _fresh_parts(conn: Any, site_ids: list[int], reference: Reference, *, year: int, basis: str, as_of: date,
+                 site_code: str | None) -> list[AnnualPart]:
+    """The pipeline step `kept.annual_parts` wraps: these sites' parts from their records,
+    detector episodes and filings (the rules run on ``as_of``)."""
+    from ledger.services.detectors import stored_episodes
+    from ledger.services.obligations import Evidence, compute
 
-_PLAIN = frozenset({("decimal", "Decimal"), ("datetime", "date"), ("datetime", "datetime")})
-
-
-class _PlainUnpickler(pickle.Unpickler):
-    """Unpickles plain values, Decimals and dates only: a kept body never runs code."""
-
-    def find_class(self, module: str, name: str) -> Any:
-        if (module, name) not in _PLAIN:
-            raise pickle.UnpicklingError(f"kept_annual: {module}.{name} is not a plain value")
-        return super().find_class(module, name)
-
-
-_PART_FIELDS = tuple(f.name for f in fields(AnnualPart))
-
-
-def _pack(part: AnnualPart) -> bytes:
-    return pickle.dumps(tuple(getattr(part, name) for name in _PART_FIELDS), protocol=pickle.HIGHEST_PROTOCOL)
-
-
-def _unpack(body: bytes) -> AnnualPart | None:
-    """A kept part, or None when the body cannot be read (then the site is computed again)."""
-    try:
-        return AnnualPart(*_PlainUnpickler(io.BytesIO(body)).load())
-    except (pickle.UnpicklingError, ValueError, TypeError, EOFError):
-        return None
-
-
-def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[str, tuple[int, int]], *,
-                year: int, basis: str, as_of: date) -> None:
-    """Keep freshly built parts. A ledger that cannot be written to, or that another writer
-    holds just now, is left as it is (no waiting): the parts are built again next time.
-
-    Args:
-        revisions: site code -> (site id, revision and inputs digest read before the histories
-            were loaded).
-    """
-    from ledger.services.obligations import keep_if_free, rules_key
-
-    now = datetime.now(UTC)
-    rows = []
-    for part in parts:
-        if part.site_code not in revisions:
-            continue
-        sid, revision, inputs = revisions[part.site_code]
-        row = {"site_id": sid, "year": year, "basis": basis, "as_of": as_of, "rules_key": rules_key(),
-               "revision": revision, "computed_at": now, "body": _pack(part), "inputs": inputs}
-        row["content"] = _annual_content(row)
-        rows.append(row)
-    keep_if_free(db, lambda conn: repo.replace_kept_annual(conn=conn, rows=rows))
-
-
-_ANNUAL_FIELDS = ("site_id", "year", "basis", "as_of", "rules_key", "revision", "inputs")
-
-
-def _annual_content(row: Any) -> str:
-    """The digest kept with a kept annual part: its key, inputs and body."""
-    get = row.get if isinstance(row, dict) else lambda k: getattr(row, k)
-    head = "|".join(str(get(k)) for k in _ANNUAL_FIELDS)
-    return hashlib.sha256(head.encode() + b"\0" + bytes(get("body"))).hexdigest()
-
-
-def kept_annual_mismatches(conn: Any) -> list[str]:
-    """One sentence per kept annual part that no longer matches the digest kept with it."""
-    from sqlalchemy import select
-
-    from ledger.store.tables import kept_annual, site
-
-    codes = dict(conn.execute(select(site.c.id, site.c.code)).all())
-    return [f"site {codes.get(r.site_id, r.site_id)}: kept annual part {r.year}/{r.basis} was altered "
-            "(the summary builds it again)"
-            for r in conn.execute(select(kept_annual).order_by(kept_annual.c.site_id, kept_annual.c.year))
-            if r.content != _annual_content(r)]
+    histories = repo.load_histories(conn=conn, site_ids=site_ids) if site_ids else []
+    if not histories:
+        return []
+    zones = {h.system.id: h.site.timezone for h in histories}
+    episodes = stored_episodes(conn, None if site_code is None else list(zones), zones)  # the few others: unused
+    codes = {h.site.code for h in histories}
+    filings = [f for f in repo.load_filings(site_code, conn=conn) if f.site_code in codes]
+    obligations, _ = compute(histories, as_of, Evidence(episodes, filings))
+    return _parts_of(histories, obligations, reference, year=year, basis=basis)
 
 
 def _parts_of(histories: Sequence[SystemHistory], obligations: Sequence[Obligation], reference: Reference, *,
@@ -870,14 +773,11 @@ def _parts_of(histories: Sequence[SystemHistory], obligations: Sequence[Obligati
 # --- logbook --------------------------------------------------------------------------------
 
 
-def _purpose(e: Event, events: Sequence[Event], charged_days: set[date]) -> str:
+def _purpose(e: Event, booking: Booking, charged_days: set[date], leak_days: set[date]) -> str:
     """Why refrigerant was added, derived from the record (EU 517/2014 Art 6(b) asks for it)."""
     if e.performed_on in charged_days:
         return "installation"
-    state = state_of(events, e.performed_on)
-    same_day = any(x.performed_on == e.performed_on and (x.kind is EventKind.REPAIR or finds_leak(x))
-                   for x in events)
-    return "leak" if state.open_leaks or same_day else "servicing"
+    return "leak" if booking.state(e.performed_on).open_leaks or e.performed_on in leak_days else "servicing"
 
 
 def logbook_data(
@@ -907,8 +807,8 @@ def logbook_data(
     from ledger.rules import REGIMES
 
     site, system = history.site, history.system
-    kept = effective_events(history.events)
-    state = state_of(history.events, to_on)
+    booking = book(history)  # folded once: the header state, each row's refrigerant and purpose
+    state = booking.state(to_on)
     basis = site_basis(site)
     ref = None
     gwp = co2e = None
@@ -941,15 +841,10 @@ def logbook_data(
     ]
     voided_by = {e.voids_id: e for e in history.events if e.kind is EventKind.VOID}
     charging = (EventKind.IN_SERVICE, EventKind.RETROFIT)
-    charged_days = {e.performed_on for e in kept if e.kind in charging}
-    held: dict[int, str | None] = {}
-    current: str | None = None
-    for e in sorted(history.events, key=lambda e: (e.performed_on, e.id)):
-        if e.kind in (EventKind.IN_SERVICE, EventKind.RETROFIT) and e.id not in voided_by:
-            current = e.refrigerant or current
-        held[e.id] = current
+    charged_days = {e.performed_on for e in booking.events if e.kind in charging}
+    leak_days = {e.performed_on for e in booking.events if e.kind is EventKind.REPAIR or finds_leak(e)}
     rows = []
-    for e in sorted(history.events, key=lambda e: (e.performed_on, e.id)):
+    for e in sorted(history.events, key=EVENT_ORDER):
         if e.performed_on > to_on or (from_on is not None and e.performed_on < from_on):
             continue
         void = voided_by.get(e.id)
@@ -959,10 +854,10 @@ def logbook_data(
             "on": e.performed_on,
             "kind": e.kind.value,
             "kind_label": KIND_LABELS.get(e.kind, e.kind.value),
-            "refrigerant": held.get(e.id),
+            "refrigerant": booking.state(e.performed_on).refrigerant,
             "mass_kg": _kg(e.mass_ng),
             "charge_kg": _kg(e.charge_ng),
-            "added_for": _purpose(e, kept, charged_days)
+            "added_for": _purpose(e, booking, charged_days, leak_days)
             if e.kind is EventKind.ADD and not void else None,
             "cylinder": e.cylinder_id,
             "cylinder_kind": cyl.kind.value if cyl else None,
@@ -1006,7 +901,7 @@ def logbook_data(
         leak_rates = [
             {**r, **{k: rounded(r[k], PERCENT_PLACES) for k in
                      ("annualizing_percent", "rolling_percent", "percent")}}
-            for r in leak_rates_json(history, to_on) if from_on is None or r["on"] >= from_on
+            for r in leak_rates_json(booking, to_on) if from_on is None or r["on"] >= from_on
         ]
     period_from = from_on or (min((e.performed_on for e in history.events), default=to_on))
     return {
@@ -1058,6 +953,42 @@ def logbook_data(
         "version": __version__,
         "caution": CAUTION,
     }
+
+
+def report_check(db: Database, *, site_code: str | None = None, system_ids: list[int] | None = None
+                 ) -> dict[str, Any]:
+    """What a report prints about the chains it was made from, recomputed now.
+
+    Recomputes the event chains of the report's systems (the site's, or these systems'), the
+    record chain (the site's records and those of no site), the database guards, and the
+    systems' heads against the newest stored checkpoint (its signature checked against the
+    key stored with it).
+
+    Returns:
+        ``verified`` (bool), ``problems`` (one line each), ``digest`` (``heads_digest`` of the
+        systems in scope), ``systems``, ``heads``, ``records_head`` and ``checkpoint`` (None, or
+        id, made_at, key_id, merkle_root and how many of the report's systems it covers).
+    """
+    from ledger.services.checkpoints import check_signature, newest_checkpoint
+    from ledger.services.integrity import verify
+
+    newest = newest_checkpoint(db)
+    signed = check_signature(newest) if newest is not None else None
+    statement = newest.statement if newest is not None and signed is not None and signed.ok else None
+    v = verify(db, site_code=site_code, system_ids=system_ids, checkpoint=statement, kept=False)
+    problems = v.problems()
+    if newest is not None and signed is not None and not signed.ok:
+        problems.append(f"checkpoint {newest.id}: {signed.problems[0]}")
+    cover = None
+    if newest is not None and statement is not None:
+        covered = sorted(name for name in v.heads if name in statement["chains"])
+        cover = {"id": newest.id, "made_at": newest.made_at, "key_id": newest.key_id,
+                 "merkle_root": statement["merkle_root"], "covers": len(covered), "of": len(v.heads)}
+    else:
+        covered = []
+    return {"verified": not problems, "problems": problems, "digest": v.digest, "systems": v.systems,
+            "heads": v.heads, "records_head": v.records_head, "checkpoint": cover, "covered_names": covered}
+
 
 
 def _one_system(check: Mapping[str, Any], name: str, names: set[str]) -> dict[str, Any]:
@@ -1152,8 +1083,6 @@ def _logbooks(
     to_day = _period(histories[0], from_on, to_on)
     obligations, findings = compute(histories, to_day, evidence)
     now = utc_now()
-    from ledger.services.integrity import report_check
-
     site_check = report_check(db, site_code=histories[0].site.code,
                               system_ids=[histories[0].system.id] if tag is not None else None)
     names = {f"{h.site.code}/{h.system.tag}" for h in histories}
@@ -1167,6 +1096,6 @@ def _logbooks(
                      findings=found[f"{h.site.code}/{h.system.tag}"])
         for h in histories
     ]
-    for h, book in zip(histories, books, strict=True):
-        book["integrity"] = checks[h.system.id]
+    for h, page in zip(histories, books, strict=True):
+        page["integrity"] = checks[h.system.id]
     return books

@@ -121,9 +121,60 @@ def canonical(row: Mapping[str, Any]) -> bytes:
         row: as for ``hashed_body``; ``repository.natural_keys`` adds the natural keys to an
             event row.
     Returns:
-        Compact, key-sorted JSON as UTF-8 bytes.
+        Compact, key-sorted JSON as UTF-8 bytes: byte for byte ``json.dumps(hashed_body(row),
+        sort_keys=True, separators=(",", ":"), ensure_ascii=False)`` (tests/store/test_chain.py
+        holds them equal), written directly because `verify` and every report hash each event
+        of their scope.
     """
+    parts = []
+    for key, name, source, optional in _SORTED_FIELDS:
+        if source is not None:
+            text = _json(legacy_mg(row.get(source)))
+        elif name == "v":
+            text = _VERSION_TEXT
+        else:
+            value = row.get(name)
+            if value is None:
+                if optional:
+                    continue
+                text = "null"
+            else:
+                text = _json(value)
+        parts.append(key + text)
+    return ("{" + ",".join(parts) + "}").encode()
+
+
+def canonical_by_json(row: Mapping[str, Any]) -> bytes:
+    """``canonical`` through ``json.dumps`` of ``hashed_body``: the definition it is held to."""
     return json.dumps(hashed_body(row), sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
+
+
+_quote = json.encoder.encode_basestring  # a str as json.dumps(..., ensure_ascii=False) writes it
+# hashed_body's keys in sorted order: (key text, row key, row key of a mass or None, optional)
+_SORTED_FIELDS = tuple(
+    (_quote(name) + ":", name, LEGACY_MASS_KEYS.get(name), name in OPTIONAL_FIELDS)
+    for name in sorted((*CANONICAL_FIELDS, *OPTIONAL_FIELDS, "v"))
+)
+_VERSION_TEXT = str(CHAIN_VERSION)
+
+
+def _json(value: Any) -> str:
+    """One plain value (after ``_plain``) as the canonical JSON writes it."""
+    kind = type(value)
+    if value is None:
+        return "null"
+    if kind is str:
+        return _quote(value)
+    if kind is int:
+        return int.__repr__(value)
+    if kind is date:
+        return '"' + value.isoformat() + '"'
+    if kind is datetime:
+        aware = value.replace(tzinfo=UTC) if value.tzinfo is None else value.astimezone(UTC)
+        return '"' + aware.isoformat(timespec="microseconds") + '"'  # as _plain: ISO text needs no escape
+    if kind is bool:
+        return "1" if value else "0"  # as _plain: a flag hashes as 0 or 1
+    return json.dumps(_plain(value), sort_keys=True, separators=(",", ":"), ensure_ascii=False)
 
 
 def link(prev_hash: str, row: Mapping[str, Any]) -> str:

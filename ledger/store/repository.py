@@ -624,11 +624,6 @@ def load_histories(
     ]
 
 
-def count_events(*, conn: Connection) -> int:
-    """How many event rows the ledger holds."""
-    return conn.execute(select(func.count()).select_from(event)).scalar_one()
-
-
 # ---- filings ------------------------------------------------------------------------------
 
 
