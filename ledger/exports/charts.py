@@ -14,7 +14,7 @@ from ledger.exports.common import ACCENT, ACCENT_LIGHT, INK, MUTED, RULE
 DPI = 160
 
 
-def _figure(width_in: float, height_in: float):  # type: ignore[no-untyped-def]
+def _figure(width_in: float, height_in: float):
     import matplotlib
 
     matplotlib.use("Agg", force=False)
@@ -25,7 +25,7 @@ def _figure(width_in: float, height_in: float):  # type: ignore[no-untyped-def]
     return fig
 
 
-def _style(ax, title: str) -> None:  # type: ignore[no-untyped-def]
+def _style(ax, title: str) -> None:
     ax.set_title(title, loc="left", fontsize=9.5, color=INK, fontweight="bold", pad=8)
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
@@ -34,7 +34,7 @@ def _style(ax, title: str) -> None:  # type: ignore[no-untyped-def]
     ax.tick_params(colors=MUTED, labelsize=7.5, length=0)
 
 
-def _png(fig) -> bytes:  # type: ignore[no-untyped-def]
+def _png(fig) -> bytes:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=DPI, bbox_inches="tight", facecolor="white")
     return buf.getvalue()

@@ -130,7 +130,7 @@ def _styles() -> _Styles:
 
     def s(name: str, size: float, *, font: str = "regular", color=ink, lead: float | None = None,
           align=TA_LEFT, space_after: float = 0, space_before: float = 0,
-          ) -> ParagraphStyle:  # type: ignore[no-untyped-def]
+          ) -> ParagraphStyle:
         return ParagraphStyle(name, fontName=f[font], fontSize=size, leading=lead or size * 1.25,
                               textColor=color, alignment=align, spaceAfter=space_after,
                               spaceBefore=space_before)
@@ -329,7 +329,7 @@ def _build(path: Path, story: list[Flowable], *, title: str, running: str, foote
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
 
-    def decorate(canvas, doc) -> None:  # type: ignore[no-untyped-def]
+    def decorate(canvas, doc) -> None:
         canvas.saveState()
         canvas.setFont(f["regular"], 7.5)
         canvas.setFillColor(colors.HexColor(MUTED))

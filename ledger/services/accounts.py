@@ -65,7 +65,7 @@ class Session:
     csrf: str
 
 
-def _user(row) -> User:  # type: ignore[no-untyped-def]
+def _user(row) -> User:
     return User(
         id=row.id,
         name=row.name,
@@ -76,7 +76,7 @@ def _user(row) -> User:  # type: ignore[no-untyped-def]
     )
 
 
-def _hasher():  # type: ignore[no-untyped-def]
+def _hasher():
     from argon2 import PasswordHasher
 
     return PasswordHasher()  # argon2id with the library's RFC 9106 low-memory profile
@@ -130,7 +130,7 @@ def add_user(
         return _user(store.user_by_id(user_id, conn=conn))
 
 
-def _get(name: str, *, conn) -> object:  # type: ignore[no-untyped-def]
+def _get(name: str, *, conn) -> object:
     row = store.find_user(name, conn=conn)
     if row is None:
         raise NotFound(f"user: {name!r} is not a user (see `refledger user list`)")

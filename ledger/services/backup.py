@@ -67,7 +67,7 @@ def _plain(value: Any) -> Any:
     return value
 
 
-def _tables():  # type: ignore[no-untyped-def]
+def _tables():
     from ledger.store.tables import metadata
 
     return [metadata.tables[name] for name in TABLE_ORDER]
@@ -117,7 +117,7 @@ def export_ledger(db: Database, folder: Path) -> BackupResult:
     return BackupResult(folder, counts, heads)
 
 
-def _typed(table, row: dict[str, Any]) -> dict[str, Any]:  # type: ignore[no-untyped-def]
+def _typed(table, row: dict[str, Any]) -> dict[str, Any]:
     from sqlalchemy import Date, DateTime
 
     out = {}

@@ -127,7 +127,7 @@ def new_key(path: Path) -> NewKey:
     return NewKey(path, public_path, raw.hex(), key_id(raw))
 
 
-def load_private_key(path: Path):  # type: ignore[no-untyped-def]
+def load_private_key(path: Path):
     """The Ed25519 private key in a PEM file that only its owner can read."""
     from cryptography.hazmat.primitives import serialization
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey

@@ -79,7 +79,7 @@ def _channel_row(r: Any) -> Channel:
     )
 
 
-def _channels_query():  # type: ignore[no-untyped-def]
+def _channels_query():
     from sqlalchemy import select
 
     from ledger.store.tables import detector_channel, site, system

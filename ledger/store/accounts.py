@@ -14,7 +14,7 @@ if TYPE_CHECKING:
     from sqlalchemy import Connection
 
 
-def _user_query():  # type: ignore[no-untyped-def]
+def _user_query():
     return select(app_user, technician.c.name.label("technician_name")).outerjoin(
         technician, technician.c.id == app_user.c.technician_id
     )

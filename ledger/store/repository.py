@@ -383,7 +383,7 @@ def natural_keys(values: Mapping[str, Any], *, conn: Connection) -> dict[str, An
     return keys
 
 
-def events_with_keys():  # type: ignore[no-untyped-def]
+def events_with_keys():
     """SELECT of event rows with the natural keys the chain hashes, labelled as in CANONICAL_FIELDS."""
     voided = event.alias("voided")
     return (
@@ -452,7 +452,7 @@ def _raw(column: Any, name: str) -> Any:
     return type_coerce(column, NullType()).label(name)
 
 
-def _events_query():  # type: ignore[no-untyped-def]
+def _events_query():
     # Columns in ``Event`` field order (the certificate as its three parts); ``_event_records``
     # relies on this order.
     return (

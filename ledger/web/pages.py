@@ -186,7 +186,7 @@ def _file(data: Any, fmt: str, stem: str, what: str) -> Response:
         if fmt == "pdf":
             from ledger.exports.pdf import write_logbook_pdf as writer
         else:
-            from ledger.exports.xlsx import write_logbook_xlsx as writer  # type: ignore[assignment]
+            from ledger.exports.xlsx import write_logbook_xlsx as writer
     elif fmt == "pdf":
         from ledger.exports.pdf import write_annual_pdf as writer  # type: ignore[assignment]
     elif fmt == "xlsx":
