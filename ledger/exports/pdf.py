@@ -182,7 +182,8 @@ def tiles(items: Sequence[Tile], st: _Styles) -> Table:
              for t in items]
     gap = 6
     width = (WIDTH - gap * (len(items) - 1)) / len(items)
-    data, widths = [[]], []
+    data: list[list[Any]] = [[]]
+    widths: list[float] = []
     for i, c in enumerate(cells):
         if i:
             data[0].append("")
@@ -190,7 +191,7 @@ def tiles(items: Sequence[Tile], st: _Styles) -> Table:
         data[0].append(c)
         widths.append(width)
     table = Table(data, colWidths=widths)
-    style = [("VALIGN", (0, 0), (-1, -1), "TOP"),
+    style: list[tuple[Any, ...]] = [("VALIGN", (0, 0), (-1, -1), "TOP"),
              ("TOPPADDING", (0, 0), (-1, -1), 8), ("BOTTOMPADDING", (0, 0), (-1, -1), 10),
              ("LEFTPADDING", (0, 0), (-1, -1), 10)]
     for i, t in enumerate(items):

@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import delete, func, insert, select, update
 
+from ledger.store.results import inserted_id
 from ledger.store.tables import app_user, login_failure, technician, web_session
 
 if TYPE_CHECKING:
@@ -22,7 +23,7 @@ def _user_query():
 
 def insert_user(*, conn: Connection, values: Mapping[str, Any]) -> int:
     """Insert a user row; returns its id."""
-    return conn.execute(insert(app_user).values(**values)).inserted_primary_key[0]
+    return inserted_id(conn, insert(app_user).values(**values))
 
 
 def find_user(name: str, *, conn: Connection) -> Any | None:
