@@ -278,7 +278,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
                 "tech": e.technician or "", "by": e.recorded_by or "", "note": e.note,
                 "recorded_at": e.recorded_at.isoformat() if e.recorded_at else "",
                 "attachments": " ".join(e.attachments),
-                "voids": hashes.get(e.voids_id, "") if e.voids_id else "", "reason": e.reason or "",
+                "voids": (hashes.get(e.voids_id) or "") if e.voids_id else "", "reason": e.reason or "",
                 "facility": e.facility or "", "facility_certificate": e.facility_certificate or "",
             })
     book = Workbook()

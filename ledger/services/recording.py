@@ -400,6 +400,7 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
         if reasons:
             raise NeedsConfirmation(reasons)
     tech_id, cert_id, _ = _technician_for(draft.technician, facts, conn=conn)
+    reclaimed = draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED)
     values = {
         "system_id": sys_.id,
         "kind": draft.kind.value,
@@ -419,12 +420,12 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
         "recorded_by": draft.recorded_by,
         "note": draft.note,
         "attachments": " ".join(draft.attachments),
-        "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
+        "reclaimed": reclaimed,
         "facility": draft.facility,
         "facility_certificate": draft.facility_certificate,
     }
     findings = [*findings, *servicing_warnings(reference, the_site, sys_, state, draft.kind,
-                                               draft.performed_on, values["reclaimed"])]
+                                               draft.performed_on, reclaimed)]
     event_id, head = repo.append_event(conn=conn, values=values)
     return event_id, head, findings
 

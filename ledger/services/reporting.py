@@ -14,7 +14,7 @@ import hashlib
 import io
 import pickle
 from collections import defaultdict
-from collections.abc import Iterable, Mapping, Sequence, Set
+from collections.abc import Callable, Iterable, Mapping, Sequence, Set
 from dataclasses import dataclass, field, fields
 from datetime import UTC, date, datetime
 from decimal import ROUND_HALF_UP, Context, Decimal, localcontext
@@ -400,9 +400,9 @@ def annual_part(
         grouped[f.refrigerant].append(f)
         screened[(f.refrigerant, categories[f.system_id].value)].append(f)
     by_refrigerant = {}
-    for name, flows in grouped.items():
-        by_refrigerant[name] = _totals(flows, gwp)
-        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in flows})
+    for name, group in grouped.items():
+        by_refrigerant[name] = _totals(group, gwp)
+        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in group})
 
     site = histories[0].site if histories else None
     code = site.code if site else ""
@@ -510,8 +510,9 @@ def assemble_annual(
     period_days = (end - start).days + 1
     merged_flows = []
     categories: dict[int, em.ScreeningCategory] = {}
-    for i, ((name, category), sums) in enumerate(screened.items()):
-        merged_flows.append(em.Flow(-1 - i, name, period_days, **dict(zip(_SUMMED_FLOW_FIELDS, sums, strict=True))))
+    for i, ((name, category), totals) in enumerate(screened.items()):
+        summed: dict[str, Any] = dict(zip(_SUMMED_FLOW_FIELDS, totals, strict=True))
+        merged_flows.append(em.Flow(-1 - i, name, period_days, **summed))
         categories[-1 - i] = em.ScreeningCategory(category)
     ods = frozenset(n for n in grouped if n in reference.refrigerants
                     and reference.chem_classes(n) & {"HCFC", "CFC"})
@@ -798,7 +799,7 @@ def _unpack(body: bytes) -> AnnualPart | None:
         return None
 
 
-def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[str, tuple[int, int]], *,
+def _keep_parts(db: Database, parts: Sequence[AnnualPart], revisions: Mapping[str, tuple[int, int, str]], *,
                 year: int, basis: str, as_of: date) -> None:
     """Keep freshly built parts. A ledger that cannot be written to, or that another writer
     holds just now, is left as it is (no waiting): the parts are built again next time.
@@ -827,7 +828,7 @@ _ANNUAL_FIELDS = ("site_id", "year", "basis", "as_of", "rules_key", "revision", 
 
 def _annual_content(row: Any) -> str:
     """The digest kept with a kept annual part: its key, inputs and body."""
-    get = row.get if isinstance(row, dict) else lambda k: getattr(row, k)
+    get: Callable[[str], Any] = row.get if isinstance(row, dict) else lambda k: getattr(row, k)
     head = "|".join(str(get(k)) for k in _ANNUAL_FIELDS)
     return hashlib.sha256(head.encode() + b"\0" + bytes(get("body"))).hexdigest()
 
