@@ -200,7 +200,7 @@ def annual(
 
 def _print_annual(summary: dict) -> None:
     from ledger.cli.render import table
-    from ledger.exports.common import CAUTION, KG, PERCENT, TONNES, fmt
+    from ledger.exports.common import CAUTION, KG, PERCENT, TONNES, fmt, share_text
 
     e = summary["estate"]
     typer.echo(
@@ -211,7 +211,7 @@ def _print_annual(summary: dict) -> None:
     )
     table(
         ["site", "systems", "added kg", "recovered kg", "net loss kg", "leak rate %", "t CO2e",
-         "125 %+", "overdue"],
+         f"{share_text(summary['chronic_percent'])}+", "overdue"],
         [[s["site"], s["systems"], fmt(s["added_kg"], KG), fmt(s["recovered_kg"], KG),
           fmt(s["net_loss_kg"], KG), fmt(s["leak_rate_percent"], PERCENT), fmt(s["co2e_t"], TONNES),
           s["chronic"], s["overdue"]] for s in summary["sites"]]

@@ -97,7 +97,7 @@ def site_values(
         InputError: naming the field and value that is wrong.
     """
     from ledger.inputs import parse_code
-    from ledger.rules import REGIMES, default_regimes
+    from ledger.rules import REGIMES, default_regimes, site_profile
 
     code = parse_code(code, field="CODE")
     if not name.strip():
@@ -123,7 +123,7 @@ def site_values(
     method = leak_rate_method or "annualizing"
     if method not in ("annualizing", "rolling"):
         raise InputError("--leak-rate-method", method, "is not one of annualizing, rolling")
-    unit = mass_unit or ("lb" if country == "US" else "kg")
+    unit = mass_unit or site_profile(chosen).mass_unit
     if unit not in ("kg", "lb"):
         raise InputError("--unit", unit, "is not one of kg, lb")
     return {
@@ -529,8 +529,11 @@ def work_facts(draft: EventDraft, state: SystemState, site: Site, system: System
 
 
 def _leak_rate_at(conn, site: Site, sys_: System, draft: EventDraft, event_id: int) -> dict[str, Any] | None:
-    """US sites, additions: the leak rate at the addition just appended (shown after saving)."""
-    if site.country != "US" or draft.kind is not EventKind.ADD:
+    """Additions at a site whose regimes judge leak rates (US): the leak rate at the addition
+    just appended (shown after saving)."""
+    from ledger.rules import site_profile
+
+    if not site_profile(site.regimes).leak_rates or draft.kind is not EventKind.ADD:
         return None
     from ledger.domain.leak_rate import leak_rates_json
 
