@@ -64,5 +64,5 @@ class NeedsConfirmation(LedgerError):
         self.hint = hint
         super().__init__(f"confirm: {' '.join(self.reasons)} Nothing was recorded; {hint}.")
 
-    def __reduce__(self):  # type: ignore[no-untyped-def]
+    def __reduce__(self):
         return (type(self), (self.reasons, self.hint))  # keeps the reasons across processes (pickling)

@@ -58,17 +58,14 @@ def due(
     if csv_file or xlsx_file or pdf_file:
         from ledger.exports import due as due_export
 
-        for path, option, writer in (
-            (csv_file, "--csv", due_export.write_due_csv),
-            (xlsx_file, "--xlsx", due_export.write_due_xlsx),
-            (pdf_file, "--pdf", due_export.write_due_pdf),
+        for path, option, write in (
+            (csv_file, "--csv", lambda p: due_export.write_due_csv(p, listing.rows)),
+            (xlsx_file, "--xlsx", lambda p: due_export.write_due_xlsx(p, listing.rows, day)),
+            (pdf_file, "--pdf", lambda p: due_export.write_due_pdf(p, listing.rows, day)),
         ):
             if path is not None:
                 with writing(path, option):
-                    if writer is due_export.write_due_csv:
-                        writer(path, listing.rows)
-                    else:
-                        writer(path, listing.rows, day)
+                    write(path)
                 typer.echo(f"wrote {path}", err=json_out)
     if json_out:
         print_json(listing.rows)

@@ -59,7 +59,7 @@ def import_(
     )
 
 
-def _run(files: list[Path], *, dry_run: bool, dayfirst: bool):  # type: ignore[no-untyped-def]
+def _run(files: list[Path], *, dry_run: bool, dayfirst: bool):
     from ledger.services.importing import import_files
 
     total_rows = sum(_line_count(f) for f in files if f.suffix.lower() == ".csv" and f.exists())

@@ -22,7 +22,7 @@ class RootGroup(LedgerGroup):
         super().__init__(**kwargs)
         self.commands = lazy.LazyCommands(list(COMMANDS), lambda name: _build(self, name))
 
-    def list_commands(self, ctx):  # type: ignore[no-untyped-def]
+    def list_commands(self, ctx):
         return list(self.commands)
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from datetime import date
 from typing import Annotated
 
 import typer
@@ -20,7 +21,7 @@ ValidTo = Annotated[str | None, typer.Option("--valid-to", help="YYYY-MM-DD (emp
 Issuer = Annotated[str, typer.Option("--issuer", help="Certification body.")]
 
 
-def _days(valid_from: str | None, valid_to: str | None) -> dict[str, object]:
+def _days(valid_from: str | None, valid_to: str | None) -> dict[str, date | None]:
     from ledger.inputs import parse_day
 
     return {

@@ -5,7 +5,7 @@ from __future__ import annotations
 import os
 
 
-def _walk(command, path):  # type: ignore[no-untyped-def]
+def _walk(command, path):
     yield path, command
     subcommands = getattr(command, "commands", None)
     if subcommands:

@@ -32,7 +32,7 @@ def fail(message: str) -> typer.Exit:
 class LedgerGroup(TyperGroup):
     """Typer group that turns every LedgerError raised below it into one line and exit 2."""
 
-    def invoke(self, ctx):  # type: ignore[no-untyped-def]
+    def invoke(self, ctx):
         try:
             return super().invoke(ctx)
         except LedgerError as exc:

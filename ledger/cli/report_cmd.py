@@ -115,7 +115,7 @@ def logbook(
     _finish(broken)
 
 
-def _gate(checks: list[dict], allow_broken: bool) -> bool:  # type: ignore[type-arg]
+def _gate(checks: list[dict], allow_broken: bool) -> bool:
     """Print NOT VERIFIED lines for every check that failed; refuse (exit 1) unless allowed.
 
     Returns:
@@ -135,7 +135,7 @@ def _finish(broken: bool) -> None:
         raise typer.Exit(code=EXIT_FINDINGS)
 
 
-def _echo_integrity(check: dict) -> None:  # type: ignore[type-arg]
+def _echo_integrity(check: dict) -> None:
     from ledger.exports.common import report_lines
 
     for line in report_lines(check):
@@ -198,9 +198,9 @@ def annual(
     _finish(broken)
 
 
-def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
+def _print_annual(summary: dict) -> None:
     from ledger.cli.render import table
-    from ledger.exports.common import CAUTION, KG, PERCENT, TONNES, fmt
+    from ledger.exports.common import CAUTION, KG, PERCENT, TONNES, fmt, share_text
 
     e = summary["estate"]
     typer.echo(
@@ -211,7 +211,7 @@ def _print_annual(summary: dict) -> None:  # type: ignore[type-arg]
     )
     table(
         ["site", "systems", "added kg", "recovered kg", "net loss kg", "leak rate %", "t CO2e",
-         "125 %+", "overdue"],
+         f"{share_text(summary['chronic_percent'])}+", "overdue"],
         [[s["site"], s["systems"], fmt(s["added_kg"], KG), fmt(s["recovered_kg"], KG),
           fmt(s["net_loss_kg"], KG), fmt(s["leak_rate_percent"], PERCENT), fmt(s["co2e_t"], TONNES),
           s["chronic"], s["overdue"]] for s in summary["sites"]]

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import sys
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
@@ -55,7 +55,7 @@ def list_(json_out: Annotated[bool, typer.Option("--json", help="Print JSON.")] 
     from ledger.cli.render import print_json, table
     from ledger.services.accounts import list_users
 
-    rows = [{"name": u.name, "role": u.role, "technician": u.technician, "sites": list(u.sites),
+    rows: list[dict[str, Any]] = [{"name": u.name, "role": u.role, "technician": u.technician, "sites": list(u.sites),
              "disabled": u.disabled} for u in list_users(context.open_db())]
     if json_out:
         print_json(rows)

@@ -51,7 +51,8 @@ def verify(
         signed = check_signature(found, load_public_key(public_key) if public_key else None)
     elif public_key is not None:
         raise typer.BadParameter("needs --checkpoint", param_hint="--public-key")
-    result = run_verify(db, site_code=site, checkpoint=found.statement if found is not None and signed.ok else None)
+    result = run_verify(db, site_code=site, checkpoint=found.statement
+                        if found is not None and signed is not None and signed.ok else None)
     ok = result.ok and (signed is None or signed.ok)
     if json_out:
         print_json(verification_json(result, found, signed))

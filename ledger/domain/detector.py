@@ -399,7 +399,7 @@ def _episodes(
     """
     parts: list[tuple[np.ndarray, ...]] = []
     idx = above1
-    for number, level in enumerate(levels, start=1):
+    for level_no, level in enumerate(levels, start=1):
         idx = idx[ppm[idx] > level]
         if len(idx) == 0:
             break
@@ -417,7 +417,7 @@ def _episodes(
         peak_pos = candidates[np.unique(run_id[candidates], return_index=True)[1]]
         parts.append(
             (
-                np.full(len(starts), number),
+                np.full(len(starts), level_no),
                 t[idx[starts]],
                 t[idx[ends]] + int(round(period_ns)),
                 peaks,

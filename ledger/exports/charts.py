@@ -14,7 +14,7 @@ from ledger.exports.common import ACCENT, ACCENT_LIGHT, INK, MUTED, RULE
 DPI = 160
 
 
-def _figure(width_in: float, height_in: float):  # type: ignore[no-untyped-def]
+def _figure(width_in: float, height_in: float):
     import matplotlib
 
     matplotlib.use("Agg", force=False)
@@ -25,7 +25,7 @@ def _figure(width_in: float, height_in: float):  # type: ignore[no-untyped-def]
     return fig
 
 
-def _style(ax, title: str) -> None:  # type: ignore[no-untyped-def]
+def _style(ax, title: str) -> None:
     ax.set_title(title, loc="left", fontsize=9.5, color=INK, fontweight="bold", pad=8)
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
@@ -34,7 +34,7 @@ def _style(ax, title: str) -> None:  # type: ignore[no-untyped-def]
     ax.tick_params(colors=MUTED, labelsize=7.5, length=0)
 
 
-def _png(fig) -> bytes:  # type: ignore[no-untyped-def]
+def _png(fig) -> bytes:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=DPI, bbox_inches="tight", facecolor="white")
     return buf.getvalue()
@@ -124,33 +124,37 @@ def trend_line(
     return _png(fig)
 
 
-# Leak-rate bands (percent of full charge per year) for the distribution chart.
-RATE_BANDS: tuple[tuple[str, float, float], ...] = (
-    ("0", 0.0, 0.0),
-    ("0-5", 0.0, 5.0),
-    ("5-10", 5.0, 10.0),
-    ("10-20", 10.0, 20.0),
-    ("20-30", 20.0, 30.0),
-    ("30-125", 30.0, 125.0),
-    ("125+", 125.0, float("inf")),
-)
+def rate_bands(chronic_percent: float) -> tuple[tuple[str, float, float], ...]:
+    """Leak-rate bands (percent of full charge per year) for the distribution chart: (label,
+    low, high). The last band starts at the chronic-leak share (the summary's
+    ``chronic_percent``, from the regimes: 125 gives "30-125" and "125+")."""
+    top = f"{chronic_percent:g}"
+    return (
+        ("0", 0.0, 0.0),
+        ("0-5", 0.0, 5.0),
+        ("5-10", 5.0, 10.0),
+        ("10-20", 10.0, 20.0),
+        ("20-30", 20.0, 30.0),
+        (f"30-{top}", 30.0, chronic_percent),
+        (f"{top}+", chronic_percent, float("inf")),
+    )
 
 
-def rate_band_counts(rates: Sequence[float]) -> list[int]:
-    """How many systems fall in each RATE_BANDS band.
+def rate_band_counts(rates: Sequence[float], bands: Sequence[tuple[str, float, float]]) -> list[int]:
+    """How many systems fall in each band of `rate_bands`.
 
-    0 on its own; then lower bound excluded, upper included; 125 % and more in the last band
-    (the chronic-leak test is "125 % or more").
+    0 on its own; then lower bound excluded, upper included; the chronic-leak share and more in
+    the last band (the chronic-leak test is "that share or more").
     """
-    counts = [0] * len(RATE_BANDS)
+    counts = [0] * len(bands)
     for r in rates:
-        if r >= RATE_BANDS[-1][1]:
+        if r >= bands[-1][1]:
             counts[-1] += 1
         elif r <= 0:
             counts[0] += 1
         else:
-            for i, (_, low, high) in enumerate(RATE_BANDS[1:-1], start=1):
-                if low < r <= high or (i == len(RATE_BANDS) - 2 and r > low):
+            for i, (_, low, high) in enumerate(bands[1:-1], start=1):
+                if low < r <= high or (i == len(bands) - 2 and r > low):
                     counts[i] += 1
                     break
     return counts

@@ -145,30 +145,43 @@ def short_hash(digest: str | None, n: int = 12) -> str:
     return (digest or "")[:n]
 
 
-# How the annual summary's figures are defined; printed on the notes sheet and in the PDF.
-ANNUAL_CONVENTIONS: tuple[tuple[str, str], ...] = (
-    ("added", "every addition of refrigerant in the year (kg), as recorded"),
-    ("initial charge", "additions on the day a system was placed in service or retrofitted; "
-     "part of its charge, not a loss"),
-    ("leak rate", "additions excluding initial charges / full charge x 100; the full charge is "
-     "the one held on 31 December, or on the last day in service for a system retired or "
-     "retrofitted in the year"),
-    ("CO2e of additions", "additions excluding initial charges x GWP of the refrigerant held "
-     "that day / 1000, under the basis named"),
-    ("net loss", "material balance per system: full charge on 1 January + charges of units "
-     "placed in service + additions excluding initial charges - recovered - full charge on "
-     "31 December"),
-    ("recovered", "recover events and the mass recovered at retirement, by destination"),
-    ("125 % or more added", "additions excluding initial charges of at least 125 % of the full "
-     "charge in the calendar year (the US 40 CFR 82.157(j) test, shown for every system as an "
-     "indicator; only US regimes attach a report duty to it)"),
-    ("leak checks required", "periodic leak-check and leak-inspection obligations due in the "
-     "year under the site's regimes"),
-    ("leak checks done", "leak-check events recorded in the year"),
-    ("missed / overdue", "obligations due in the year and not met on the evaluation day"),
-    ("chain digest", "SHA-256 over '<system id>:<chain head>' lines of every system in scope; "
-     "recompute it from the ledger to tie this report to the records"),
-)
+def share_text(percent: Decimal) -> str:
+    """A share of full charge as reports print it: ``Decimal(125)`` -> ``"125 %"``."""
+    return f"{percent:f} %"
+
+
+def annual_conventions(chronic_percent: Decimal) -> tuple[tuple[str, str], ...]:
+    """How the annual summary's figures are defined; printed on the notes sheet and in the PDF.
+
+    Args:
+        chronic_percent: the share behind the "or more added" indicator (the summary's
+            ``chronic_percent``, from the regimes).
+    """
+    chronic = share_text(chronic_percent)
+    return (
+        ("added", "every addition of refrigerant in the year (kg), as recorded"),
+        ("initial charge", "additions on the day a system was placed in service or retrofitted; "
+         "part of its charge, not a loss"),
+        ("leak rate", "additions excluding initial charges / full charge x 100; the full charge is "
+         "the one held on 31 December, or on the last day in service for a system retired or "
+         "retrofitted in the year"),
+        ("CO2e of additions", "additions excluding initial charges x GWP of the refrigerant held "
+         "that day / 1000, under the basis named"),
+        ("net loss", "material balance per system: full charge on 1 January + charges of units "
+         "placed in service + additions excluding initial charges - recovered - full charge on "
+         "31 December"),
+        ("recovered", "recover events and the mass recovered at retirement, by destination"),
+        (f"{chronic} or more added", f"additions excluding initial charges of at least {chronic} of the full "
+         "charge in the calendar year (the US 40 CFR 82.157(j) test, shown for every system as an "
+         "indicator; only US regimes attach a report duty to it)"),
+        ("leak checks required", "periodic leak-check and leak-inspection obligations due in the "
+         "year under the site's regimes"),
+        ("leak checks done", "leak-check events recorded in the year"),
+        ("missed / overdue", "obligations due in the year and not met on the evaluation day"),
+        ("chain digest", "SHA-256 over '<system id>:<chain head>' lines of every system in scope; "
+         "recompute it from the ledger to tie this report to the records"),
+    )
+
 
 def __getattr__(name: str) -> Any:
     # ART6_MAP moved to the regime that declares it (`ledger.rules.eu.RECORD_ITEMS`, asked for

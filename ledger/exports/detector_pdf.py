@@ -189,7 +189,8 @@ def _trace_png(
         )
     for r in repairs:
         x_r = np.datetime64(r.isoformat())
-        ax.axvline(x_r, color=MUTED, linewidth=0.8, linestyle=":")
+        # matplotlib takes a datetime64 through its units machinery; its stubs say float only
+        ax.axvline(x_r, color=MUTED, linewidth=0.8, linestyle=":")  # type: ignore[arg-type]
         ax.annotate(
             f"repair {r.isoformat()}",
             xy=(x_r, 1.0),
@@ -289,6 +290,7 @@ def render_review_pdf(
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.styles import ParagraphStyle
     from reportlab.lib.units import mm
+    from reportlab.pdfgen.canvas import Canvas
     from reportlab.platypus import (
         Image,
         KeepTogether,
@@ -420,7 +422,7 @@ def render_review_pdf(
         story.append(Paragraph(esc(text), small))
         story.append(Spacer(1, 1.5 * mm))
 
-    def footer(canvas: object, doc: object) -> None:
+    def footer(canvas: Canvas, doc: SimpleDocTemplate) -> None:
         canvas.saveState()
         canvas.setFont("Helvetica", 6.5)
         canvas.setFillColor(colors.HexColor(MUTED))

@@ -79,7 +79,7 @@ def write_due_pdf(
     overdue = [r for r in data if r["overdue"]]
     soon = [r for r in data if not r["overdue"] and (r["due_on"] - as_of).days <= 30]
     oldest = min((r["due_on"] for r in overdue), default=None)
-    if overdue:
+    if oldest is not None:  # some row is overdue
         lead = f"{len(overdue)} overdue, the oldest due {oldest.isoformat()}"
     elif data:
         lead = f"Nothing overdue; next due {min(r['due_on'] for r in data).isoformat()}"

@@ -26,6 +26,7 @@ from ledger.exports.common import (
     TONNES,
     Column,
     gwp_text,
+    share_text,
 )
 
 
@@ -108,6 +109,7 @@ def annual_sheets(summary: Mapping[str, Any]) -> list[Sheet]:
     scope 1 detail, obligations, months and years."""
     dest = _destinations(summary)
     masses = _mass_columns(dest)
+    chronic = share_text(summary["chronic_percent"])  # "125 %": the regimes' indicator share
     systems_cols = (
         Column("site", "site", TEXT),
         Column("system", "system", TEXT),
@@ -116,7 +118,7 @@ def annual_sheets(summary: Mapping[str, Any]) -> list[Sheet]:
         Column("refrigerants", "refrigerant", TEXT),
         Column("gwp", f"GWP ({summary['basis']})", NUMBER),
         *masses,
-        Column("chronic", "125 % or more added", BOOL),
+        Column("chronic", f"{chronic} or more added", BOOL),
         *_check_columns(),
         Column("placed_in_service_on", "placed in service", DATE),
         Column("retired_on", "retired", DATE),
@@ -128,7 +130,7 @@ def annual_sheets(summary: Mapping[str, Any]) -> list[Sheet]:
         Column("regimes", "regimes", TEXT),
         Column("systems", "systems", INT, "sum"),
         *masses,
-        Column("chronic", "systems with 125 % or more added", INT, "sum"),
+        Column("chronic", f"systems with {chronic} or more added", INT, "sum"),
         *_check_columns(),
     )
     refrigerant_cols = (
@@ -153,7 +155,7 @@ def annual_sheets(summary: Mapping[str, Any]) -> list[Sheet]:
         {"figure": "net loss, material balance", "value": estate["net_loss_kg"], "unit": "kg"},
         {"figure": "leak rate", "value": estate["leak_rate_percent"], "unit": "% of full charge"},
         {"figure": f"CO2e of additions ({summary['basis']})", "value": estate["co2e_t"], "unit": "t"},
-        {"figure": "systems with 125 % or more added", "value": estate["chronic"], "unit": ""},
+        {"figure": f"systems with {chronic} or more added", "value": estate["chronic"], "unit": ""},
         {"figure": "leak checks required", "value": estate["checks_required"], "unit": ""},
         {"figure": "leak checks done", "value": estate["checks_done"], "unit": ""},
         {"figure": "leak checks missed", "value": estate["checks_missed"], "unit": ""},

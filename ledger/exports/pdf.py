@@ -42,8 +42,6 @@ from reportlab.platypus import (
 from ledger.exports import charts
 from ledger.exports.common import (
     ACCENT,
-    ANNUAL_CONVENTIONS,
-    ART6_MAP,
     CAUTION,
     DATE,
     DATETIME,
@@ -59,11 +57,13 @@ from ledger.exports.common import (
     RULE,
     TONNES,
     VOIDED_INK,
+    annual_conventions,
     fmt,
     gwp_text,
     in_unit,
     recorded_text,
     report_lines,
+    share_text,
     short_hash,
 )
 from ledger.exports.frames import void_text
@@ -130,7 +130,7 @@ def _styles() -> _Styles:
 
     def s(name: str, size: float, *, font: str = "regular", color=ink, lead: float | None = None,
           align=TA_LEFT, space_after: float = 0, space_before: float = 0,
-          ) -> ParagraphStyle:  # type: ignore[no-untyped-def]
+          ) -> ParagraphStyle:
         return ParagraphStyle(name, fontName=f[font], fontSize=size, leading=lead or size * 1.25,
                               textColor=color, alignment=align, spaceAfter=space_after,
                               spaceBefore=space_before)
@@ -182,7 +182,8 @@ def tiles(items: Sequence[Tile], st: _Styles) -> Table:
              for t in items]
     gap = 6
     width = (WIDTH - gap * (len(items) - 1)) / len(items)
-    data, widths = [[]], []
+    data: list[list[Any]] = [[]]
+    widths: list[float] = []
     for i, c in enumerate(cells):
         if i:
             data[0].append("")
@@ -190,7 +191,7 @@ def tiles(items: Sequence[Tile], st: _Styles) -> Table:
         data[0].append(c)
         widths.append(width)
     table = Table(data, colWidths=widths)
-    style = [("VALIGN", (0, 0), (-1, -1), "TOP"),
+    style: list[tuple[Any, ...]] = [("VALIGN", (0, 0), (-1, -1), "TOP"),
              ("TOPPADDING", (0, 0), (-1, -1), 8), ("BOTTOMPADDING", (0, 0), (-1, -1), 10),
              ("LEFTPADDING", (0, 0), (-1, -1), 10)]
     for i, t in enumerate(items):
@@ -329,7 +330,7 @@ def _build(path: Path, story: list[Flowable], *, title: str, running: str, foote
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
 
-    def decorate(canvas, doc) -> None:  # type: ignore[no-untyped-def]
+    def decorate(canvas, doc) -> None:
         canvas.saveState()
         canvas.setFont(f["regular"], 7.5)
         canvas.setFillColor(colors.HexColor(MUTED))
@@ -376,6 +377,7 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
     """
     st = _styles()
     year, basis, estate = summary["year"], summary["basis"], summary["estate"]
+    chronic = share_text(summary["chronic_percent"])  # "125 %": the regimes' indicator share
     scope = f"site {summary['site_filter']}" if summary.get("site_filter") else "whole estate"
     story: list[Flowable] = []
 
@@ -393,7 +395,7 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
         Tile(f"{fmt(estate['co2e_t'], TONNES, 1)} t", f"CO2e of additions ({basis})",
              "additions excluding initial charges x GWP"),
         Tile(str(estate["chronic"]), "chronic leakers",
-             "systems with 125 % or more of full charge added", alert=estate["chronic"] > 0),
+             f"systems with {chronic} or more of full charge added", alert=estate["chronic"] > 0),
         Tile(str(estate["overdue"]), "obligations overdue",
              f"of {due_total} due in {year}; {estate['checks_missed']} leak checks missed",
              alert=estate["overdue"] > 0),
@@ -425,7 +427,7 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
         story.append(table(
             [Col("site", weight=0.8), Col("system", weight=1.0), Col("refrigerant", weight=1.0),
              Col("added (kg)", KG, 0.9), Col("leak rate (%)", PERCENT, 0.9),
-             Col(f"CO2e (t, {basis})", TONNES, 0.9), Col("125 % or more", weight=0.9),
+             Col(f"CO2e (t, {basis})", TONNES, 0.9), Col(f"{chronic} or more", weight=0.9),
              Col("description", weight=3)],
             [[s["site"], s["system"], s["refrigerant"], s["added_kg"], s["leak_rate_percent"],
               s["co2e_t"], "YES" if s["chronic"] else "", s["description"]] for s in top],
@@ -458,8 +460,9 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
                                   highlight=busiest, places=0)
     rates = [float(s["leak_rate_percent"]) for s in summary["systems"]
              if s["leak_rate_percent"] is not None]
-    counts = charts.rate_band_counts(rates)
-    dist = charts.column_bars([b[0] for b in charts.RATE_BANDS], counts,
+    bands = charts.rate_bands(float(summary["chronic_percent"]))
+    counts = charts.rate_band_counts(rates, bands)
+    dist = charts.column_bars([b[0] for b in bands], counts,
                               "Systems by annual leak rate (% of full charge)", places=0,
                               highlight=len(counts) - 1 if counts[-1] else None)
     cell_h = (PAGE[1] - 2 * MARGIN - 60) / 2 - 8
@@ -538,14 +541,14 @@ def write_annual_pdf(path: Path, summary: Mapping[str, Any]) -> Path:
     story.append(PageBreak())
     systems = sorted(summary["systems"], key=lambda s: (-(s["co2e_t"] or 0),
                                                         -(s["added_kg"] or 0), s["site"], s["system"]))
-    story.append(_p(_systems_lead(systems), st.lead))
+    story.append(_p(_systems_lead(systems, chronic), st.lead))
     story.append(_p("Largest CO2e first; the spreadsheet lists the same rows by site.", st.small))
     story.append(table(
         [Col("site", weight=0.75), Col("system", weight=1.0), Col("refrigerant", weight=0.9),
          Col("full charge (kg)", KG, 0.85), Col("added (kg)", KG, 0.8),
          Col("recovered (kg)", KG, 0.8), Col("net loss (kg)", KG, 0.8),
          Col("leak rate (%)", PERCENT, 0.7), Col(f"CO2e (t, {basis})", TONNES, 0.8),
-         Col("125 %+", weight=0.5), Col("checks req.", INT, 0.6), Col("done", INT, 0.5),
+         Col(f"{chronic}+", weight=0.5), Col("checks req.", INT, 0.6), Col("done", INT, 0.5),
          Col("missed", INT, 0.6), Col("overdue", INT, 0.65)],
         [[s["site"], s["system"], " -> ".join(s["refrigerants"]), s["full_charge_kg"],
           s["added_kg"], s["recovered_kg"], s["net_loss_kg"], s["leak_rate_percent"], s["co2e_t"],
@@ -603,13 +606,13 @@ def _sites_lead(sites: Sequence[Mapping[str, Any]]) -> str:
             f"{fmt(worst['leak_rate_percent'] or 0, PERCENT)} % of full charge")
 
 
-def _systems_lead(systems: Sequence[Mapping[str, Any]]) -> str:
+def _systems_lead(systems: Sequence[Mapping[str, Any]], chronic_share: str) -> str:
     chronic = [s for s in systems if s["chronic"]]
     worst = max(systems, key=lambda s: (s["leak_rate_percent"] or 0), default=None)
     if worst is None:
         return "No systems in service this year"
-    head = (f"{len(chronic)} of {len(systems)} systems had 125 % or more of full charge added"
-            if chronic else f"No system had 125 % or more of its full charge added ({len(systems)} systems)")
+    head = (f"{len(chronic)} of {len(systems)} systems had {chronic_share} or more of full charge added"
+            if chronic else f"No system had {chronic_share} or more of its full charge added ({len(systems)} systems)")
     return (f"{head}; highest leak rate {worst['site']}/{worst['system']} at "
             f"{fmt(worst['leak_rate_percent'] or 0, PERCENT)} %")
 
@@ -634,7 +637,7 @@ def _obligation_table(rows: Sequence[Mapping[str, Any]], st: _Styles, *,
 
 def _annual_notes(summary: Mapping[str, Any], st: _Styles) -> list[Flowable]:
     out: list[Flowable] = [_p("How the figures are made", st.lead)]
-    for k, v in ANNUAL_CONVENTIONS:
+    for k, v in annual_conventions(summary["chronic_percent"]):
         out.append(_markup(f"<b>{escape(k)}</b>: {escape(v)}", st.body))
     for m in summary["scope1"]:
         out.append(_markup(f"<b>Scope 1, {escape(m['label'].lower())}</b>: {escape(m['formula'])}. "
@@ -814,10 +817,11 @@ def write_logbook_pdf(path: Path, book: Mapping[str, Any]) -> Path:
             st, marked=[r["exceeded"] for r in book["leak_rates"]],
         ))
 
-    story.append(CondPageBreak(200))
-    story.append(_p("Where this logbook shows each record item of EU 517/2014 Art 6", st.lead))
-    story.append(table([Col("item", weight=0.4), Col("record item", weight=3), Col("shown in", weight=5)],
-                       [list(r) for r in ART6_MAP], st))
+    if book["record_items"]:  # the record items the site's regimes ask for (none: no table)
+        story.append(CondPageBreak(200))
+        story.append(_p(f"Where this logbook shows each record item of {book['record_title']}", st.lead))
+        story.append(table([Col("item", weight=0.4), Col("record item", weight=3), Col("shown in", weight=5)],
+                           [list(r) for r in book["record_items"]], st))
     story.append(Spacer(1, 8))
     story.append(_p(f"Chain head: {book['chain_head'] or '(no events)'} - the hash of the system's last "
                     f"recorded event ({book['events_total']} events). `refledger verify` recomputes "

@@ -27,8 +27,6 @@ from openpyxl.worksheet._write_only import WriteOnlyWorksheet
 from openpyxl.worksheet.worksheet import Worksheet
 
 from ledger.exports.common import (
-    ANNUAL_CONVENTIONS,
-    ART6_MAP,
     BOOL,
     CAUTION,
     DATE,
@@ -40,6 +38,7 @@ from ledger.exports.common import (
     PERCENT,
     TONNES,
     Column,
+    annual_conventions,
     fmt,
     is_blank,
     needs_guard,
@@ -465,7 +464,7 @@ def annual_notes(summary: Mapping[str, Any]) -> list[tuple[str, str]]:
         ("generated", fmt(summary["generated_at"], DATETIME)),
         ("tool version", f"refledger {summary['version']}"),
     ]
-    items += [(f"convention: {k}", v) for k, v in ANNUAL_CONVENTIONS]
+    items += [(f"convention: {k}", v) for k, v in annual_conventions(summary["chronic_percent"])]
     for m in summary["scope1"]:
         items.append((f"scope 1: {m['label']}", f"{m['formula']}. Source: {m['source']}. "
                       "Assumptions: " + "; ".join(m["assumptions"]) + "."))
@@ -509,7 +508,7 @@ def write_annual_xlsx(path: Path, summary: Mapping[str, Any]) -> Path:
 
 
 def logbook_notes(book: Mapping[str, Any]) -> list[tuple[str, str]]:
-    """The notes of a logbook: chain head, period, Art 6 mapping, caution."""
+    """The notes of a logbook: chain head, period, record-item mapping, caution."""
     items = [
         ("report", f"System logbook {book['site']['code']}/{book['system']['tag']}"),
         ("period", f"{fmt(book['period']['from'], DATE)} to {fmt(book['period']['to'], DATE)}"),
@@ -524,7 +523,8 @@ def logbook_notes(book: Mapping[str, Any]) -> list[tuple[str, str]]:
         ("generated", fmt(book["generated_at"], DATETIME)),
         ("tool version", f"refledger {book['version']}"),
     ]
-    items += [(f"EU 517/2014 Art 6{item}", f"{need} -> {where}") for item, need, where in ART6_MAP]
+    # the record items the site's regimes ask for, and where this logbook shows each
+    items += [(f"{book['record_title']}{item}", f"{need} -> {where}") for item, need, where in book["record_items"]]
     items.append(("caution", CAUTION))
     return items
 

@@ -19,11 +19,15 @@ import secrets
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import UTC, datetime, timedelta
+from typing import TYPE_CHECKING, Any
 
 from ledger.errors import Conflict, InputError, LedgerError, NotFound
 from ledger.store import accounts as store
 from ledger.store import repository as repo
 from ledger.store.db import Database
+
+if TYPE_CHECKING:
+    from sqlalchemy import Connection
 
 ROLES = ("technician", "officer", "auditor", "admin")
 # Roles that may append events (the visit form and its API).
@@ -65,7 +69,7 @@ class Session:
     csrf: str
 
 
-def _user(row) -> User:  # type: ignore[no-untyped-def]
+def _user(row) -> User:
     return User(
         id=row.id,
         name=row.name,
@@ -76,7 +80,7 @@ def _user(row) -> User:  # type: ignore[no-untyped-def]
     )
 
 
-def _hasher():  # type: ignore[no-untyped-def]
+def _hasher():
     from argon2 import PasswordHasher
 
     return PasswordHasher()  # argon2id with the library's RFC 9106 low-memory profile
@@ -130,7 +134,8 @@ def add_user(
         return _user(store.user_by_id(user_id, conn=conn))
 
 
-def _get(name: str, *, conn) -> object:  # type: ignore[no-untyped-def]
+def _get(name: str, *, conn: Connection) -> Any:
+    """The user row named ``name`` (a Row: its columns as attributes); NotFound if none."""
     row = store.find_user(name, conn=conn)
     if row is None:
         raise NotFound(f"user: {name!r} is not a user (see `refledger user list`)")
@@ -142,18 +147,18 @@ def set_password(db: Database, *, name: str, password: str) -> None:
     hashed = hash_password(password)
     with db.write() as conn:
         row = _get(name, conn=conn)
-        store.update_user(row.id, conn=conn, values={"password_hash": hashed})  # type: ignore[attr-defined]
-        store.delete_sessions_of(row.id, conn=conn)  # type: ignore[attr-defined]
+        store.update_user(row.id, conn=conn, values={"password_hash": hashed})
+        store.delete_sessions_of(row.id, conn=conn)
 
 
 def set_disabled(db: Database, *, name: str, disabled: bool) -> User:
     """Disable (or enable again) a user; a disabled user's sessions end at once."""
     with db.write() as conn:
         row = _get(name, conn=conn)
-        store.update_user(row.id, conn=conn, values={"disabled": disabled})  # type: ignore[attr-defined]
+        store.update_user(row.id, conn=conn, values={"disabled": disabled})
         if disabled:
-            store.delete_sessions_of(row.id, conn=conn)  # type: ignore[attr-defined]
-        return _user(store.user_by_id(row.id, conn=conn))  # type: ignore[attr-defined]
+            store.delete_sessions_of(row.id, conn=conn)
+        return _user(store.user_by_id(row.id, conn=conn))
 
 
 def list_users(db: Database) -> list[User]:
@@ -191,7 +196,7 @@ def login(db: Database, *, name: str, password: str, now: datetime | None = None
             _verify(_DUMMY_HASH(), password)  # spend the same time whether or not the name exists
         if not ok:
             store.add_failure(name, now, conn=conn)
-    if not ok:
+    if not ok or row is None:  # ok only for a row that exists
         raise LoginRefused("login: wrong name or password")
     token = secrets.token_urlsafe(32)
     csrf = secrets.token_urlsafe(32)

@@ -67,7 +67,7 @@ def _plain(value: Any) -> Any:
     return value
 
 
-def _tables():  # type: ignore[no-untyped-def]
+def _tables():
     from ledger.store.tables import metadata
 
     return [metadata.tables[name] for name in TABLE_ORDER]
@@ -117,7 +117,7 @@ def export_ledger(db: Database, folder: Path) -> BackupResult:
     return BackupResult(folder, counts, heads)
 
 
-def _typed(table, row: dict[str, Any]) -> dict[str, Any]:  # type: ignore[no-untyped-def]
+def _typed(table, row: dict[str, Any]) -> dict[str, Any]:
     from sqlalchemy import Date, DateTime
 
     out = {}
@@ -278,7 +278,7 @@ def export_workbook(db: Database, path: Path) -> dict[str, int]:
                 "tech": e.technician or "", "by": e.recorded_by or "", "note": e.note,
                 "recorded_at": e.recorded_at.isoformat() if e.recorded_at else "",
                 "attachments": " ".join(e.attachments),
-                "voids": hashes.get(e.voids_id, "") if e.voids_id else "", "reason": e.reason or "",
+                "voids": (hashes.get(e.voids_id) or "") if e.voids_id else "", "reason": e.reason or "",
                 "facility": e.facility or "", "facility_certificate": e.facility_certificate or "",
             })
     book = Workbook()

@@ -127,7 +127,7 @@ def new_key(path: Path) -> NewKey:
     return NewKey(path, public_path, raw.hex(), key_id(raw))
 
 
-def load_private_key(path: Path):  # type: ignore[no-untyped-def]
+def load_private_key(path: Path):
     """The Ed25519 private key in a PEM file that only its owner can read."""
     from cryptography.hazmat.primitives import serialization
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
@@ -214,6 +214,7 @@ def make_checkpoint(db: Database, *, key_path: Path, out: Path | None = None) ->
     from sqlalchemy import insert
 
     from ledger.services.integrity import verify
+    from ledger.store.results import inserted_id
     from ledger.store.tables import checkpoint
 
     key = load_private_key(key_path)
@@ -236,9 +237,9 @@ def make_checkpoint(db: Database, *, key_path: Path, out: Path | None = None) ->
     body = canonical(statement)
     signature = key.sign(body).hex()
     with db.write() as conn:
-        new_id = conn.execute(insert(checkpoint).values(
+        new_id = inserted_id(conn, insert(checkpoint).values(
             made_at=made_at, statement=body.decode(), signature=signature, key_id=statement["key_id"],
-            public_key=raw.hex())).inserted_primary_key[0]
+            public_key=raw.hex()))
     made = Checkpoint(new_id, statement, body, signature, raw.hex())
     if out is not None:
         out.write_text(json.dumps(made.document(), indent=2, sort_keys=True, ensure_ascii=False) + "\n",

@@ -116,7 +116,7 @@ def add_demo_users(db: Database, *, password: str | None = None) -> list[tuple[s
     return made
 
 
-def load_detectors(db: Database, location: Location, folder: Path) -> list:  # type: ignore[type-arg]
+def load_detectors(db: Database, location: Location, folder: Path) -> list:
     """Map the demo's detector channels, import their readings and review each channel."""
     import csv
 
@@ -143,7 +143,7 @@ def load_detectors(db: Database, location: Location, folder: Path) -> list:  # t
     ]
 
 
-def write_review_pdf(result, out: Path) -> Path:  # type: ignore[no-untyped-def]
+def write_review_pdf(result, out: Path) -> Path:
     """The demo's detector review PDF for the first channel."""
     from ledger.exports.detector_pdf import write_channel_review
 

@@ -79,7 +79,7 @@ def _channel_row(r: Any) -> Channel:
     )
 
 
-def _channels_query():  # type: ignore[no-untyped-def]
+def _channels_query():
     from sqlalchemy import select
 
     from ledger.store.tables import detector_channel, site, system
@@ -105,6 +105,7 @@ def add_channel(
     from sqlalchemy import insert
 
     from ledger.store.records import seal
+    from ledger.store.results import inserted_id
     from ledger.store.tables import detector_channel
 
     levels_ppm = parse_levels(levels)
@@ -115,7 +116,8 @@ def add_channel(
         the_site, sys_ = repo.get_system(system_site, system_tag, conn=conn)
         if any(c.code == code for c in _list(conn, site_code)):
             raise Conflict(f"detector: {site_code}/{code!r} already exists")
-        channel = conn.execute(
+        channel_id = inserted_id(
+            conn,
             insert(detector_channel).values(
                 site_id=the_site.id,
                 code=code,
@@ -126,7 +128,7 @@ def add_channel(
                 created_at=repo.now_utc(),
             )
         )
-        seal("detector_channel", [channel.inserted_primary_key[0]], conn=conn)
+        seal("detector_channel", [channel_id], conn=conn)
         return next(c for c in _list(conn, site_code) if c.code == code)
 
 

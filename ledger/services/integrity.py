@@ -317,19 +317,20 @@ def _check_records(conn: Any, result: Verification, site_code: str | None,
         for row in conn.execute(select(table).order_by(table.c.id)).mappings():
             fields = json.loads(json.dumps(records.fields_of(table, row, keys)))
             key = records.natural_key(name, fields, row["id"])
-            v = newest.pop((name, row["id"]), None)
-            if v is None:
+            version = newest.pop((name, row["id"]), None)
+            if version is None:
                 breaks.append(RecordBreak(name, key, row["id"], "unrecorded",
                                           "the row is in no version of the record chain: written outside the ledger",
                                           records.site_of(name, fields)))
                 continue
-            chained = _body(v).get("fields", {})
+            chained = _body(version).get("fields", {})
             if chained != fields:
                 changes = [f"{k} {chained.get(k)!r} -> {fields.get(k)!r}"
                            for k in sorted(set(chained) | set(fields)) if chained.get(k) != fields.get(k)]
                 breaks.append(RecordBreak(name, key, row["id"], "changed",
                                           f"{'; '.join(changes)} (live row against its newest chained version "
-                                          f"{v['id']}): changed outside the ledger", records.site_of(name, fields)))
+                                          f"{version['id']}): changed outside the ledger",
+                                          records.site_of(name, fields)))
     for (name, row_id), v in sorted(newest.items()):
         body = _body(v)
         breaks.append(RecordBreak(name, body.get("key", "?"), row_id, "removed",

@@ -155,7 +155,7 @@ def label_rows(db: Database, *, site_code: str, base_url: str) -> list[dict[str,
 def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[str, Any]:
     """Everything about one system on a day: facts, state, tiers, obligations, leak rates."""
     from ledger.domain.leak_rate import leak_rates_json
-    from ledger.rules import REGIMES
+    from ledger.rules import REGIMES, site_profile
     from ledger.services.obligations import compute, current_only, load_evidence
     from ledger.services.reporting import charge_co2e_t, site_basis
 
@@ -214,7 +214,7 @@ def system_view(db: Database, *, site_code: str, tag: str, as_of: date) -> dict[
         "obligations": [obligation_json(o, labels) for o in current],
         "obligations_history": [obligation_json(o, labels) for o in obligations],
         "findings": [{"source": f.source, "message": f.message, "severity": f.severity.value} for f in findings],
-        "leak_rates": leak_rates_json(history, as_of) if site.country == "US" else [],
+        "leak_rates": leak_rates_json(history, as_of) if site_profile(site.regimes).leak_rates else [],
         "events": [event_json(e, voided_by) for e in sorted(history.events, key=lambda e: e.id)],
     }
 

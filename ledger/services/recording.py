@@ -69,7 +69,7 @@ def _raise_first_error(findings: Sequence[Finding]) -> None:
             raise Rejected(f.message)
 
 
-def _enum(enum_type, value: str, fld: str):  # type: ignore[no-untyped-def]
+def _enum(enum_type, value: str, fld: str):
     try:
         return enum_type(value)
     except ValueError:
@@ -97,7 +97,7 @@ def site_values(
         InputError: naming the field and value that is wrong.
     """
     from ledger.inputs import parse_code
-    from ledger.rules import REGIMES, default_regimes
+    from ledger.rules import REGIMES, default_regimes, site_profile
 
     code = parse_code(code, field="CODE")
     if not name.strip():
@@ -123,7 +123,7 @@ def site_values(
     method = leak_rate_method or "annualizing"
     if method not in ("annualizing", "rolling"):
         raise InputError("--leak-rate-method", method, "is not one of annualizing, rolling")
-    unit = mass_unit or ("lb" if country == "US" else "kg")
+    unit = mass_unit or site_profile(chosen).mass_unit
     if unit not in ("kg", "lb"):
         raise InputError("--unit", unit, "is not one of kg, lb")
     return {
@@ -339,7 +339,7 @@ def attachment_digest(path: Path) -> str:
         raise InputError("--attach", str(path), f"cannot be read ({exc.strerror})") from None
 
 
-def _technician_for(name: str | None, facts: WorkFacts, *, conn) -> tuple[int | None, int | None, list[Finding]]:  # type: ignore[no-untyped-def]
+def _technician_for(name: str | None, facts: WorkFacts, *, conn) -> tuple[int | None, int | None, list[Finding]]:
     """The technician's row id, the id of the certificate that covers the work, and warnings."""
     from ledger.domain.certificates import certificate_findings, certificate_for
 
@@ -360,7 +360,7 @@ def _prepared(draft: EventDraft, reference: Any) -> EventDraft:
     return draft
 
 
-def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, reference: Any, *,  # type: ignore[no-untyped-def]
+def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, reference: Any, *,
                     confirm: bool, charge_share: Decimal = DEFAULT_CHARGE_SHARE) -> tuple[int, str, list[Finding]]:
     """Check one prepared draft against the system's state inside the caller's transaction and
     append it: the one step every event-recording use case goes through.
@@ -400,6 +400,7 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
         if reasons:
             raise NeedsConfirmation(reasons)
     tech_id, cert_id, _ = _technician_for(draft.technician, facts, conn=conn)
+    reclaimed = draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED)
     values = {
         "system_id": sys_.id,
         "kind": draft.kind.value,
@@ -419,12 +420,12 @@ def _append_checked(conn, the_site: Site, sys_: System, draft: EventDraft, refer
         "recorded_by": draft.recorded_by,
         "note": draft.note,
         "attachments": " ".join(draft.attachments),
-        "reclaimed": draft.reclaimed or (cylinder is not None and cylinder.kind is CylinderKind.RECLAIMED),
+        "reclaimed": reclaimed,
         "facility": draft.facility,
         "facility_certificate": draft.facility_certificate,
     }
     findings = [*findings, *servicing_warnings(reference, the_site, sys_, state, draft.kind,
-                                               draft.performed_on, values["reclaimed"])]
+                                               draft.performed_on, reclaimed)]
     event_id, head = repo.append_event(conn=conn, values=values)
     return event_id, head, findings
 
@@ -527,9 +528,12 @@ def work_facts(draft: EventDraft, state: SystemState, site: Site, system: System
     return WorkFacts(draft.kind, draft.performed_on, site.regimes, charge or 0, system.hermetic, state.refrigerant)
 
 
-def _leak_rate_at(conn, site: Site, sys_: System, draft: EventDraft, event_id: int) -> dict[str, Any] | None:  # type: ignore[no-untyped-def]
-    """US sites, additions: the leak rate at the addition just appended (shown after saving)."""
-    if site.country != "US" or draft.kind is not EventKind.ADD:
+def _leak_rate_at(conn, site: Site, sys_: System, draft: EventDraft, event_id: int) -> dict[str, Any] | None:
+    """Additions at a site whose regimes judge leak rates (US): the leak rate at the addition
+    just appended (shown after saving)."""
+    from ledger.rules import site_profile
+
+    if not site_profile(site.regimes).leak_rates or draft.kind is not EventKind.ADD:
         return None
     from ledger.domain.leak_rate import leak_rates_json
 
@@ -542,7 +546,7 @@ def placed_on(events: Sequence[Event]) -> date | None:
     return min((e.performed_on for e in events if e.kind is EventKind.IN_SERVICE), default=None)
 
 
-def _void_target(event_id: int, site_code: str | None, tag: str | None, *, conn) -> tuple[int, str, Event]:  # type: ignore[no-untyped-def]
+def _void_target(event_id: int, site_code: str | None, tag: str | None, *, conn) -> tuple[int, str, Event]:
     """The event to void, checked: it exists, belongs to SITE/TAG (when named) and may be voided."""
     system_id, kind, ref = repo.event_system(event_id, conn=conn)
     if site_code is not None and ref != f"{site_code}/{tag}":

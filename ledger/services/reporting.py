@@ -37,6 +37,7 @@ from ledger.domain.state import finds_leak
 from ledger.errors import InputError, LedgerError
 from ledger.exports.common import CAUTION
 from ledger.reference import BASES, Reference, load_reference
+from ledger.rules import CHRONIC_INDICATOR_PERCENT, FALLBACK_BASIS, site_profile
 from ledger.store import repository as repo
 from ledger.store.db import Database
 
@@ -49,11 +50,10 @@ _SHOW = Context(prec=28)
 CO2E_PLACES = 6
 KG_PLACES = 6
 PERCENT_PLACES = 4
-# Used when the sites in a summary do not share one regime basis (or have no regime): the EU
-# F-gas convention is AR4 100-year for saturated HFCs (the basis of every regime we cover) and
-# also gives figures for olefins and natural refrigerants, which AR4 does not list.
-FALLBACK_BASIS = "eu"
-CHRONIC_PERCENT = Decimal(125)  # US 40 CFR 82.157(j): >= 125 % of full charge added in a year
+# The GWP basis of a site and the chronic-leak indicator are the regimes' (`ledger.rules`):
+# FALLBACK_BASIS is the basis of a site without a known regime, and of a summary whose sites
+# do not share one; CHRONIC_INDICATOR_PERCENT the share of full charge added in a year that
+# every system's "or more added" indicator shows.
 PERIODIC_CHECKS = frozenset({ObligationKind.LEAK_CHECK, ObligationKind.LEAK_INSPECTION})
 
 KIND_LABELS: Mapping[EventKind, str] = {
@@ -119,24 +119,18 @@ def default_basis(histories: Sequence[SystemHistory]) -> str:
 def default_basis_of_sites(sites: Sequence[Site]) -> str:
     """The GWP basis a summary of these sites uses when none is asked for.
 
-    The GWP basis of each site's first regime; when the sites disagree (an estate with EU and
-    US sites) or a site has no regime, ``eu`` (see FALLBACK_BASIS).
+    The sites' one basis (`site_basis`) when they share it; when they disagree (an estate with
+    EU and US sites), FALLBACK_BASIS.
     """
-    from ledger.rules import REGIMES
-
-    found = set()
-    for site in sites:
-        if not site.regimes or site.regimes[0] not in REGIMES:
-            return FALLBACK_BASIS
-        found.add(REGIMES[site.regimes[0]].GWP_BASIS)
+    found = {site_basis(site) for site in sites}
     return found.pop() if len(found) == 1 else FALLBACK_BASIS
 
 
 def site_basis(site: Site) -> str:
-    """The GWP basis of a site: its first regime's (``default_basis_of_sites``), else
-    FALLBACK_BASIS. Every figure shown for one site (system show, system list, logbook) uses
-    this basis."""
-    return default_basis_of_sites([site])
+    """The GWP basis of a site, as its regimes give it (``site_profile(...).gwp_basis``: the
+    first known regime's, else FALLBACK_BASIS). Every figure shown for one site (system show,
+    system list, logbook) uses this basis."""
+    return site_profile(site.regimes).gwp_basis
 
 
 def charge_co2e_t(charge_ng: int, gwp: Decimal) -> Decimal:
@@ -364,7 +358,7 @@ def annual_part(
         checks_done[h.system.id] = done
         end_state = booking.state(end)
         names = list(dict.fromkeys(f.refrigerant for f in flows))
-        chronic = full_ng > 0 and t["service_added_ng"] * 100 >= CHRONIC_PERCENT * full_ng
+        chronic = full_ng > 0 and t["service_added_ng"] * 100 >= CHRONIC_INDICATOR_PERCENT * full_ng
         t["chronic"] = chronic
         systems.append({
             "site": h.site.code,
@@ -391,9 +385,9 @@ def annual_part(
         grouped[f.refrigerant].append(f)
         screened[(f.refrigerant, categories[f.system_id].value)].append(f)
     by_refrigerant = {}
-    for name, flows in grouped.items():
-        by_refrigerant[name] = _totals(flows, gwp)
-        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in flows})
+    for name, group in grouped.items():
+        by_refrigerant[name] = _totals(group, gwp)
+        by_refrigerant[name]["system_ids"] = sorted({f.system_id for f in group})
 
     site = histories[0].site if histories else None
     code = site.code if site else ""
@@ -501,8 +495,9 @@ def assemble_annual(
     period_days = (end - start).days + 1
     merged_flows = []
     categories: dict[int, em.ScreeningCategory] = {}
-    for i, ((name, category), sums) in enumerate(screened.items()):
-        merged_flows.append(em.Flow(-1 - i, name, period_days, **dict(zip(_SUMMED_FLOW_FIELDS, sums, strict=True))))
+    for i, ((name, category), totals) in enumerate(screened.items()):
+        summed: dict[str, Any] = dict(zip(_SUMMED_FLOW_FIELDS, totals, strict=True))
+        merged_flows.append(em.Flow(-1 - i, name, period_days, **summed))
         categories[-1 - i] = em.ScreeningCategory(category)
     ods = frozenset(n for n in grouped if n in reference.refrigerants
                     and reference.chem_classes(n) & {"HCFC", "CFC"})
@@ -544,6 +539,7 @@ def assemble_annual(
         "year": year,
         "period": {"from": start, "to": end},
         "basis": basis,
+        "chronic_percent": CHRONIC_INDICATOR_PERCENT,  # the share behind every "chronic" figure
         "site_filter": site_code,
         "as_of": as_of,
         "systems": systems,
@@ -809,7 +805,8 @@ def logbook_data(
     site, system = history.site, history.system
     booking = book(history)  # folded once: the header state, each row's refrigerant and purpose
     state = booking.state(to_on)
-    basis = site_basis(site)
+    profile = site_profile(site.regimes)
+    basis = profile.gwp_basis
     ref = None
     gwp = co2e = None
     gwp_note = ""
@@ -897,7 +894,7 @@ def logbook_data(
     ]
     obs.sort(key=lambda r: (r["due_on"], r["kind"]))
     leak_rates = []
-    if site.country == "US":
+    if profile.leak_rates:
         leak_rates = [
             {**r, **{k: rounded(r[k], PERCENT_PLACES) for k in
                      ("annualizing_percent", "rolling_percent", "percent")}}
@@ -923,7 +920,7 @@ def logbook_data(
         "safety_class": ref.safety_class if ref else None,
         "full_charge_kg": em.kg(state.full_charge_ng),
         "full_charge_lb": rounded(Decimal(state.full_charge_ng) / Decimal(453_592_370_000), KG_PLACES)
-        if site.country == "US" else None,
+        if profile.leak_rates else None,
         "gwp_basis": basis,
         "gwp": gwp,
         "gwp_note": gwp_note,
@@ -949,6 +946,9 @@ def logbook_data(
         ],
         "chain_head": chain_head_of(history.events),
         "events_total": len(history.events),
+        # the record items the site's regimes ask for and where this logbook shows each (none: no map)
+        "record_title": profile.record_title,
+        "record_items": [list(item) for item in profile.record_items],
         "generated_at": generated_at,
         "version": __version__,
         "caution": CAUTION,

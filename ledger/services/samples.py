@@ -25,13 +25,15 @@ def file_stem(*parts: str) -> str:
 
 def showcase(histories: list[SystemHistory]) -> SystemHistory | None:
     """The system whose logbook shows the most: has a voided event, then most events."""
+    from ledger.rules import site_profile
+
     if not histories:
         return None
     return max(
         histories,
         key=lambda h: (
             any(e.kind is EventKind.VOID for e in h.events),
-            h.site.country == "US",  # US logbooks also show the leak-rate table
+            site_profile(h.site.regimes).leak_rates,  # such logbooks also show the leak-rate table
             len(h.events),
             h.site.code,
             h.system.tag,

@@ -8,13 +8,14 @@ from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import delete, func, insert, select, update
 
+from ledger.store.results import inserted_id
 from ledger.store.tables import app_user, login_failure, technician, web_session
 
 if TYPE_CHECKING:
     from sqlalchemy import Connection
 
 
-def _user_query():  # type: ignore[no-untyped-def]
+def _user_query():
     return select(app_user, technician.c.name.label("technician_name")).outerjoin(
         technician, technician.c.id == app_user.c.technician_id
     )
@@ -22,7 +23,7 @@ def _user_query():  # type: ignore[no-untyped-def]
 
 def insert_user(*, conn: Connection, values: Mapping[str, Any]) -> int:
     """Insert a user row; returns its id."""
-    return conn.execute(insert(app_user).values(**values)).inserted_primary_key[0]
+    return inserted_id(conn, insert(app_user).values(**values))
 
 
 def find_user(name: str, *, conn: Connection) -> Any | None:

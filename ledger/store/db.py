@@ -118,7 +118,7 @@ def make_engine(location: Location) -> Engine:
         engine = create_engine(location.url, connect_args={"timeout": SQLITE_BUSY_TIMEOUT_MS / 1000})
 
         @event.listens_for(engine, "connect")
-        def _on_connect(dbapi_conn, _record):  # type: ignore[no-untyped-def]
+        def _on_connect(dbapi_conn, _record):
             dbapi_conn.isolation_level = None  # we issue BEGIN ourselves
             cur = dbapi_conn.cursor()
             cur.execute("PRAGMA journal_mode=WAL")
@@ -128,7 +128,7 @@ def make_engine(location: Location) -> Engine:
             cur.close()
 
         @event.listens_for(engine, "begin")
-        def _on_begin(conn):  # type: ignore[no-untyped-def]
+        def _on_begin(conn):
             options = conn.get_execution_options()
             if options.get("ledger_nowait", False):
                 conn.exec_driver_sql("PRAGMA busy_timeout=0")  # restored by Database.write
@@ -252,7 +252,7 @@ def _first_line(exc: Exception) -> str:
 # ---- migrations -------------------------------------------------------------------------
 
 
-def alembic_config(location: Location):  # type: ignore[no-untyped-def]
+def alembic_config(location: Location):
     """An Alembic Config pointing at the packaged migrations and this database."""
     from alembic.config import Config
 
@@ -288,7 +288,7 @@ def status(location: Location) -> tuple[str | None, list[str]]:
     return current, pending
 
 
-def _is_applied(script, revision: str, current: str) -> bool:  # type: ignore[no-untyped-def]
+def _is_applied(script, revision: str, current: str) -> bool:
     return any(r.revision == revision for r in script.iterate_revisions(current, "base"))
 
 

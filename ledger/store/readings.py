@@ -160,8 +160,7 @@ def _parse_times(col: pa.ChunkedArray, name: str, bad: list[BadRow]) -> tuple[np
     n = len(col)
     typ = col.type
     if pa.types.is_null(typ):  # every cell empty
-        for i in range(n):
-            bad.append(BadRow(i + 1, name, "", "time is missing"))
+        bad.extend(BadRow(i + 1, name, "", "time is missing") for i in range(n))
         return np.zeros(n, dtype=np.int64), np.zeros(n, dtype=bool), False
     if pa.types.is_timestamp(typ):
         arr = col.cast(pa.timestamp("us", tz=typ.tz)) if typ.unit != "us" else col

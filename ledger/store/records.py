@@ -33,6 +33,7 @@ from typing import Any
 from sqlalchemy import Connection, Table, func, insert, select
 
 from ledger.store import chain
+from ledger.store.results import tuples
 from ledger.store.tables import (
     certificate,
     company,
@@ -95,12 +96,12 @@ def site_of(table_name: str, fields: Mapping[str, Any]) -> str | None:
     return str(value) if value is not None else None
 
 
-def fields_of(table: Table, row: Mapping[str, Any], keys: Mapping[str, Mapping[int, str]]) -> dict[str, Any]:
+def fields_of(table: Table, row: Mapping[Any, Any], keys: Mapping[str, Mapping[int, str]]) -> dict[str, Any]:
     """A row's version fields: every non-null column but ``id``, foreign keys as natural keys.
 
     Args:
         table: the table the row is from.
-        row: its column values.
+        row: its column values by column name (a `RowMapping` or a dict).
         keys: referenced table name -> {row id: natural key}.
     """
     out: dict[str, Any] = {}
@@ -155,11 +156,11 @@ def key_maps(conn: Connection, tables: Iterable[str], ids: Mapping[str, set[int]
         id_col, stmt = queries[name]
         found: dict[int, str] = {}
         if ids is None:
-            found.update((i, k) for i, k in conn.execute(stmt))
+            found.update((i, k) for i, k in tuples(conn.execute(stmt)))
         else:
             wanted = sorted(ids.get(name, set()))
             for i in range(0, len(wanted), _IN_CHUNK):
-                found.update((a, k) for a, k in conn.execute(stmt.where(id_col.in_(wanted[i : i + _IN_CHUNK]))))
+                found.update((a, k) for a, k in tuples(conn.execute(stmt.where(id_col.in_(wanted[i : i + _IN_CHUNK])))))
         out[name] = found
     return out
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import gc
 from collections import defaultdict
-from collections.abc import Iterable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from datetime import UTC, date, datetime
 from typing import Any
@@ -35,6 +35,7 @@ from ledger.domain.records import (
 from ledger.errors import Conflict, NotFound
 from ledger.store import chain
 from ledger.store.records import seal
+from ledger.store.results import inserted_id, tuples
 from ledger.store.tables import (
     certificate,
     company,
@@ -97,7 +98,7 @@ def insert_site(*, conn: Connection, values: Mapping[str, Any]) -> int:
     """Add a site; a duplicate code is a Conflict."""
     if conn.execute(select(site.c.id).where(site.c.code == values["code"])).first():
         raise Conflict(f"site: {values['code']!r} already exists")
-    site_id = conn.execute(insert(site).values(**values, created_at=now_utc())).inserted_primary_key[0]
+    site_id = inserted_id(conn, insert(site).values(**values, created_at=now_utc()))
     seal("site", [site_id], conn=conn)
     return site_id
 
@@ -144,7 +145,7 @@ def insert_system(*, conn: Connection, site_id: int, values: Mapping[str, Any]) 
     if exists:
         raise Conflict(f"system: {values['tag']!r} already exists at this site")
     stmt = insert(system).values(**values, site_id=site_id, created_at=now_utc())
-    system_id = conn.execute(stmt).inserted_primary_key[0]
+    system_id = inserted_id(conn, stmt)
     seal("system", [system_id], conn=conn)
     return system_id
 
@@ -175,7 +176,7 @@ def company_id(name: str, *, conn: Connection) -> int:
     found = conn.execute(select(company.c.id).where(company.c.name == name)).scalar()
     if found is not None:
         return found
-    cid = conn.execute(insert(company).values(name=name)).inserted_primary_key[0]
+    cid = inserted_id(conn, insert(company).values(name=name))
     seal("company", [cid], conn=conn)
     return cid
 
@@ -187,9 +188,7 @@ def insert_technician(
     if conn.execute(select(technician.c.id).where(technician.c.name == name)).first():
         raise Conflict(f"tech: {name!r} already exists")
     cid = company_id(company_name, conn=conn) if company_name else None
-    tid = conn.execute(insert(technician).values(name=name, company_id=cid, created_at=now_utc())).inserted_primary_key[
-        0
-    ]
+    tid = inserted_id(conn, insert(technician).values(name=name, company_id=cid, created_at=now_utc()))
     seal("technician", [tid], conn=conn)
     for cert in certificates:
         add_certificate(conn=conn, technician_id=tid, cert=cert)
@@ -213,7 +212,7 @@ def add_certificate(*, conn: Connection, technician_id: int, cert: Certificate) 
         scope=cert.scope or None,  # NULL when not recorded, as the rows 0007 found
         issuer=cert.issuer or None,
     )
-    cert_id = conn.execute(stmt).inserted_primary_key[0]
+    cert_id = inserted_id(conn, stmt)
     seal("certificate", [cert_id], conn=conn)
     return cert_id
 
@@ -224,9 +223,9 @@ def add_company_certificate(*, conn: Connection, cert: CompanyCertificate) -> in
         company_certificate.c.scope == cert.scope, company_certificate.c.number == cert.number))).first()
     if clash:
         raise Conflict(f"certificate: {cert.scope} {cert.number!r} is already registered")
-    cert_id = conn.execute(insert(company_certificate).values(
+    cert_id = inserted_id(conn, insert(company_certificate).values(
         company_id=company_id(cert.company, conn=conn), scope=cert.scope, number=cert.number, issuer=cert.issuer,
-        valid_from=cert.valid_from, valid_to=cert.valid_to)).inserted_primary_key[0]
+        valid_from=cert.valid_from, valid_to=cert.valid_to))
     seal("company_certificate", [cert_id], conn=conn)
     return cert_id
 
@@ -292,7 +291,7 @@ def insert_cylinder(*, conn: Connection, values: Mapping[str, Any]) -> int:
     if conn.execute(select(cylinder.c.id).where(cylinder.c.code == values["code"])).first():
         raise Conflict(f"cylinder: {values['code']!r} already exists")
     stmt = insert(cylinder).values(**values, created_at=now_utc())
-    cylinder_id = conn.execute(stmt).inserted_primary_key[0]
+    cylinder_id = inserted_id(conn, stmt)
     seal("cylinder", [cylinder_id], conn=conn)
     return cylinder_id
 
@@ -346,7 +345,7 @@ def lock_systems(system_ids: Iterable[int], *, conn: Connection) -> None:
             .order_by(system.c.id)
             .with_for_update()
         )
-        sites.update(site_id for _, site_id in rows)
+        sites.update(site_id for _, site_id in tuples(rows))
     # The insert triggers raise each site's revision: take those rows now, in site order, so
     # two bulk writers touching the same sites queue here rather than deadlock there.
     order = sorted(sites)
@@ -383,7 +382,7 @@ def natural_keys(values: Mapping[str, Any], *, conn: Connection) -> dict[str, An
     return keys
 
 
-def events_with_keys():  # type: ignore[no-untyped-def]
+def events_with_keys():
     """SELECT of event rows with the natural keys the chain hashes, labelled as in CANONICAL_FIELDS."""
     voided = event.alias("voided")
     return (
@@ -422,7 +421,7 @@ def append_event(*, conn: Connection, values: Mapping[str, Any]) -> tuple[int, s
     prev = chain_head(row["system_id"], conn=conn)
     row["prev_hash"] = prev
     row["chain_hash"] = chain.link(prev, {**row, **natural_keys(row, conn=conn)})
-    event_id = conn.execute(insert(event).values(**row)).inserted_primary_key[0]
+    event_id = inserted_id(conn, insert(event).values(**row))
     return event_id, row["chain_hash"]
 
 
@@ -452,7 +451,7 @@ def _raw(column: Any, name: str) -> Any:
     return type_coerce(column, NullType()).label(name)
 
 
-def _events_query():  # type: ignore[no-untyped-def]
+def _events_query():
     # Columns in ``Event`` field order (the certificate as its three parts); ``_event_records``
     # relies on this order.
     return (
@@ -610,7 +609,7 @@ def load_histories(
         sites = {s.id: s for s in list_sites(conn=conn)}
     else:  # only the sites of these systems (a technician's `log` must not read a 1 000-site estate)
         needed = sorted({r.site_id for r in rows})
-        found = conn.execute(select(site).where(site.c.id.in_(needed))) if needed else []
+        found: Iterable[Any] = conn.execute(select(site).where(site.c.id.in_(needed))) if needed else []
         sites = {r.id: _site_record(r) for r in found}
     ids = [r.id for r in rows]
     events = load_events(None if everything else ids, conn=conn) if ids else {}
@@ -630,7 +629,7 @@ def load_histories(
 def insert_filing(*, conn: Connection, site_id: int, values: Mapping[str, Any]) -> int:
     """Record that a report was filed (append-only)."""
     stmt = insert(filing).values(**values, site_id=site_id, recorded_at=now_utc())
-    filing_id = conn.execute(stmt).inserted_primary_key[0]
+    filing_id = inserted_id(conn, stmt)
     seal("filing", [filing_id], conn=conn)
     return filing_id
 
@@ -663,7 +662,7 @@ def site_revisions(site_code: str | None = None, *, conn: Connection) -> dict[in
     )
     if site_code is not None:
         stmt = stmt.where(site.c.code == site_code)
-    return {sid: (code, int(n), bool(any_)) for sid, code, n, any_ in conn.execute(stmt)}
+    return {sid: (code, int(n), bool(any_)) for sid, code, n, any_ in tuples(conn.execute(stmt))}
 
 
 def system_places(site_code: str | None = None, *, conn: Connection) -> dict[int, tuple[str, str, str]]:
@@ -671,7 +670,7 @@ def system_places(site_code: str | None = None, *, conn: Connection) -> dict[int
     stmt = select(system.c.id, site.c.code, system.c.tag, site.c.timezone).join(site, site.c.id == system.c.site_id)
     if site_code is not None:
         stmt = stmt.where(site.c.code == site_code)
-    return {sid: (code, tag, tz) for sid, code, tag, tz in conn.execute(stmt)}
+    return {sid: (code, tag, tz) for sid, code, tag, tz in tuples(conn.execute(stmt))}
 
 
 def load_kept_sites(site_ids: Iterable[int] | None = None, *, conn: Connection) -> dict[int, Any]:
@@ -682,7 +681,8 @@ def load_kept_sites(site_ids: Iterable[int] | None = None, *, conn: Connection) 
     return {r.site_id: r for r in conn.execute(stmt)}
 
 
-def load_kept(site_ids: Sequence[int], *, conn: Connection, everything: bool = False) -> tuple[list[Any], list[Any]]:
+def load_kept(site_ids: Sequence[int], *, conn: Connection, everything: bool = False
+              ) -> tuple[Sequence[Any], Sequence[Any]]:
     """The kept obligation rows and finding rows of some sites (or all with ``everything``),
     in the order they were kept."""
     if not site_ids and not everything:
@@ -743,7 +743,7 @@ def replace_kept(
 def system_ids_by_key(*, conn: Connection) -> dict[tuple[str, str], int]:
     """(site code, tag) -> system id of every system: one query, no records built."""
     stmt = select(site.c.code, system.c.tag, system.c.id).join(site, site.c.id == system.c.site_id)
-    return {(code, tag): sid for code, tag, sid in conn.execute(stmt)}
+    return {(code, tag): sid for code, tag, sid in tuples(conn.execute(stmt))}
 
 
 def certificate_ids(*, conn: Connection) -> dict[int, dict[str, int]]:
@@ -751,7 +751,7 @@ def certificate_ids(*, conn: Connection) -> dict[int, dict[str, int]]:
     them, for every technician in one query)."""
     found: dict[int, dict[str, int]] = defaultdict(dict)
     stmt = select(certificate.c.technician_id, certificate.c.number, certificate.c.id).order_by(certificate.c.id)
-    for tid, number, cid in conn.execute(stmt):
+    for tid, number, cid in tuples(conn.execute(stmt)):
         found[tid][number] = cid
     return dict(found)
 
@@ -770,7 +770,7 @@ def chain_heads(system_ids: Iterable[int], *, conn: Connection) -> dict[int, str
     ids = sorted(set(system_ids))
     for i in range(0, len(ids), _IN_CHUNK):
         stmt = select(system.c.id, newest).where(system.c.id.in_(ids[i : i + _IN_CHUNK]))
-        heads.update((sid, head) for sid, head in conn.execute(stmt) if head is not None)
+        heads.update((sid, head) for sid, head in tuples(conn.execute(stmt)) if head is not None)
     return heads
 
 
@@ -797,7 +797,7 @@ def load_events_of_kinds(
             .where(event.c.system_id.in_(ids[i : i + _IN_CHUNK]), event.c.kind.in_(wanted))
             .order_by(event.c.system_id, event.c.id)
         )
-        for id_, system_id, kind, on, refrigerant, charge, voids in conn.execute(stmt):
+        for id_, system_id, kind, on, refrigerant, charge, voids in tuples(conn.execute(stmt)):
             day = days.get(on)
             if day is None:
                 day = days[on] = date.fromisoformat(on) if isinstance(on, str) else on
@@ -822,7 +822,7 @@ def content_keys_present(keys: Iterable[str], *, conn: Connection) -> set[str]:
         else:
             marks = _marks(conn, len(chunk))
             rows = conn.exec_driver_sql(f"SELECT content_key FROM event WHERE content_key IN ({marks})", tuple(chunk))
-        found.update(k for (k,) in rows)
+        found.update(k for (k,) in tuples(rows))
     return found
 
 
@@ -834,7 +834,7 @@ def events_by_chain_hash(hashes: Iterable[str], *, conn: Connection) -> dict[str
         stmt = select(event.c.chain_hash, event.c.id, event.c.system_id, event.c.kind).where(
             event.c.chain_hash.in_(wanted[i : i + _IN_CHUNK])
         )
-        found.update((h, (id_, sid, _KINDS[kind])) for h, id_, sid, kind in conn.execute(stmt))
+        found.update((h, (id_, sid, _KINDS[kind])) for h, id_, sid, kind in tuples(conn.execute(stmt)))
     return found
 
 
@@ -845,7 +845,7 @@ def voiding_events(event_ids: Iterable[int], *, conn: Connection) -> list[tuple[
     found: list[tuple[int, int]] = []
     for i in range(0, len(wanted), _IN_CHUNK):
         stmt = select(event.c.system_id, event.c.voids_id).where(event.c.voids_id.in_(wanted[i : i + _IN_CHUNK]))
-        found.extend((sid, vid) for sid, vid in conn.execute(stmt))
+        found.extend((sid, vid) for sid, vid in tuples(conn.execute(stmt)))
     return found
 
 
@@ -861,7 +861,9 @@ def insert_event_rows(columns: Sequence[str], rows: Sequence[Sequence[Any]], *, 
         return
     dialect = conn.dialect
     processors = [event.c[name].type.dialect_impl(dialect).bind_processor(dialect) for name in columns]
-    convert = [(i, p, {}) for i, p in enumerate(processors) if p is not None]
+    convert: list[tuple[int, Callable[[Any], Any], dict[Any, Any]]] = [
+        (i, p, {}) for i, p in enumerate(processors) if p is not None
+    ]
     if convert:  # each distinct value once: an import's rows share a few days and one time
         converted = []
         for row in rows:
@@ -877,7 +879,11 @@ def insert_event_rows(columns: Sequence[str], rows: Sequence[Sequence[Any]], *, 
             converted.append(tuple(out))
         rows = converted
     if conn.dialect.name == "postgresql" and conn.dialect.driver == "psycopg":
+        import psycopg  # already loaded: it is this dialect's driver
+
         driver = conn.connection.driver_connection  # in the transaction this connection is in
+        if not isinstance(driver, psycopg.Connection):  # None once the pool has invalidated it
+            raise TypeError(f"no psycopg connection under this one: {driver!r}")
         with driver.cursor() as cursor, cursor.copy(f"COPY event ({', '.join(columns)}) FROM STDIN") as copy:
             for row in rows:
                 copy.write_row(row)

@@ -67,7 +67,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.mount("/static", StaticFiles(directory=str(HERE / "static")), name="static")
 
     @app.middleware("http")
-    async def guard(request: Request, call_next):  # type: ignore[no-untyped-def]
+    async def guard(request: Request, call_next):
         length = request.headers.get("content-length")
         if length is not None and (not length.isdigit() or int(length) > settings.max_body):
             return _refuse(request, 413, f"upload: larger than {settings.max_body // (1024 * 1024)} MB")

@@ -99,9 +99,8 @@ async def login(request: Request) -> Response:
     try:
         token, _ = await run_in_threadpool(accounts.login, db_of(request), name=name, password=password)
     except accounts.LoginRefused as exc:
-        response = render(request, "login.html", status_code=401, login_csrf=cookie, next=target,
-                          error=str(exc), name=name)
-        return response
+        return render(request, "login.html", status_code=401, login_csrf=cookie, next=target,
+                      error=str(exc), name=name)
     response = RedirectResponse(target, status_code=303)
     security.set_cookie(response, request, security.SESSION_COOKIE, token)
     response.delete_cookie(security.LOGIN_CSRF_COOKIE, path="/")
@@ -186,7 +185,7 @@ def _file(data: Any, fmt: str, stem: str, what: str) -> Response:
         if fmt == "pdf":
             from ledger.exports.pdf import write_logbook_pdf as writer
         else:
-            from ledger.exports.xlsx import write_logbook_xlsx as writer  # type: ignore[assignment]
+            from ledger.exports.xlsx import write_logbook_xlsx as writer
     elif fmt == "pdf":
         from ledger.exports.pdf import write_annual_pdf as writer  # type: ignore[assignment]
     elif fmt == "xlsx":

@@ -33,7 +33,7 @@ def run_migrations_online() -> None:
         _run(connectable)
 
 
-def _run(connection) -> None:  # type: ignore[no-untyped-def]
+def _run(connection) -> None:
     context.configure(
         connection=connection,
         target_metadata=metadata,

@@ -83,7 +83,7 @@ def downgrade() -> None:
 # ---- the first version of every existing record (a frozen copy of ledger/store/records.py) ----
 
 
-def _plain(value):  # type: ignore[no-untyped-def]
+def _plain(value):
     if isinstance(value, datetime):
         aware = value.replace(tzinfo=UTC) if value.tzinfo is None else value.astimezone(UTC)
         return aware.isoformat(timespec="microseconds")
@@ -94,7 +94,7 @@ def _plain(value):  # type: ignore[no-untyped-def]
     return value
 
 
-def _key(table_name, fields, row_id):  # type: ignore[no-untyped-def]
+def _key(table_name, fields, row_id):
     get = fields.get
     return {
         "site": lambda: str(get("code")),
