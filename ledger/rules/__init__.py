@@ -23,7 +23,7 @@ from ledger.domain.records import (
     Severity,
     SystemHistory,
 )
-from ledger.rules import eu, gb, us_82f, us_84c, us_ca
+from ledger.rules import eu, gb, us_82f, us_84c, us_ca, us_wa
 from ledger.rules.common import (
     OUT_OF_SCOPE,
     ReferenceLike,
@@ -40,6 +40,7 @@ REGIMES: Mapping[RegimeCode, RegimeModule] = MappingProxyType({
     "us-82f": us_82f,
     "us-84c": us_84c,
     "us-ca": us_ca,
+    "us-wa": us_wa,
 })
 
 # ISO 3166-1 alpha-2 codes of the 27 EU member states; "EL" is the EU's own code for Greece.
@@ -58,8 +59,8 @@ def default_regimes(country: str, subdivision: str | None = None) -> tuple[Regim
     Returns:
         ("eu",) for EU member states; ("gb",) for the United Kingdom, except ("eu",) for
         Northern Ireland ("GB-NIR"), where the EU F-gas Regulation applies under the Windsor
-        Framework (from memory); ("us-82f", "us-84c") for the US, plus "us-ca" in California;
-        () anywhere else.
+        Framework (from memory); ("us-82f", "us-84c") for the US, plus "us-ca" in California
+        and "us-wa" in Washington; () anywhere else.
     """
     country = country.strip().upper()
     sub = (subdivision or "").strip().upper()
@@ -70,7 +71,8 @@ def default_regimes(country: str, subdivision: str | None = None) -> tuple[Regim
     if country == "GB":
         return ("eu",) if sub == "GB-NIR" else ("gb",)
     if country == "US":
-        return ("us-82f", "us-84c", "us-ca") if sub == "US-CA" else ("us-82f", "us-84c")
+        state = {"US-CA": ("us-ca",), "US-WA": ("us-wa",)}.get(sub, ())
+        return ("us-82f", "us-84c", *state)
     return ()
 
 

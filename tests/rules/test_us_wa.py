@@ -12,10 +12,12 @@ fictitious refrigerants of GWP exactly 149 / 150. 50 lb = 22 679 618 500 000 ng 
 
 from __future__ import annotations
 
+from decimal import Decimal
+
 import pytest
 
 from ledger.domain.records import Application, Confidence, ObligationKind, ObligationStatus
-from ledger.reference import Reference, load_reference
+from ledger.reference import Reference, Refrigerant, load_reference
 from ledger.rules import default_regimes, us_wa
 from ledger.rules.common import BELOW_THRESHOLD, OUT_OF_SCOPE
 from tests.domain import D, Log, lb, site, system
@@ -31,8 +33,10 @@ FIFTY_LB = 22_679_618_500_000  # 50 lb in ng, exact
 
 _small = small_reference()
 # the test table plus a fictitious refrigerant one below the GWP 150 line
-REF_149 = Reference({**_small.components, "TEST-149": component("TEST-149", "HFC", "I", "149", "149")},
-                    {**_small.refrigerants})
+REF_149 = Reference(
+    {**_small.components, "TEST-149": component("TEST-149", "HFC", "I", "149", "149")},
+    {**_small.refrigerants,
+     "TEST-149": Refrigerant("TEST-149", (), "A1", (("TEST-149", Decimal(100)),), False, "test")})
 
 
 def _history(log, application=Application.COMMERCIAL_REFRIGERATION):
