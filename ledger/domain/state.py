@@ -11,7 +11,9 @@ from ledger.domain.records import CheckResult, Event, EventKind, FollowUpResult,
 
 # The rules call these for every system several times per run (each regime, each tier), so
 # they are kept lean: a C key function for the sort, no filtering pass when nothing is voided.
-_DATE_ORDER = attrgetter("performed_on", "id")
+# EVENT_ORDER is THE event sort key (day, then id): `ledger.domain.booking` re-exports it.
+EVENT_ORDER = attrgetter("performed_on", "id")
+_DATE_ORDER = EVENT_ORDER
 _PERFORMED_ON = attrgetter("performed_on")
 
 

@@ -171,30 +171,15 @@ ANNUAL_CONVENTIONS: tuple[tuple[str, str], ...] = (
      "recompute it from the ledger to tie this report to the records"),
 )
 
-# EU 517/2014 Art 6 record items (kept by Reg. (EU) 2024/573 Art 7) and where a logbook shows
-# each; the PDF and the spreadsheet print this table, and tests check each mapping.
-ART6_MAP: tuple[tuple[str, str, str], ...] = (
-    ("(a)", "quantity and type of fluorinated gas installed",
-     "system sheet: refrigerant, composition, full charge; events 'placed in service' and "
-     "'retrofit': refrigerant, full charge (kg)"),
-    ("(b)", "quantities added during installation, maintenance or servicing or due to leakage",
-     "events 'refrigerant added': quantity (kg), added for (installation / servicing / leak)"),
-    ("(c)", "whether recycled or reclaimed gas was used, with the facility and its certificate",
-     "events: 'recycled or reclaimed gas' column, cylinder and cylinder kind; the recycling, "
-     "reclamation or destruction facility (name, address) and its certificate number on additions "
-     "and recoveries (--facility, --facility-certificate)"),
-    ("(d)", "quantity of gas recovered",
-     "events 'refrigerant recovered' and 'taken out of service': quantity (kg), recovered gas to"),
-    ("(e)", "identity of the undertaking that installed, serviced, checked or decommissioned, "
-     "with its certificate number",
-     "events: technician, company, company certificate, certificate (scheme, number) and a "
-     "warning where none was valid for the work; system sheet: the companies' certificates"),
-    ("(f)", "dates and results of the checks",
-     "events 'leak check', 'follow-up check', 'detection system check': date, result, location, "
-     "check method"),
-    ("(g)", "recovery and disposal measures at final decommissioning",
-     "event 'taken out of service': date, quantity (kg), recovered gas to, note"),
-)
+def __getattr__(name: str) -> Any:
+    # ART6_MAP moved to the regime that declares it (`ledger.rules.eu.RECORD_ITEMS`, asked for
+    # through `ledger.rules.site_profile`); the old name still reads it, importing the rules
+    # only when used so that a bare `import ledger.exports.common` stays cheap.
+    if name == "ART6_MAP":
+        from ledger.rules.eu import RECORD_ITEMS
+
+        return RECORD_ITEMS
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def report_lines(check: Mapping[str, Any]) -> list[str]:

@@ -12,7 +12,9 @@ to be checked (docs/rules/README.md).
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from datetime import date
+from decimal import Decimal
 from itertools import groupby
 from types import MappingProxyType
 
@@ -32,7 +34,7 @@ from ledger.rules.common import (
     system_source,
 )
 
-__all__ = ["EU_MEMBER_STATES", "REGIMES", "compute_all", "default_regimes"]
+__all__ = ["EU_MEMBER_STATES", "REGIMES", "SiteProfile", "compute_all", "default_regimes", "site_profile"]
 
 REGIMES: Mapping[RegimeCode, RegimeModule] = MappingProxyType({
     "eu": eu,
@@ -43,15 +45,63 @@ REGIMES: Mapping[RegimeCode, RegimeModule] = MappingProxyType({
     "us-wa": us_wa,
 })
 
-# ISO 3166-1 alpha-2 codes of the 27 EU member states; "EL" is the EU's own code for Greece.
-EU_MEMBER_STATES: frozenset[str] = frozenset({
-    "AT", "BE", "BG", "HR", "CY", "CZ", "DK", "EE", "FI", "FR", "DE", "GR", "EL", "HU", "IE",
-    "IT", "LV", "LT", "LU", "MT", "NL", "PL", "PT", "RO", "SK", "SI", "ES", "SE",
-})
+# ISO 3166-1 alpha-2 codes of the 27 EU member states (declared by regime eu).
+EU_MEMBER_STATES: frozenset[str] = eu.COUNTRIES
+# The chronic-leak share shown for every system as an indicator (exports), whatever its regime.
+CHRONIC_INDICATOR_PERCENT: Decimal = us_82f.REPORT_PERCENT
+
+
+@dataclass(frozen=True, slots=True)
+class SiteProfile:
+    """What services and exports ask of a site's regimes, instead of testing its country.
+
+    Built by `site_profile` from the regimes' own declarations.
+    """
+
+    regimes: tuple[RegimeCode, ...]  # the site's known regime codes, in order
+    gwp_basis: str  # THE GWP basis of the site: first known regime's, else FALLBACK_BASIS
+    mass_unit: str  # "kg" or "lb": default unit of a new site / untyped mass
+    leak_rates: bool  # a regime judges leak rates (US): show leak-rate tables, pounds
+    chronic_percent: Decimal | None  # share of full charge added in a year that calls for a report
+    record_items: tuple[tuple[str, str, str], ...]  # (item, what the text asks, where shown)
+    record_title: str | None  # e.g. "EU 517/2014 Art 6"; None when no record map applies
+
+
+FALLBACK_BASIS = "eu"  # GWP basis of a site without a known regime
+FALLBACK_MASS_UNIT = "kg"
+
+
+def site_profile(regimes: Sequence[RegimeCode]) -> SiteProfile:
+    """The profile of a site with these regime codes (unknown codes are skipped).
+
+    Args:
+        regimes: the site's regime codes, in the site's order.
+    Returns:
+        GWP basis and mass unit of the first known regime (else "eu" and "kg"); leak rates
+        when any regime judges them; the chronic-leak share and the record-item map of the
+        first regime declaring one.
+    """
+    known = tuple(code for code in regimes if code in REGIMES)
+    mods = [REGIMES[code] for code in known]
+    chronic = next((m.CHRONIC_PERCENT for m in mods if getattr(m, "CHRONIC_PERCENT", None)), None)
+    recorded = next((m for m in mods if getattr(m, "RECORD_ITEMS", ())), None)
+    return SiteProfile(
+        regimes=known,
+        gwp_basis=mods[0].GWP_BASIS if mods else FALLBACK_BASIS,
+        mass_unit=mods[0].MASS_UNIT if mods else FALLBACK_MASS_UNIT,
+        leak_rates=any(m.LEAK_RATES for m in mods),
+        chronic_percent=chronic,
+        record_items=() if recorded is None else recorded.RECORD_ITEMS,
+        record_title=None if recorded is None else recorded.RECORD_TITLE,
+    )
 
 
 def default_regimes(country: str, subdivision: str | None = None) -> tuple[RegimeCode, ...]:
     """The regimes a new site gets from where it is (the user may override them).
+
+    Each regime declares the countries it applies in (``COUNTRIES``), the subdivisions it
+    applies in besides (``SUBDIVISIONS``) and those of its countries it does not
+    (``EXCEPT_SUBDIVISIONS``); the result keeps the order of `REGIMES`.
 
     Args:
         country: ISO 3166-1 alpha-2 code ("UK" is accepted for "GB").
@@ -66,14 +116,15 @@ def default_regimes(country: str, subdivision: str | None = None) -> tuple[Regim
     sub = (subdivision or "").strip().upper()
     if country == "UK":
         country = "GB"
-    if country in EU_MEMBER_STATES:
-        return ("eu",)
-    if country == "GB":
-        return ("eu",) if sub == "GB-NIR" else ("gb",)
-    if country == "US":
-        state = {"US-CA": ("us-ca",), "US-WA": ("us-wa",)}.get(sub, ())
-        return ("us-82f", "us-84c", *state)
-    return ()
+    if sub and not sub.startswith(f"{country}-"):
+        sub = ""  # a subdivision of another country says nothing here
+    out = []
+    for code, m in REGIMES.items():
+        nationwide = country in getattr(m, "COUNTRIES", ()) and sub not in getattr(
+            m, "EXCEPT_SUBDIVISIONS", ())
+        if nationwide or (sub and sub in getattr(m, "SUBDIVISIONS", ())):
+            out.append(code)
+    return tuple(out)
 
 
 def compute_all(

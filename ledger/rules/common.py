@@ -22,6 +22,7 @@ from datetime import date, timedelta
 from decimal import ROUND_DOWN, ROUND_HALF_UP, Decimal
 from typing import Any, Protocol
 
+from ledger.domain.booking import Timeline, book
 from ledger.domain.dates import add_months, quarter_end
 from ledger.domain.leak_rate import ANNUALIZING, METHODS, NG_PER_KG, NG_PER_LB, LeakRate, leak_rates
 from ledger.domain.records import (
@@ -40,7 +41,7 @@ from ledger.domain.records import (
     SystemState,
     Tier,
 )
-from ledger.domain.state import EMPTY_STATE, effective_events, finds_leak, fold_days
+from ledger.domain.state import finds_leak
 from ledger.errors import LedgerError
 
 __all__ = [
@@ -210,38 +211,9 @@ def resolve(reference: ReferenceLike, name: str | None) -> str | None:
 
 
 def events_until(history: SystemHistory, as_of: date) -> tuple[Event, ...]:
-    """The events that count (voids applied) up to and including ``as_of``, in date order."""
-    return tuple(e for e in effective_events(history.events) if e.performed_on <= as_of)
-
-
-class Timeline:
-    """A system's state on any day, folded in one pass over its events.
-
-    Gives the same `SystemState` as `ledger.domain.state.state_of(events, day)` (a test holds
-    it to that) without folding the history again for every day asked about.
-
-    Args:
-        events: effective events in date order (see `events_until`).
-    """
-
-    __slots__ = ("events", "_dates", "_states", "_before")
-
-    def __init__(self, events: Sequence[Event]) -> None:
-        self.events = tuple(events)
-        self._states: dict[date, SystemState] = {}
-        self._before = EMPTY_STATE
-        self._states = {self.events[i].performed_on: state for i, state in fold_days(self.events)}
-        self._dates = sorted(self._states)
-
-    @property
-    def dates(self) -> tuple[date, ...]:
-        """The distinct days something happened."""
-        return tuple(self._dates)
-
-    def state(self, day: date) -> SystemState:
-        """The state at the end of ``day``."""
-        i = bisect_right(self._dates, day)
-        return self._before if i == 0 else self._states[self._dates[i - 1]]
+    """The events that count (voids applied) up to and including ``as_of``, in date order
+    (``book(history).until(as_of).events``; kept for callers that want only the events)."""
+    return book(history).until(as_of).events
 
 
 @dataclass(frozen=True, slots=True)

@@ -65,6 +65,42 @@ REGIME_VERSION = "eu-2"  # bump when a rule or constant here changes
 TITLE = "Regulation (EU) 2024/573 on fluorinated greenhouse gases"
 GWP_BASIS = "eu"
 
+# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
+# ISO 3166-1 alpha-2 codes of the 27 EU member states; "EL" is the EU's own code for Greece.
+COUNTRIES: frozenset[str] = frozenset({
+    "AT", "BE", "BG", "HR", "CY", "CZ", "DK", "EE", "FI", "FR", "DE", "GR", "EL", "HU", "IE",
+    "IT", "LV", "LT", "LU", "MT", "NL", "PL", "PT", "RO", "SK", "SI", "ES", "SE",
+})
+# Northern Ireland: the EU F-gas Regulation applies under the Windsor Framework (from memory).
+SUBDIVISIONS: frozenset[str] = frozenset({"GB-NIR"})
+MASS_UNIT = "kg"
+LEAK_RATES = False  # no leak-rate test: periodic checks by band
+RECORD_TITLE = "EU 517/2014 Art 6"
+# EU 517/2014 Art 6 record items (kept by Reg. (EU) 2024/573 Art 7) and where a logbook shows
+# each; the PDF and the spreadsheet print this table, and tests check each mapping.
+RECORD_ITEMS: tuple[tuple[str, str, str], ...] = (
+    ("(a)", "quantity and type of fluorinated gas installed",
+     "system sheet: refrigerant, composition, full charge; events 'placed in service' and "
+     "'retrofit': refrigerant, full charge (kg)"),
+    ("(b)", "quantities added during installation, maintenance or servicing or due to leakage",
+     "events 'refrigerant added': quantity (kg), added for (installation / servicing / leak)"),
+    ("(c)", "whether recycled or reclaimed gas was used, with the facility and its certificate",
+     "events: 'recycled or reclaimed gas' column, cylinder and cylinder kind; the recycling, "
+     "reclamation or destruction facility (name, address) and its certificate number on additions "
+     "and recoveries (--facility, --facility-certificate)"),
+    ("(d)", "quantity of gas recovered",
+     "events 'refrigerant recovered' and 'taken out of service': quantity (kg), recovered gas to"),
+    ("(e)", "identity of the undertaking that installed, serviced, checked or decommissioned, "
+     "with its certificate number",
+     "events: technician, company, company certificate, certificate (scheme, number) and a "
+     "warning where none was valid for the work; system sheet: the companies' certificates"),
+    ("(f)", "dates and results of the checks",
+     "events 'leak check', 'follow-up check', 'detection system check': date, result, location, "
+     "check method"),
+    ("(g)", "recovery and disposal measures at final decommissioning",
+     "event 'taken out of service': date, quantity (kg), recovered gas to, note"),
+)
+
 _REG = "Reg. (EU) 2024/573"
 
 B_APPLIES = Basis(f"{_REG} (date of application)", Confidence.SECONDARY,

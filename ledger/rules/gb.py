@@ -38,6 +38,7 @@ from ledger.domain.records import (
     Tier,
 )
 from ledger.domain.state import EMPTY_STATE, state_of
+from ledger.rules import eu
 from ledger.rules.common import (
     BELOW_THRESHOLD,
     EXEMPT,
@@ -63,6 +64,14 @@ REGIME = "gb"
 REGIME_VERSION = "gb-2"  # bump when a rule or constant here changes
 TITLE = "Great Britain: F-gas Regulation (EU) 517/2014 as retained, and HCFC leak checks"
 GWP_BASIS = "gb"  # Reg. (EU) 517/2014 values as retained (docs/refrigerants.md)
+
+# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
+COUNTRIES: frozenset[str] = frozenset({"GB"})
+EXCEPT_SUBDIVISIONS: frozenset[str] = frozenset({"GB-NIR"})  # Northern Ireland: regime eu
+MASS_UNIT = "kg"
+LEAK_RATES = False
+RECORD_TITLE = eu.RECORD_TITLE  # 517/2014 Art 6 itself, as retained
+RECORD_ITEMS = eu.RECORD_ITEMS
 
 _FGAS = "Reg. (EU) 517/2014 as retained in GB"
 _ODS = "Reg. (EC) 1005/2009 Art 23(2) as retained in GB (gov.uk ODS leak-check guidance)"

@@ -61,6 +61,11 @@ REGIME_VERSION = "us-82f-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 82 Subpart F: ozone-depleting refrigerants, appliances of 50 lb and up"
 GWP_BASIS = "ar4"
 
+# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
+COUNTRIES: frozenset[str] = frozenset({"US"})
+MASS_UNIT = "lb"
+LEAK_RATES = True  # duties follow the leak rate at each addition
+
 ODS_CLASSES = frozenset({"HCFC", "CFC"})  # class II / class I refrigerants
 
 B_APPLIES = Basis("40 CFR 82.157(a)", Confidence.CHECKED,
@@ -97,6 +102,7 @@ VERIFICATION_DAYS = 10
 INSPECTION_QUARTERLY_LB = Decimal(500)
 INSPECTION_MONTHS = 12
 REPORT_PERCENT = Decimal(125)
+CHRONIC_PERCENT = REPORT_PERCENT  # share of full charge added in a year that calls for a report
 
 CONSTANTS: tuple[Constant, ...] = (
     Constant("applies from", APPLIES_FROM, "date", B_APPLIES),

@@ -69,6 +69,11 @@ REGIME_VERSION = "us-84c-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 84 Subpart C: HFC refrigerants above GWP 53, appliances of 15 lb and up"
 GWP_BASIS = "ar4"
 
+# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
+COUNTRIES: frozenset[str] = frozenset({"US"})
+MASS_UNIT = "lb"
+LEAK_RATES = True
+
 _SUBPART = "40 CFR 84 Subpart C (89 FR 82682)"
 _REPAIR = "40 CFR 84.106"  # leak repair; section per Hixson (EH&S consultancy), Apr 2025
 _ALD = "40 CFR 84.108"  # automatic leak detection; same source
@@ -111,6 +116,7 @@ VERIFICATION_DAYS = 10
 INSPECTION_QUARTERLY_LB = Decimal(500)
 INSPECTION_MONTHS = 12
 REPORT_PERCENT = Decimal(125)
+CHRONIC_PERCENT = REPORT_PERCENT
 DETECTION_LB = Decimal(1500)
 DETECTION_INSTALLED_FROM = date(2017, 1, 1)  # older systems need no automatic leak detection
 DETECTION_EXISTING_BY = date(2027, 1, 1)  # systems installed 2017-2025

@@ -69,6 +69,11 @@ REGIME_VERSION = "us-ca-2"  # bump when a rule or constant here changes
 TITLE = "California refrigerant management program (17 CCR 95380 ff.)"
 GWP_BASIS = "ar4"
 
+# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
+SUBDIVISIONS: frozenset[str] = frozenset({"US-CA"})
+MASS_UNIT = "lb"
+LEAK_RATES = True  # shown with the federal regimes of a US site
+
 B_SCOPE = Basis("17 CCR 95380 ff.", Confidence.SECONDARY,
                 "systems with more than 50 lb of a refrigerant with GWP 150 or more (AR4)")
 B_OVER = Basis("17 CCR 95385(c)", Confidence.CHECKED,

@@ -242,3 +242,20 @@ def test_rules_do_no_io_and_read_no_clock():
             if isinstance(node, ast.Name) and node.id in ("open", "print"):
                 raise AssertionError(f"{path}: does I/O")
 
+
+
+def test_site_profile_reads_the_regimes_declarations():
+    from ledger.exports.common import ART6_MAP
+    from ledger.rules import site_profile
+
+    us = site_profile(("us-82f", "us-84c", "us-ca"))
+    # US 40 CFR 82.157(j): a report when 125 % or more of the full charge is added in a year
+    assert (us.gwp_basis, us.mass_unit, us.leak_rates, us.chronic_percent) == (
+        "ar4", "lb", True, Decimal(125))
+    assert us.record_items == () and us.record_title is None
+    eu = site_profile(("eu",))
+    assert (eu.gwp_basis, eu.mass_unit, eu.leak_rates, eu.chronic_percent) == ("eu", "kg", False, None)
+    assert eu.record_items == ART6_MAP and len(eu.record_items) == 7  # 517/2014 Art 6(a)-(g)
+    assert site_profile(("gb",)).gwp_basis == "gb"
+    none = site_profile(("xx",))  # unknown codes are skipped: the fallbacks apply
+    assert (none.regimes, none.gwp_basis, none.mass_unit) == ((), "eu", "kg")
