@@ -1,9 +1,12 @@
-"""Regulatory regimes: one module per regime, each a set of pure functions.
+"""Regulatory regimes: one module per regime, each declaring a `Regime` value.
 
-`REGIMES` maps our regime codes to their modules (read-only: never extend it in place).
-Every module offers ``REGIME_VERSION``, ``TITLE``, ``GWP_BASIS``, ``CONSTANTS``,
-``tier_of(history, reference, as_of)`` and
-``compute_obligations(histories, reference, as_of) -> (obligations, findings)``.
+`REGIMES` maps our regime codes to their `ledger.rules.regime.Regime` values (read-only:
+never extend it in place); `_REGISTRY` below lists them, in the order `default_regimes`
+returns them. A regime offers ``version``, ``title``, ``gwp_basis``, ``constants`` (also as
+``REGIME_VERSION``, ``TITLE``, ``GWP_BASIS``, ``CONSTANTS``),
+``tier_of(history, reference, as_of)``, ``run(bookings, reference, as_of)`` and
+``compute_obligations(histories, reference, as_of) -> (obligations, findings)``; its duties
+are engines of `ledger.rules.engines` configured by its own constants.
 
 Local regulation and the competent authority govern; the schedules computed here are an aid
 to be checked (docs/rules/README.md).
@@ -18,6 +21,7 @@ from decimal import Decimal
 from itertools import groupby
 from types import MappingProxyType
 
+from ledger.domain.booking import book
 from ledger.domain.records import (
     Finding,
     Obligation,
@@ -29,21 +33,18 @@ from ledger.rules import eu, gb, us_82f, us_84c, us_ca, us_wa
 from ledger.rules.common import (
     OUT_OF_SCOPE,
     ReferenceLike,
-    RegimeModule,
     obligation_sort_key,
     system_source,
 )
+from ledger.rules.regime import Regime
 
 __all__ = ["EU_MEMBER_STATES", "REGIMES", "SiteProfile", "compute_all", "default_regimes", "site_profile"]
 
-REGIMES: Mapping[RegimeCode, RegimeModule] = MappingProxyType({
-    "eu": eu,
-    "gb": gb,
-    "us-82f": us_82f,
-    "us-84c": us_84c,
-    "us-ca": us_ca,
-    "us-wa": us_wa,
-})
+# Every regime, in the order `default_regimes` gives them: a new regime adds its REGIME here.
+_REGISTRY: tuple[Regime, ...] = (eu.REGIME, gb.REGIME, us_82f.REGIME, us_84c.REGIME, us_ca.REGIME,
+                                 us_wa.REGIME)
+
+REGIMES: Mapping[RegimeCode, Regime] = MappingProxyType({r.code: r for r in _REGISTRY})
 
 # ISO 3166-1 alpha-2 codes of the 27 EU member states (declared by regime eu).
 EU_MEMBER_STATES: frozenset[str] = eu.COUNTRIES
@@ -82,26 +83,26 @@ def site_profile(regimes: Sequence[RegimeCode]) -> SiteProfile:
         first regime declaring one.
     """
     known = tuple(code for code in regimes if code in REGIMES)
-    mods = [REGIMES[code] for code in known]
-    chronic = next((m.CHRONIC_PERCENT for m in mods if getattr(m, "CHRONIC_PERCENT", None)), None)
-    recorded = next((m for m in mods if getattr(m, "RECORD_ITEMS", ())), None)
+    values = [REGIMES[code] for code in known]
+    chronic = next((r.chronic_percent for r in values if r.chronic_percent is not None), None)
+    recorded = next((r for r in values if r.record_items), None)
     return SiteProfile(
         regimes=known,
-        gwp_basis=mods[0].GWP_BASIS if mods else FALLBACK_BASIS,
-        mass_unit=mods[0].MASS_UNIT if mods else FALLBACK_MASS_UNIT,
-        leak_rates=any(m.LEAK_RATES for m in mods),
+        gwp_basis=values[0].gwp_basis if values else FALLBACK_BASIS,
+        mass_unit=values[0].mass_unit if values else FALLBACK_MASS_UNIT,
+        leak_rates=any(r.leak_rates for r in values),
         chronic_percent=chronic,
-        record_items=() if recorded is None else recorded.RECORD_ITEMS,
-        record_title=None if recorded is None else recorded.RECORD_TITLE,
+        record_items=() if recorded is None else recorded.record_items,
+        record_title=None if recorded is None else recorded.record_title,
     )
 
 
 def default_regimes(country: str, subdivision: str | None = None) -> tuple[RegimeCode, ...]:
     """The regimes a new site gets from where it is (the user may override them).
 
-    Each regime declares the countries it applies in (``COUNTRIES``), the subdivisions it
-    applies in besides (``SUBDIVISIONS``) and those of its countries it does not
-    (``EXCEPT_SUBDIVISIONS``); the result keeps the order of `REGIMES`.
+    Each regime declares the countries it applies in (``countries``), the subdivisions it
+    applies in besides (``subdivisions``) and those of its countries it does not
+    (``except_subdivisions``); the result keeps the order of `REGIMES`.
 
     Args:
         country: ISO 3166-1 alpha-2 code ("UK" is accepted for "GB").
@@ -119,10 +120,9 @@ def default_regimes(country: str, subdivision: str | None = None) -> tuple[Regim
     if sub and not sub.startswith(f"{country}-"):
         sub = ""  # a subdivision of another country says nothing here
     out = []
-    for code, m in REGIMES.items():
-        nationwide = country in getattr(m, "COUNTRIES", ()) and sub not in getattr(
-            m, "EXCEPT_SUBDIVISIONS", ())
-        if nationwide or (sub and sub in getattr(m, "SUBDIVISIONS", ())):
+    for code, r in REGIMES.items():
+        nationwide = country in r.countries and sub not in r.except_subdivisions
+        if nationwide or (sub and sub in r.subdivisions):
             out.append(code)
     return tuple(out)
 
@@ -158,12 +158,13 @@ def compute_all(
                 findings.append(Finding(system_source(h), f"no covered regime applies: site "
                                         f"{site_code} has no regime", Severity.INFO, "regimes"))
             continue
+        booked = [book(h) for h in site_histories]  # folded once, read by every regime
         for code in known:
-            obs, found = REGIMES[code].compute_obligations(site_histories, reference, as_of)
+            obs, found = REGIMES[code].run(booked, reference, as_of)
             obligations.extend(obs)
             findings.extend(found)
-        for h in site_histories:
-            tiers = [REGIMES[code].tier_of(h, reference, as_of) for code in known]
+        for h, b in zip(site_histories, booked, strict=True):
+            tiers = [REGIMES[code].tier_of(b, reference, as_of) for code in known]
             if all(t.band == OUT_OF_SCOPE for t in tiers):
                 why = "; ".join(f"{t.regime}: {t.reason}" for t in tiers)
                 findings.append(Finding(system_source(h), f"no covered regime applies ({why})",

@@ -24,17 +24,14 @@ from typing import Any, Protocol
 
 from ledger.domain.booking import Timeline, book
 from ledger.domain.dates import add_months, quarter_end
-from ledger.domain.leak_rate import ANNUALIZING, METHODS, NG_PER_KG, NG_PER_LB, LeakRate, leak_rates
+from ledger.domain.leak_rate import NG_PER_KG, NG_PER_LB
 from ledger.domain.records import (
-    Application,
     Basis,
     Event,
     EventId,
     EventKind,
     Finding,
-    FollowUpResult,
     Obligation,
-    ObligationKind,
     ObligationStatus,
     Severity,
     SystemHistory,
@@ -56,13 +53,9 @@ __all__ = [
     "RETIRED",
     "UNKNOWN_REFRIGERANT",
     "YEAR",
-    "Assessment",
     "Cadence",
     "Constant",
-    "DetectionRule",
-    "LeakRateRule",
     "ReferenceLike",
-    "RegimeModule",
     "Segment",
     "Timeline",
     "Window",
@@ -79,11 +72,9 @@ __all__ = [
     "interval_windows",
     "kg_of",
     "late_note",
-    "leak_rate_obligations",
     "leak_found_events",
     "obligation_sort_key",
     "period_end",
-    "periodic_check_obligations",
     "resolve",
     "retired_between",
     "service_segments",
@@ -133,21 +124,6 @@ class ReferenceLike(Protocol):
     def mass_fraction_where(self, designation: str, eu_annex: str) -> Decimal: ...
 
     def chem_classes(self, designation: str) -> frozenset[str]: ...
-
-
-class RegimeModule(Protocol):
-    """The surface every `ledger.rules.<regime>` module offers."""
-
-    REGIME_VERSION: str
-    TITLE: str
-    GWP_BASIS: str
-    CONSTANTS: tuple[Constant, ...]
-
-    def tier_of(self, history: SystemHistory, reference: Any, as_of: date) -> Tier: ...
-
-    def compute_obligations(
-        self, histories: Sequence[SystemHistory], reference: Any, as_of: date
-    ) -> tuple[list[Obligation], list[Finding]]: ...
 
 
 # --- masses ---------------------------------------------------------------------------------
@@ -445,6 +421,7 @@ def _walk_segment(
     as_of: date,
 ) -> list[Window]:
     out: list[Window] = []
+    cause: EventId | None
     anchor, cause, end = seg.start_on, seg.cause, seg.end_on
     check_days = [c.performed_on for c in checks]  # both lists are in date order: bisect into them
     while anchor <= as_of:
@@ -623,11 +600,15 @@ def system_source(history: SystemHistory) -> str:
 
 
 def history_findings(
-    history: SystemHistory, reference: ReferenceLike, as_of: date
+    history: SystemHistory, reference: ReferenceLike, as_of: date,
+    events: Sequence[Event] | None = None,
 ) -> list[Finding]:
     """Data problems that stop a schedule being computed; worded without a regime so that
-    `compute_all` can drop the copies several regimes of one site produce."""
-    events = events_until(history, as_of)
+    `compute_all` can drop the copies several regimes of one site produce.
+
+    ``events``: the effective events up to ``as_of`` when already booked."""
+    if events is None:
+        events = events_until(history, as_of)
     source = system_source(history)
     found: list[Finding] = []
     if events and not any(e.kind is EventKind.IN_SERVICE for e in events):
@@ -674,409 +655,3 @@ def obligation_sort_key(o: Obligation) -> tuple[Any, ...]:
         -1 if o.caused_by is None else o.caused_by,
         o.detail,
     )
-
-
-# --- the periodic-check engine shared by the EU and GB regimes ------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class Assessment:
-    """What a periodic-check regime concludes about a system on one day."""
-
-    band: str  # e.g. "5–50 t CO2e", EXEMPT, OUT_OF_SCOPE
-    reason: str  # one sentence with the figures behind the band
-    basis: Basis  # where the band comes from
-    cadence: Cadence | None  # the periodic leak check, None where none applies
-    in_scope: bool = True  # False: the refrigerant is not covered at all (no repair duty)
-    detection_required: bool = False
-    repair_days: int = 14
-    repair_basis: Basis | None = None
-    repair_rule: str = ""  # how the repair deadline reads in a sentence
-    follow_up_basis: Basis | None = None
-
-
-@dataclass(frozen=True, slots=True)
-class DetectionRule:
-    """How a periodic-check regime handles leak detection systems."""
-
-    basis: Basis  # where the duty to fit one comes from
-    due_from: date  # fitting is never due before this day (the rule's date of application)
-    check_months: int  # the detection system itself is checked this often
-    check_basis: Basis
-
-
-def periodic_check_obligations(
-    history: SystemHistory,
-    as_of: date,
-    *,
-    regime: str,
-    assess: Callable[[SystemState, date], Assessment],
-    emit_from: date,
-    extra_change_dates: Iterable[date],
-    follow_up_earliest_days: int,
-    detection: DetectionRule,
-) -> list[Obligation]:
-    """Leak checks, repairs, follow-up checks and detection-system duties of one system.
-
-    Args:
-        history: the system and its events.
-        as_of: the day of evaluation.
-        regime: the regime code put on each obligation.
-        assess: the regime's verdict on an in-service state on a day.
-        emit_from: periodic windows due before this day are not returned (earlier law).
-        extra_change_dates: days on which the verdict may change without an event (a rule
-            taking effect).
-        follow_up_earliest_days: days after a repair before a follow-up check counts.
-        detection: the detection-system rule.
-    Returns:
-        The obligations, unsorted.
-    """
-    events = events_until(history, as_of)
-    if not any(e.kind is EventKind.IN_SERVICE for e in events):
-        return []
-    timeline = Timeline(events)
-    cache: dict[date, Assessment | None] = {}
-
-    def assessment_at(day: date) -> Assessment | None:
-        if day not in cache:
-            st = timeline.state(day)
-            cache[day] = assess(st, day) if st.in_service else None
-        return cache[day]
-
-    extras = [d for d in extra_change_dates if d <= as_of]
-    changes = [*timeline.dates, *extras]
-    system_id, site_code = history.system.id, history.site.code
-    out: list[Obligation] = []
-    by_id = {e.id: e for e in events}
-    # A check recorded without a certificate valid for the work does not meet a duty (EU
-    # 2024/573 Art 4(5), 517/2014 Art 3(3) and 10: checks by certified persons); it is named
-    # on the duty it did not meet.
-    checks = [e for e in events if e.kind is EventKind.CHECK and e.certified]
-    follow_ups = [e for e in events if e.kind is EventKind.FOLLOW_UP and e.certified]
-    uncertified = [e for e in events if e.kind in (EventKind.CHECK, EventKind.FOLLOW_UP) and not e.certified]
-
-    def add(kind: ObligationKind, due: date, basis: Basis, met: Event | None, cause: EventId | None,
-            detail: str, earliest: date | None = None, opens: date | None = None) -> None:
-        if met is None and uncertified:
-            detail += uncertified_note(uncertified, kind, opens or earliest, max(due, as_of))
-        if due < emit_from:
-            # Due under the earlier law: listed only if still outstanding when this rule
-            # applied (not met, system in service, no leak check since that re-examined the
-            # system), and then due on that day.
-            if met is not None and met.performed_on < emit_from:
-                return
-            if not timeline.state(emit_from).in_service:
-                return
-            caused_on = by_id[cause].performed_on if cause in by_id else due
-            if any(caused_on < c.performed_on < emit_from for c in checks):
-                return
-            detail += (f"; due {due.isoformat()} under the earlier law, still outstanding on "
-                       f"{emit_from.isoformat()}")
-            due = emit_from
-        detail += late_note(due, met)
-        out.append(Obligation(regime, kind, due, basis, status_of(due, met, as_of), system_id,
-                              site_code, earliest, cause, None if met is None else met.id, detail))
-
-    def window_detail(w: Window, what: str) -> str:
-        detail = w.cadence.label
-        if w.missed:
-            detail += f"; missed: no {what} from {w.opens_on.isoformat()} to {w.due_on.isoformat()}"
-        if w.carried_from is not None:
-            detail += (f"; due {w.carried_from.isoformat()} under the earlier law and still "
-                       "outstanding when this rule took effect")
-        return detail
-
-    # Periodic leak checks.
-    def check_cadence(day: date) -> Cadence | None:
-        a = assessment_at(day)
-        return None if a is None else a.cadence
-
-    for w in interval_windows(segments=service_segments(events), cadence_at=check_cadence,
-                              change_dates=changes, checks=checks, events=events, as_of=as_of,
-                              emit_from=emit_from):
-        add(ObligationKind.LEAK_CHECK, w.due_on, w.cadence.basis, w.met_by, w.cause,
-            window_detail(w, "leak check"), opens=w.opens_on)
-
-    # Repairs of found leaks.
-    for leak in leak_found_events(events):
-        a = assessment_at(leak.performed_on)
-        if a is None or not a.in_scope or a.repair_basis is None:
-            continue
-        due = leak.performed_on + timedelta(days=a.repair_days)
-        met = first_event(events, (EventKind.REPAIR,), on_or_after=leak.performed_on)
-        if met is None and retired_between(events, leak.performed_on, due):
-            continue
-        what = "leak check" if leak.kind is EventKind.CHECK else "failed follow-up check"
-        where = f" at {leak.location}" if leak.location else ""
-        add(ObligationKind.REPAIR, due, a.repair_basis, met, leak.id,
-            f"repair the leak found{where} by the {what} of {leak.performed_on.isoformat()} "
-            f"({a.repair_rule or f'within {a.repair_days} days'})")
-
-    # Follow-up checks after repairs: only for equipment that must be leak-checked (2024/573
-    # Art 4(5) "für die gemäß Artikel 5 Absatz 1 eine Dichtheitskontrolle vorgeschrieben ist";
-    # 517/2014 Art 3(3) "Cuando un aparato deba someterse a control de fugas"). The repair duty
-    # above covers every in-scope system.
-    for repair in (e for e in events if e.kind is EventKind.REPAIR):
-        a = assessment_at(repair.performed_on)
-        if a is None or not a.in_scope or a.follow_up_basis is None or a.cadence is None:
-            continue
-        earliest = repair.performed_on + timedelta(days=follow_up_earliest_days)
-        due = add_months(repair.performed_on, 1)
-        met = first_event(follow_ups, (EventKind.FOLLOW_UP,), on_or_after=earliest, after=repair)
-        if met is None and retired_between(events, repair.performed_on, due):
-            continue
-        add(ObligationKind.FOLLOW_UP_CHECK, due, a.follow_up_basis, met, repair.id,
-            f"follow-up check of the repair of {repair.performed_on.isoformat()}", earliest)
-
-    # Leak detection system: fitted where required, and checked.
-    def required_at(day: date) -> bool:
-        a = assessment_at(day)
-        return a is not None and a.detection_required
-
-    def present_at(day: date) -> bool:
-        return timeline.state(day).detection_system
-
-    ons = [e for e in events if e.kind is EventKind.DETECTION_ON]
-    for trigger, lapse in detection_triggers(changes, required_at, present_at):
-        due = max(trigger, detection.due_from)
-        if present_at(trigger):
-            met = [e for e in ons if e.performed_on <= trigger][-1]
-        else:
-            met = first_event(ons, (EventKind.DETECTION_ON,), on_or_after=trigger, before=lapse)
-        if met is None and (
-            (lapse is not None and lapse <= due) or retired_between(events, trigger, due)
-        ):
-            continue
-        add(ObligationKind.DETECTION_SYSTEM, due, detection.basis, met, cause_on(events, trigger),
-            f"fit a leak detection system (required from {trigger.isoformat()})")
-
-    def detection_check_cadence(day: date) -> Cadence | None:
-        if not (required_at(day) and present_at(day)):
-            return None
-        return Cadence(f"{detection.check_months}-month check of the leak detection system",
-                       detection.check_basis, months=detection.check_months)
-
-    spans: list[Segment] = []
-    for on in ons:
-        off = first_event(events, (EventKind.DETECTION_OFF, EventKind.RETIRE), after=on)
-        if spans and spans[-1].end_on is None:
-            continue  # already fitted: a second "installed" event does not restart anything
-        spans.append(Segment(on.performed_on, on.id, None if off is None else off.performed_on))
-    detection_checks = [e for e in events if e.kind is EventKind.DETECTION_CHECK]
-    for w in interval_windows(segments=_merge_spans(spans), cadence_at=detection_check_cadence,
-                              change_dates=changes, checks=detection_checks, events=events,
-                              as_of=as_of, emit_from=emit_from):
-        add(ObligationKind.DETECTION_SYSTEM_CHECK, w.due_on, w.cadence.basis, w.met_by, w.cause,
-            window_detail(w, "check"))
-    return out
-
-
-UNCERTIFIED = "done by an uncertified person"
-
-
-def uncertified_note(uncertified: Sequence[Event], kind: ObligationKind, opens: date | None, until: date) -> str:
-    """A clause naming the checks in a duty's window that were done without a valid certificate.
-
-    Only leak-check and follow-up-check duties are met by checks; the window runs from the
-    day it opens to ``until`` (its due date, or the day of evaluation for one overdue).
-    """
-    wanted = EventKind.CHECK if kind is ObligationKind.LEAK_CHECK else EventKind.FOLLOW_UP
-    if kind not in (ObligationKind.LEAK_CHECK, ObligationKind.FOLLOW_UP_CHECK):
-        return ""
-    hits = [e for e in uncertified if e.kind is wanted and (opens is None or e.performed_on >= opens)
-            and e.performed_on <= until]
-    if not hits:
-        return ""
-    days = ", ".join(f"{e.performed_on.isoformat()} (event {e.id})" for e in hits)
-    return f"; {UNCERTIFIED} on {days}: it does not count"
-
-
-def _merge_spans(spans: Sequence[Segment]) -> list[Segment]:
-    # Drop spans that start inside an earlier one (several "installed" events in a row).
-    merged: list[Segment] = []
-    for s in spans:
-        if merged and (merged[-1].end_on is None or s.start_on < merged[-1].end_on):
-            continue
-        merged.append(s)
-    return merged
-
-
-# --- the leak-rate engine shared by the US regimes ------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class LeakRateRule:
-    """What a US regime does when a leak rate exceeds its threshold."""
-
-    regime: str
-    applies_from: date  # additions before this day open nothing
-    in_scope: Callable[[SystemState, date], bool]  # the appliance is covered on a day
-    threshold_basis: Basis
-    repair_days: int
-    repair_basis: Basis
-    verification_days: int  # follow-up verification test within this many days
-    initial_basis: Basis
-    follow_up_basis: Basis
-    inspection_basis: Basis
-    inspection_quarterly_lb: Decimal  # commercial / IPR at or above this: quarterly
-    inspection_months: int  # inspections continue this long after the last exceedance
-    report_percent: Decimal  # this share of the full charge added in a calendar year
-    report_basis: Basis
-
-
-_FIXES = (EventKind.REPAIR, EventKind.RETROFIT, EventKind.RETIRE)
-_QUARTERLY_APPLICATIONS = frozenset(
-    {Application.COMMERCIAL_REFRIGERATION, Application.INDUSTRIAL_PROCESS}
-)
-
-
-def leak_rate_obligations(
-    history: SystemHistory, as_of: date, rule: LeakRateRule
-) -> tuple[list[Obligation], list[Finding]]:
-    """Repairs, verification tests, inspections and reports opened by leak-rate exceedances.
-
-    Each addition's leak rate is computed by the site's method (`ledger.domain.leak_rate`).
-    An exceedance opens a repair due ``repair_days`` later; exceedances before that repair
-    (or a retrofit or retirement, which also end the duty) belong to the same episode. A
-    repair is followed by an initial verification test (due by the repair deadline) and,
-    once that passes, a follow-up verification test within ``verification_days``. Leak
-    inspections are due each calendar quarter (commercial refrigeration and industrial
-    process refrigeration at or above ``inspection_quarterly_lb``) or calendar year (others)
-    from the exceedance until ``inspection_months`` after the last one. Additions reaching
-    ``report_percent`` of the full charge in a calendar year call for a report by 1 March of
-    the next year.
-
-    Args:
-        history: the system, its site (which names the leak-rate method) and events.
-        as_of: the day of evaluation.
-        rule: the regime's constants and citations.
-    Returns:
-        (obligations unsorted, findings).
-    """
-    events = events_until(history, as_of)
-    if not any(e.kind is EventKind.IN_SERVICE for e in events):
-        return [], []
-    source = system_source(history)
-    findings: list[Finding] = []
-    method = history.site.leak_rate_method
-    if method not in METHODS:
-        findings.append(Finding(source, f"site {history.site.code}: leak-rate method {method!r} "
-                                f"is not one of {', '.join(METHODS)}; annualizing used",
-                                Severity.WARNING, "leak_rate_method"))
-        method = ANNUALIZING
-    timeline = Timeline(events)
-    system_id, site_code = history.system.id, history.site.code
-    out: list[Obligation] = []
-
-    def covered(day: date) -> bool:
-        st = timeline.state(day)
-        return st.in_service and day >= rule.applies_from and rule.in_scope(st, day)
-
-    def add(kind: ObligationKind, due: date, basis: Basis, met: Event | None, cause: EventId | None,
-            detail: str, earliest: date | None = None) -> None:
-        out.append(Obligation(rule.regime, kind, due, basis, status_of(due, met, as_of), system_id,
-                              site_code, earliest, cause, None if met is None else met.id, detail))
-
-    rows = [r for r in leak_rates(SystemHistory(history.site, history.system, events), method)
-            if r.counted and covered(r.added_on)]
-    exceeded = [r for r in rows if r.exceeded]
-
-    # Episodes: exceedances until the next repair, retrofit or retirement.
-    episodes: list[list[LeakRate]] = []
-    for r in exceeded:
-        if episodes:
-            start = episodes[-1][0].added_on
-            if first_event(events, _FIXES, on_or_after=start, before=r.added_on) is None:
-                episodes[-1].append(r)
-                continue
-        episodes.append([r])
-    for episode in episodes:
-        first = episode[0]
-        x = first.added_on
-        due = x + timedelta(days=rule.repair_days)
-        fix = first_event(events, _FIXES, on_or_after=x)
-        said = (f"leak rate {_pct(first.percent)} % over the "
-                f"{first.threshold_percent.normalize():f} % "
-                f"threshold at the addition of {x.isoformat()} ({method} method)")
-        how = "" if fix is None or fix.kind is EventKind.REPAIR else f" (ended by {fix.kind.value})"
-        add(ObligationKind.REPAIR, due, rule.repair_basis, fix, first.event_id,
-            f"repair: {said}{how}{late_note(due, fix)}")
-        if fix is not None and fix.kind is not EventKind.REPAIR:
-            continue
-        initial = None if fix is None else first_event(events, (EventKind.FOLLOW_UP,), after=fix)
-        if initial is None and retired_between(events, x, due):
-            continue
-        add(ObligationKind.VERIFICATION_TEST, due, rule.initial_basis, initial, first.event_id,
-            f"initial verification test of the repair after the exceedance of {x.isoformat()}"
-            f"{late_note(due, initial)}", x)
-        if initial is None:
-            continue
-        if initial.result == FollowUpResult.FAIL:
-            findings.append(Finding(source, f"initial verification test {initial.id} of "
-                                    f"{initial.performed_on.isoformat()} failed: the repair is "
-                                    "not verified; repair again and re-test",
-                                    Severity.WARNING, "result"))
-            continue
-        follow_due = initial.performed_on + timedelta(days=rule.verification_days)
-        follow = first_event(events, (EventKind.FOLLOW_UP,), after=initial)
-        if follow is None and retired_between(events, initial.performed_on, follow_due):
-            continue
-        add(ObligationKind.VERIFICATION_TEST, follow_due, rule.follow_up_basis, follow, initial.id,
-            f"follow-up verification test, within {rule.verification_days} days of the initial "
-            f"test of {initial.performed_on.isoformat()}{late_note(follow_due, follow)}",
-            initial.performed_on)
-
-    # Leak inspections after exceedances, by calendar period.
-    def inspection_cadence(day: date) -> Cadence | None:
-        st = timeline.state(day)
-        if not st.in_service:
-            return None
-        if (history.system.application in _QUARTERLY_APPLICATIONS
-                and at_least_lb(st.full_charge_ng, rule.inspection_quarterly_lb)):
-            return Cadence("quarterly leak inspection after a leak-rate exceedance (commercial "
-                           "or industrial process refrigeration, "
-                           f"≥ {rule.inspection_quarterly_lb} lb)",
-                           rule.inspection_basis, period=QUARTER)
-        return Cadence("annual leak inspection after a leak-rate exceedance",
-                       rule.inspection_basis, period=YEAR)
-
-    checks = [e for e in events if e.kind is EventKind.CHECK]
-    for seg in service_segments(events):
-        spans: list[tuple[date, date | None, EventId | None]] = []
-        for r in exceeded:
-            if r.added_on < seg.start_on or (seg.end_on is not None and r.added_on >= seg.end_on):
-                continue
-            last = add_months(r.added_on, rule.inspection_months)
-            if spans and spans[-1][1] is not None and r.added_on <= spans[-1][1]:
-                spans[-1] = (spans[-1][0], max(last, spans[-1][1]), spans[-1][2])
-            else:
-                spans.append((r.added_on, last, r.event_id))
-        for w in calendar_windows(spans=spans, stop_on=seg.end_on, cadence_at=inspection_cadence,
-                                  change_dates=timeline.dates, checks=checks, as_of=as_of):
-            detail = w.cadence.label
-            if w.missed:
-                detail += (f"; missed: no inspection from {w.opens_on.isoformat()} "
-                           f"to {w.due_on.isoformat()}")
-            add(ObligationKind.LEAK_INSPECTION, w.due_on, w.cadence.basis, w.met_by, w.cause,
-                detail, w.opens_on)
-
-    # Chronic leaks: a report when a calendar year's additions reach report_percent.
-    totals: dict[int, int] = {}
-    reported: set[int] = set()
-    for r in rows:
-        year = r.added_on.year
-        totals[year] = totals.get(year, 0) + r.added_ng
-        if year in reported or r.full_charge_ng <= 0:
-            continue
-        if Decimal(totals[year]) * 100 >= rule.report_percent * r.full_charge_ng:
-            reported.add(year)
-            share = Decimal(totals[year]) * 100 / r.full_charge_ng
-            add(ObligationKind.REPORT, date(year + 1, 3, 1), rule.report_basis, None, r.event_id,
-                f"report a chronically leaking appliance: {_pct(share)} % of the full charge "
-                f"added in {year} (≥ {rule.report_percent.normalize():f} %); record the filing "
-                "with `refledger report filed`")
-    return out, findings
-
-
-def _pct(value: Decimal | None) -> str:
-    return "?" if value is None else _truncate(value, 2)

@@ -22,45 +22,15 @@ how sure we are of it.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from dataclasses import replace
-from datetime import date, timedelta
-from decimal import Context, Decimal, localcontext
-from functools import lru_cache, partial
+from datetime import date
+from decimal import Decimal
 
-from ledger.domain.records import (
-    Basis,
-    Confidence,
-    Finding,
-    Obligation,
-    System,
-    SystemHistory,
-    SystemState,
-    Tier,
-)
-from ledger.domain.state import EMPTY_STATE, state_of
-from ledger.rules.common import (
-    BELOW_THRESHOLD,
-    EXEMPT,
-    OUT_OF_SCOPE,
-    UNKNOWN_REFRIGERANT,
-    Assessment,
-    Cadence,
-    Constant,
-    DetectionRule,
-    ReferenceLike,
-    events_until,
-    fmt_kg,
-    fmt_t,
-    history_findings,
-    kg_of,
-    obligation_sort_key,
-    periodic_check_obligations,
-    resolve,
-    tier_for_state,
-)
+from ledger.domain.records import Basis, Confidence
+from ledger.rules import engines as en
+from ledger.rules.common import Constant, ReferenceLike, fmt_kg, fmt_t
+from ledger.rules.regime import Regime
 
-REGIME = "eu"
+CODE = "eu"
 REGIME_VERSION = "eu-2"  # bump when a rule or constant here changes
 TITLE = "Regulation (EU) 2024/573 on fluorinated greenhouse gases"
 GWP_BASIS = "eu"
@@ -73,8 +43,6 @@ COUNTRIES: frozenset[str] = frozenset({
 })
 # Northern Ireland: the EU F-gas Regulation applies under the Windsor Framework (from memory).
 SUBDIVISIONS: frozenset[str] = frozenset({"GB-NIR"})
-MASS_UNIT = "kg"
-LEAK_RATES = False  # no leak-rate test: periodic checks by band
 RECORD_TITLE = "EU 517/2014 Art 6"
 # EU 517/2014 Art 6 record items (kept by Reg. (EU) 2024/573 Art 7) and where a logbook shows
 # each; the PDF and the spreadsheet print this table, and tests check each mapping.
@@ -159,12 +127,11 @@ REPAIR_RULE = "'without undue delay': 14-day site-policy deadline, not a legal o
 FOLLOW_UP_EARLIEST_DAYS = 1  # at least 24 h of operation after the repair
 FOLLOW_UP_MONTHS = 1
 
-DETECTION = DetectionRule(B_DETECTION, APPLIES_FROM, DETECTION_CHECK_MONTHS, B_DETECTION_CHECK)
-
 CONSTANTS: tuple[Constant, ...] = (
     Constant("date of application", APPLIES_FROM, "date", B_APPLIES),
-    Constant("leak-check threshold, Annex I part", Decimal(5), "t CO2e", B_SCOPE),
-    Constant("leak-check threshold, Annex II section 1 part", Decimal(1), "kg", B_SCOPE),
+    Constant("leak-check threshold, Annex I part", CO2E_BANDS[-1][0], "t CO2e", B_SCOPE),
+    Constant("leak-check threshold, Annex II section 1 part", ANNEX_II_BANDS[-1][0], "kg",
+             B_SCOPE),
     *(Constant(f"interval {band}", months, "months", B_TIERS) for _, months, band in CO2E_BANDS),
     *(Constant(f"interval {band}", months, "months", B_ANNEX_II)
       for _, months, band in ANNEX_II_BANDS),
@@ -188,7 +155,6 @@ CONSTANTS: tuple[Constant, ...] = (
     Constant("follow-up check within", FOLLOW_UP_MONTHS, "months after the repair", B_FOLLOW_UP),
 )
 
-_EXACT = Context(prec=60)
 
 
 def annex_i_co2e_t(reference: ReferenceLike, designation: str, charge_ng: int) -> Decimal:
@@ -198,176 +164,50 @@ def annex_i_co2e_t(reference: ReferenceLike, designation: str, charge_ng: int) -
     mixture only its Annex I components count: charge kg x sum(mass fraction x GWP) / 1000
     over those components (GWP on the regulation's own basis). For a pure Annex I gas this
     is charge kg x GWP / 1000.
-
-    Args:
-        reference: the refrigerant tables.
-        designation: a designation the reference knows.
-        charge_ng: the full charge.
     """
-    with localcontext(_EXACT):
-        per_kg = Decimal(0)
-        for name, percent in reference.lookup(designation).components:
-            component = reference.components[name]
-            gwp = component.gwp.get(GWP_BASIS)
-            if component.eu_annex == "I" and gwp is not None:
-                per_kg += Decimal(percent) / 100 * Decimal(gwp)
-        return kg_of(charge_ng) * per_kg / 1000
+    return _ANNEX_I_CO2E(reference, designation, charge_ng)
 
 
-def _band(value: Decimal, bands: Sequence[tuple[Decimal, int, str]]) -> tuple[int, str] | None:
-    for bound, months, band in bands:
-        if value >= bound:
-            return months, band
-    return None
+_ANNEX_I_CO2E = en.annex_co2e_t("I", GWP_BASIS)
+# Art 4(5) repair terms, the same whichever test puts the system in scope.
+_REPAIR = en.RepairTerms(REPAIR_DAYS, B_REPAIR, REPAIR_RULE, B_FOLLOW_UP)
 
+CHECKS = en.BandedChecks(
+    tests=(
+        en.BandTest("annex-i", "I", _ANNEX_I_CO2E, fmt_t, "{} of Annex I gases", CO2E_BANDS,
+                    B_TIERS, _REPAIR, hermetic_below=HERMETIC_CO2E_T,
+                    detection_from=DETECTION_CO2E_T),
+        en.BandTest("annex-ii", "II-1", en.fraction_kg("II-1"), fmt_kg,
+                    "{} of Annex II section 1 gases", ANNEX_II_BANDS, B_ANNEX_II, _REPAIR,
+                    hermetic_below=HERMETIC_ANNEX_II_KG, detection_from=DETECTION_ANNEX_II_KG,
+                    counts_from=APPLIES_FROM, not_counted=" (not counted before 11 March 2024)"),
+    ),
+    scope_basis=B_SCOPE,
+    out_of_scope=(("ods", "{d} is an ozone-depleting substance, governed by the EU ozone rules "
+                   "rather than this regulation: out of scope"),),
+    not_covered="{d} is not a fluorinated gas: out of scope",
+    below="; under 5 t CO2e and 1 kg: no periodic leak check",
+    hermetic_basis=B_HERMETIC,
+    hermetic="; hermetically sealed and labelled, under 10 t CO2e / 2 kg: no periodic leak check",
+    both="; both tests apply, the shorter interval wins",
+    detection_note="; a leak detection system is required (Art 6)",
+    detection_factor=DETECTION_FACTOR,
+    repair_by=("annex-i", "annex-ii"),
+    follow_up_by=("annex-i", "annex-ii"),
+    residential=(RESIDENTIAL_HERMETIC_KG, B_RESIDENTIAL, "; hermetically sealed in a residential "
+                 "building, under 3 kg: no periodic leak check"),
+)
 
-def assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
-    """The leak-check band of an in-service system on a day (memoised ``_assess``).
-
-    The verdict depends only on the refrigerant, full charge, detection system, the sealed
-    and residential flags and whether Annex II gases count yet, so an estate's thousands of
-    (system, day) questions reduce to a few distinct answers.
-    """
-    return _assess_memo(reference, state.refrigerant, state.full_charge_ng, state.detection_system,
-                        system.hermetic, system.residential, day >= APPLIES_FROM)
-
-
-@lru_cache(maxsize=1 << 16)
-def _assess_memo(reference: ReferenceLike, refrigerant: str | None, charge_ng: int, detection: bool,
-                 hermetic: bool, residential: bool, counts_ii: bool) -> Assessment:
-    system = System(id=0, site_code="", tag="", hermetic=hermetic, residential=residential)
-    state = replace(EMPTY_STATE, in_service=True, refrigerant=refrigerant, full_charge_ng=charge_ng,
-                    detection_system=detection)
-    return _assess(reference, system, state, APPLIES_FROM if counts_ii else APPLIES_FROM - timedelta(days=1))
-
-
-def _assess(reference: ReferenceLike, system: System, state: SystemState, day: date) -> Assessment:
-    """The leak-check band of an in-service system on a day, Art 5(1) and Art 6.
-
-    Args:
-        reference: the refrigerant tables.
-        system: the system's static facts (hermetic, residential).
-        state: its state on ``day``.
-        day: the day; Annex II section 1 gases count only from the date of application.
-    Returns:
-        The band, the cadence of its leak checks (None where none apply) and the
-        detection-system verdict.
-    """
-    designation = resolve(reference, state.refrigerant)
-    if designation is None:
-        return Assessment(UNKNOWN_REFRIGERANT,
-                          f"refrigerant {state.refrigerant!r} is not in the reference data",
-                          B_SCOPE, None, in_scope=False)
-    part_i = reference.mass_fraction_where(designation, "I")
-    part_ii = reference.mass_fraction_where(designation, "II-1")
-    if part_i == 0 and part_ii == 0:
-        if reference.mass_fraction_where(designation, "ods") > 0:
-            why = (f"{designation} is an ozone-depleting substance, governed by the EU ozone "
-                   "rules rather than this regulation: out of scope")
-        else:
-            why = f"{designation} is not a fluorinated gas: out of scope"
-        return Assessment(OUT_OF_SCOPE, why, B_SCOPE, None, in_scope=False)
-
-    counts_ii = day >= APPLIES_FROM
-    charge_kg = kg_of(state.full_charge_ng)
-    tonnes = annex_i_co2e_t(reference, designation, state.full_charge_ng)
-    kg_ii = charge_kg * part_ii
-    figures = []
-    if part_i > 0:
-        figures.append(f"{fmt_t(tonnes)} of Annex I gases")
-    if part_ii > 0:
-        figures.append(f"{fmt_kg(kg_ii)} of Annex II section 1 gases"
-                       + ("" if counts_ii else " (not counted before 11 March 2024)"))
-    said = f"{designation}, {fmt_kg(charge_kg)} charge: " + " and ".join(figures)
-    duty = {"repair_days": REPAIR_DAYS, "repair_basis": B_REPAIR, "repair_rule": REPAIR_RULE,
-            "follow_up_basis": B_FOLLOW_UP}
-
-    fluorinated_kg = charge_kg * (part_i + part_ii)
-    if system.hermetic and system.residential and fluorinated_kg < RESIDENTIAL_HERMETIC_KG:
-        return Assessment(EXEMPT, f"{said}; hermetically sealed in a residential building, "
-                          "under 3 kg: no periodic leak check", B_RESIDENTIAL, None, **duty)
-
-    candidates: list[tuple[int, str, Basis]] = []
-    sealed_off = False
-    if part_i > 0:
-        hit = _band(tonnes, CO2E_BANDS)
-        if hit and system.hermetic and tonnes < HERMETIC_CO2E_T:
-            sealed_off = True
-        elif hit:
-            candidates.append((hit[0], hit[1], B_TIERS))
-    if part_ii > 0 and counts_ii:
-        hit = _band(kg_ii, ANNEX_II_BANDS)
-        if hit and system.hermetic and kg_ii < HERMETIC_ANNEX_II_KG:
-            sealed_off = True
-        elif hit:
-            candidates.append((hit[0], hit[1], B_ANNEX_II))
-    detection_required = (tonnes >= DETECTION_CO2E_T
-                          or (counts_ii and kg_ii >= DETECTION_ANNEX_II_KG))
-
-    if not candidates:
-        if sealed_off:
-            return Assessment(EXEMPT, f"{said}; hermetically sealed and labelled, under "
-                              "10 t CO2e / 2 kg: no periodic leak check", B_HERMETIC, None, **duty)
-        return Assessment(BELOW_THRESHOLD, f"{said}; under 5 t CO2e and 1 kg: no periodic leak "
-                          "check", B_SCOPE, None, **duty)
-
-    months, band, basis = min(candidates, key=lambda c: c[0])  # ties keep the Annex I test
-    note = ""
-    if state.detection_system:
-        months *= DETECTION_FACTOR
-        note = ", leak detection system fitted: interval doubled"
-    reason = said
-    if len(candidates) == 2:
-        reason += "; both tests apply, the shorter interval wins"
-    if detection_required:
-        reason += "; a leak detection system is required (Art 6)"
-    cadence = Cadence(f"{months}-month leak check ({band}{note})", basis, months=months)
-    return Assessment(band, reason, basis, cadence, detection_required=detection_required, **duty)
-
-
-def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Tier:
-    """The system's leak-check band on ``as_of`` under Reg. (EU) 2024/573 Art 5(1).
-
-    Args:
-        history: the system and its events.
-        reference: the refrigerant tables.
-        as_of: the day.
-    Returns:
-        The band, its interval in months (None where no periodic check applies), the basis
-        and a sentence with the figures.
-    """
-    state = state_of(events_until(history, as_of), as_of)
-    idle = tier_for_state(REGIME, state, B_SCOPE)
-    if idle is not None:
-        return idle
-    a = assess(reference, history.system, state, as_of)
-    return Tier(REGIME, a.band, None if a.cadence is None else a.cadence.months, a.basis, a.reason)
-
-
-def compute_obligations(
-    histories: Sequence[SystemHistory], reference: ReferenceLike, as_of: date
-) -> tuple[list[Obligation], list[Finding]]:
-    """Leak checks, repairs, follow-up checks and detection-system duties, Reg. (EU) 2024/573.
-
-    Art 4(5), Art 5(1) and Art 6; see the module docstring and docs/rules/eu.md.
-
-    Args:
-        histories: systems (of one or several sites) with their events.
-        reference: the refrigerant tables.
-        as_of: the day of evaluation; later events are ignored.
-    Returns:
-        (obligations earliest due first, findings about the data).
-    """
-    obligations: list[Obligation] = []
-    findings: list[Finding] = []
-    for history in histories:
-        findings.extend(history_findings(history, reference, as_of))
-        obligations.extend(periodic_check_obligations(
-            history, as_of, regime=REGIME,
-            assess=partial(assess, reference, history.system),
-            emit_from=APPLIES_FROM, extra_change_dates=(APPLIES_FROM,),
-            follow_up_earliest_days=FOLLOW_UP_EARLIEST_DAYS, detection=DETECTION,
-        ))
-    obligations.sort(key=obligation_sort_key)
-    return obligations, findings
-
+REGIME = Regime(
+    code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    scope_basis=B_SCOPE, classify=CHECKS,
+    duties=en.banded_duties(follow_up_earliest_days=FOLLOW_UP_EARLIEST_DAYS,
+                            follow_up_months=FOLLOW_UP_MONTHS, detection_basis=B_DETECTION,
+                            detection_from=APPLIES_FROM, detection_check_basis=B_DETECTION_CHECK,
+                            detection_check_months=DETECTION_CHECK_MONTHS),
+    emit_from=APPLIES_FROM, change_dates=(APPLIES_FROM,), certified_only=True,
+    countries=COUNTRIES, subdivisions=SUBDIVISIONS, record_title=RECORD_TITLE,
+    record_items=RECORD_ITEMS,
+)
+tier_of = REGIME.tier_of
+compute_obligations = REGIME.compute_obligations

@@ -24,47 +24,19 @@ form) open nothing.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.leak_rate import THRESHOLD_PERCENT
-from ledger.domain.records import (
-    Basis,
-    Confidence,
-    Finding,
-    Obligation,
-    SystemHistory,
-    SystemState,
-    Tier,
-)
-from ledger.domain.state import state_of
-from ledger.rules.common import (
-    BELOW_THRESHOLD,
-    OUT_OF_SCOPE,
-    UNKNOWN_REFRIGERANT,
-    Constant,
-    LeakRateRule,
-    ReferenceLike,
-    at_least_lb,
-    events_until,
-    fmt_lb,
-    history_findings,
-    leak_rate_obligations,
-    obligation_sort_key,
-    resolve,
-    tier_for_state,
-)
+from ledger.domain.leak_rate import YEAR_DAYS
+from ledger.domain.records import Basis, Confidence
+from ledger.rules import engines as en
+from ledger.rules.common import Constant, ReferenceLike
+from ledger.rules.regime import Regime
 
-REGIME = "us-82f"
+CODE = "us-82f"
 REGIME_VERSION = "us-82f-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 82 Subpart F: ozone-depleting refrigerants, appliances of 50 lb and up"
 GWP_BASIS = "ar4"
-
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-COUNTRIES: frozenset[str] = frozenset({"US"})
-MASS_UNIT = "lb"
-LEAK_RATES = True  # duties follow the leak rate at each addition
 
 ODS_CLASSES = frozenset({"HCFC", "CFC"})  # class II / class I refrigerants
 
@@ -103,112 +75,45 @@ INSPECTION_QUARTERLY_LB = Decimal(500)
 INSPECTION_MONTHS = 12
 REPORT_PERCENT = Decimal(125)
 CHRONIC_PERCENT = REPORT_PERCENT  # share of full charge added in a year that calls for a report
+REPORT_DUE = (3, 1)  # 1 March of the next year
+
+# The leak-rate duties of 82.157(d), (e), (g), (j), configured by the constants above.
+REPAIRS = en.LeakRateRepair(APPLIES_FROM, REPAIR_DAYS, B_REPAIR, VERIFICATION_DAYS, B_INITIAL,
+                            B_FOLLOW_UP)
+INSPECTIONS = en.ExceedanceInspections(APPLIES_FROM, B_INSPECTION, INSPECTION_QUARTERLY_LB,
+                                       INSPECTION_MONTHS)
+REPORTS = en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE)
 
 CONSTANTS: tuple[Constant, ...] = (
     Constant("applies from", APPLIES_FROM, "date", B_APPLIES),
     Constant("full charge from", FULL_CHARGE_LB, "lb", B_APPLIES),
-    *(Constant(f"leak-rate threshold, {app.value}", pct, "%", B_THRESHOLDS)
-      for app, pct in THRESHOLD_PERCENT.items()),
-    Constant("leak-rate window", 365, "days", B_RATE),
+    *en.threshold_rows(B_THRESHOLDS),
+    Constant("leak-rate window", YEAR_DAYS, "days", B_RATE),
     Constant("rolling average restarts at a passing follow-up verification test", "yes", "",
              B_ROLLING_RESET),
-    Constant("repair within", REPAIR_DAYS, "days after the exceedance", B_REPAIR),
-    Constant("initial verification test by", REPAIR_DAYS, "days after the exceedance",
-             B_INITIAL),
-    Constant("follow-up verification test within", VERIFICATION_DAYS,
-             "days after the initial test", B_FOLLOW_UP),
-    Constant("quarterly inspections from (commercial / industrial process)",
-             INSPECTION_QUARTERLY_LB, "lb", B_INSPECTION),
-    Constant("inspections continue after the last exceedance", INSPECTION_MONTHS, "months",
-             B_INSPECTION),
-    Constant("chronic-leak report from", REPORT_PERCENT, "% of full charge per calendar year",
-             B_REPORT),
-    Constant("chronic-leak report due", "1 March of the next year", "", B_REPORT),
+    *REPAIRS.rows(), *INSPECTIONS.rows(), *REPORTS.rows(),
+)
+
+
+SCOPE = en.ChargeScope(
+    basis=B_APPLIES, gwp_basis=GWP_BASIS, charge_lb=FULL_CHARGE_LB, charge_strictly_over=False,
+    too_small="{d}, {lb} full charge: under 50 lb", ods_classes=ODS_CLASSES, ods=True,
+    ods_text="{d} is not ozone-depleting: out of scope of Subpart F",
 )
 
 
 def is_ods(reference: ReferenceLike, designation: str) -> bool:
     """True when any component is an HCFC or CFC (a class II or class I substance)."""
-    return bool(reference.chem_classes(designation) & ODS_CLASSES)
+    return SCOPE.is_ods(reference, designation)
 
 
-def covers(reference: ReferenceLike, state: SystemState) -> bool:
-    """True when an in-service state is an ODS appliance of 50 lb or more."""
-    designation = resolve(reference, state.refrigerant)
-    return (designation is not None and is_ods(reference, designation)
-            and at_least_lb(state.full_charge_ng, FULL_CHARGE_LB))
-
-
-def rule(reference: ReferenceLike) -> LeakRateRule:
-    """The leak-rate rule of this regime, bound to a reference."""
-    return LeakRateRule(
-        regime=REGIME,
-        applies_from=APPLIES_FROM,
-        in_scope=lambda state, _day: covers(reference, state),
-        threshold_basis=B_THRESHOLDS,
-        repair_days=REPAIR_DAYS,
-        repair_basis=B_REPAIR,
-        verification_days=VERIFICATION_DAYS,
-        initial_basis=B_INITIAL,
-        follow_up_basis=B_FOLLOW_UP,
-        inspection_basis=B_INSPECTION,
-        inspection_quarterly_lb=INSPECTION_QUARTERLY_LB,
-        inspection_months=INSPECTION_MONTHS,
-        report_percent=REPORT_PERCENT,
-        report_basis=B_REPORT,
-    )
-
-
-def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Tier:
-    """Whether 40 CFR 82 Subpart F covers the appliance on ``as_of``, and its threshold.
-
-    There is no periodic check without an exceedance, so ``interval_months`` is None.
-
-    Args:
-        history: the system and its events.
-        reference: the refrigerant tables.
-        as_of: the day.
-    """
-    state = state_of(events_until(history, as_of), as_of)
-    idle = tier_for_state(REGIME, state, B_APPLIES)
-    if idle is not None:
-        return idle
-    designation = resolve(reference, state.refrigerant)
-    if designation is None:
-        return Tier(REGIME, UNKNOWN_REFRIGERANT, None, B_APPLIES,
-                    f"refrigerant {state.refrigerant!r} is not in the reference data")
-    if not is_ods(reference, designation):
-        return Tier(REGIME, OUT_OF_SCOPE, None, B_APPLIES,
-                    f"{designation} is not ozone-depleting: out of scope of Subpart F")
-    charge = fmt_lb(state.full_charge_ng)
-    if not at_least_lb(state.full_charge_ng, FULL_CHARGE_LB):
-        return Tier(REGIME, BELOW_THRESHOLD, None, B_APPLIES,
-                    f"{designation}, {charge} full charge: under 50 lb")
-    threshold = THRESHOLD_PERCENT[history.system.application]
-    return Tier(REGIME, "≥ 50 lb ozone-depleting", None, B_THRESHOLDS,
-                f"{designation}, {charge} full charge; leak rate at each addition against "
-                f"{threshold} % ({history.system.application.value})")
-
-
-def compute_obligations(
-    histories: Sequence[SystemHistory], reference: ReferenceLike, as_of: date
-) -> tuple[list[Obligation], list[Finding]]:
-    """Duties opened by leak-rate exceedances under 40 CFR 82.157.
-
-    Args:
-        histories: systems (of one or several sites) with their events.
-        reference: the refrigerant tables.
-        as_of: the day of evaluation; later events are ignored.
-    Returns:
-        (obligations earliest due first, findings about the data).
-    """
-    bound = rule(reference)
-    obligations: list[Obligation] = []
-    findings: list[Finding] = []
-    for history in histories:
-        findings.extend(history_findings(history, reference, as_of))
-        obs, found = leak_rate_obligations(history, as_of, bound)
-        obligations.extend(obs)
-        findings.extend(found)
-    obligations.sort(key=obligation_sort_key)
-    return obligations, findings
+REGIME = Regime(
+    code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    scope_basis=B_APPLIES,
+    classify=en.LeakRateScope(SCOPE, "≥ 50 lb ozone-depleting", B_THRESHOLDS),
+    duties=(REPAIRS, INSPECTIONS, REPORTS),
+    # a US site: masses in pounds, leak-rate tables, the chronic-leak report share
+    countries=frozenset({"US"}), mass_unit="lb", leak_rates=True, chronic_percent=CHRONIC_PERCENT,
+)
+tier_of = REGIME.tier_of
+compute_obligations = REGIME.compute_obligations

@@ -21,58 +21,19 @@ inspections in 84.106(g), records 84.106(l) and reports 84.106(m); automatic lea
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.leak_rate import THRESHOLD_PERCENT
-from ledger.domain.records import (
-    Application,
-    Basis,
-    Confidence,
-    EventKind,
-    Finding,
-    Obligation,
-    ObligationKind,
-    SystemHistory,
-    SystemState,
-    Tier,
-)
-from ledger.domain.state import state_of
-from ledger.rules.common import (
-    BELOW_THRESHOLD,
-    OUT_OF_SCOPE,
-    UNKNOWN_REFRIGERANT,
-    Constant,
-    LeakRateRule,
-    ReferenceLike,
-    Timeline,
-    at_least_lb,
-    cause_on,
-    detection_triggers,
-    events_until,
-    first_event,
-    fmt_lb,
-    history_findings,
-    late_note,
-    leak_rate_obligations,
-    obligation_sort_key,
-    resolve,
-    retired_between,
-    status_of,
-    tier_for_state,
-)
-from ledger.rules.us_82f import is_ods
+from ledger.domain.records import Application, Basis, Confidence
+from ledger.rules import engines as en
+from ledger.rules import us_82f
+from ledger.rules.common import Constant
+from ledger.rules.regime import Regime
 
-REGIME = "us-84c"
+CODE = "us-84c"
 REGIME_VERSION = "us-84c-2"  # bump when a rule or constant here changes
 TITLE = "US 40 CFR Part 84 Subpart C: HFC refrigerants above GWP 53, appliances of 15 lb and up"
 GWP_BASIS = "ar4"
-
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-COUNTRIES: frozenset[str] = frozenset({"US"})
-MASS_UNIT = "lb"
-LEAK_RATES = True
 
 _SUBPART = "40 CFR 84 Subpart C (89 FR 82682)"
 _REPAIR = "40 CFR 84.106"  # leak repair; section per Hixson (EH&S consultancy), Apr 2025
@@ -113,32 +74,38 @@ GWP_ABOVE = Decimal(53)
 FULL_CHARGE_LB = Decimal(15)  # = 6 803 885 550 000 ng exactly
 REPAIR_DAYS = 30
 VERIFICATION_DAYS = 10
-INSPECTION_QUARTERLY_LB = Decimal(500)
-INSPECTION_MONTHS = 12
-REPORT_PERCENT = Decimal(125)
-CHRONIC_PERCENT = REPORT_PERCENT
+# Inspections and the chronic-leak report as in 40 CFR 82.157(g), (j): their Part 84 figures
+# were not found (B_INSPECTION, B_REPORT), so Part 82's are used.
+INSPECTION_QUARTERLY_LB = us_82f.INSPECTION_QUARTERLY_LB
+INSPECTION_MONTHS = us_82f.INSPECTION_MONTHS
+REPORT_PERCENT = CHRONIC_PERCENT = us_82f.REPORT_PERCENT
+REPORT_DUE = us_82f.REPORT_DUE
 DETECTION_LB = Decimal(1500)
 DETECTION_INSTALLED_FROM = date(2017, 1, 1)  # older systems need no automatic leak detection
 DETECTION_EXISTING_BY = date(2027, 1, 1)  # systems installed 2017-2025
 DETECTION_APPLICATIONS = frozenset({Application.COMMERCIAL_REFRIGERATION,
                                     Application.INDUSTRIAL_PROCESS})
 
+# Part 84 duties, as Part 82's leak-rate duties plus automatic leak detection (84.108).
+REPAIRS = en.LeakRateRepair(APPLIES_FROM, REPAIR_DAYS, B_REPAIR, VERIFICATION_DAYS, B_INITIAL,
+                            B_FOLLOW_UP)
+LEAK_DUTIES = (
+    REPAIRS,
+    en.ExceedanceInspections(APPLIES_FROM, B_INSPECTION, INSPECTION_QUARTERLY_LB, INSPECTION_MONTHS),
+    en.ChronicReport(APPLIES_FROM, REPORT_PERCENT, B_REPORT, REPORT_DUE),
+    # at installation from 2026, by 1 January 2027 for systems installed 2017-2025
+    en.DetectionSystem(B_DETECTION, f"fit automatic leak detection (≥ {DETECTION_LB} lb, "
+                       "installed {installed})", APPLIES_FROM, installed_from=DETECTION_INSTALLED_FROM,
+                       existing_by=DETECTION_EXISTING_BY),
+)
+
 CONSTANTS: tuple[Constant, ...] = (
     Constant("applies from", APPLIES_FROM, "date", B_SCOPE),
     Constant("GWP above (AR4)", GWP_ABOVE, "", B_SCOPE),
     Constant("GWP basis", GWP_BASIS, "", B_GWP),
     Constant("full charge from", FULL_CHARGE_LB, "lb", B_SCOPE),
-    *(Constant(f"leak-rate threshold, {app.value}", pct, "%", B_THRESHOLDS)
-      for app, pct in THRESHOLD_PERCENT.items()),
-    Constant("repair within", REPAIR_DAYS, "days after the exceedance", B_REPAIR),
-    Constant("follow-up verification test within", VERIFICATION_DAYS,
-             "days after the initial test", B_FOLLOW_UP),
-    Constant("quarterly inspections from (commercial / industrial process)",
-             INSPECTION_QUARTERLY_LB, "lb", B_INSPECTION),
-    Constant("inspections continue after the last exceedance", INSPECTION_MONTHS, "months",
-             B_INSPECTION),
-    Constant("chronic-leak report from", REPORT_PERCENT, "% of full charge per calendar year",
-             B_REPORT),
+    *en.threshold_rows(B_THRESHOLDS), *REPAIRS.rows(initial=False), *LEAK_DUTIES[1].rows(),
+    *LEAK_DUTIES[2].rows(due=False),
     Constant("automatic leak detection from", DETECTION_LB, "lb", B_DETECTION_SIZE),
     Constant("automatic leak detection: systems installed from", DETECTION_INSTALLED_FROM,
              "date", B_DETECTION),
@@ -147,138 +114,23 @@ CONSTANTS: tuple[Constant, ...] = (
 )
 
 
-def _excluded_reason(reference: ReferenceLike, history: SystemHistory,
-                     state: SystemState) -> tuple[str, str] | None:
-    """(band, reason) when the appliance is outside this subpart, else None."""
-    if history.system.residential:
-        return OUT_OF_SCOPE, "residential appliance: excluded from Subpart C"
-    designation = resolve(reference, state.refrigerant)
-    if designation is None:
-        return (UNKNOWN_REFRIGERANT,
-                f"refrigerant {state.refrigerant!r} is not in the reference data")
-    if is_ods(reference, designation):
-        return OUT_OF_SCOPE, f"{designation} is ozone-depleting: covered by 40 CFR 82, not here"
-    figure = reference.gwp(designation, GWP_BASIS)
-    gwp = Decimal(figure.value)
-    if gwp <= GWP_ABOVE:
-        unlisted = getattr(figure, "unlisted", ())
-        note = f" ({', '.join(unlisted)} not listed in AR4, counted as 0)" if unlisted else ""
-        return OUT_OF_SCOPE, f"{designation} has GWP {gwp.normalize():f}{note}, not above 53"
-    if not at_least_lb(state.full_charge_ng, FULL_CHARGE_LB):
-        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_ng)} full charge: "
-                                 "under 15 lb")
-    return None
+SCOPE = en.ChargeScope(
+    basis=B_SCOPE, gwp_basis=GWP_BASIS, residential="residential appliance: excluded from Subpart C",
+    ods_classes=us_82f.ODS_CLASSES, ods=False,
+    ods_text="{d} is ozone-depleting: covered by 40 CFR 82, not here",
+    gwp_from=GWP_ABOVE, gwp_strictly_above=True, low_gwp="{d} has GWP {gwp}{note}, not above 53",
+    charge_lb=FULL_CHARGE_LB, charge_strictly_over=False,
+    too_small="{d}, {lb} full charge: under 15 lb",
+)
 
-
-def covers(reference: ReferenceLike, history: SystemHistory, state: SystemState) -> bool:
-    """True when an in-service state is an appliance this subpart covers."""
-    return _excluded_reason(reference, history, state) is None
-
-
-def rule(reference: ReferenceLike, history: SystemHistory) -> LeakRateRule:
-    """The leak-rate rule of this regime, bound to a reference and one system."""
-    return LeakRateRule(
-        regime=REGIME,
-        applies_from=APPLIES_FROM,
-        in_scope=lambda state, _day: covers(reference, history, state),
-        threshold_basis=B_THRESHOLDS,
-        repair_days=REPAIR_DAYS,
-        repair_basis=B_REPAIR,
-        verification_days=VERIFICATION_DAYS,
-        initial_basis=B_INITIAL,
-        follow_up_basis=B_FOLLOW_UP,
-        inspection_basis=B_INSPECTION,
-        inspection_quarterly_lb=INSPECTION_QUARTERLY_LB,
-        inspection_months=INSPECTION_MONTHS,
-        report_percent=REPORT_PERCENT,
-        report_basis=B_REPORT,
-    )
-
-
-def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Tier:
-    """Whether 40 CFR 84 Subpart C covers the appliance on ``as_of``, and its threshold.
-
-    Args:
-        history: the system and its events.
-        reference: the refrigerant tables.
-        as_of: the day.
-    """
-    state = state_of(events_until(history, as_of), as_of)
-    idle = tier_for_state(REGIME, state, B_SCOPE)
-    if idle is not None:
-        return idle
-    excluded = _excluded_reason(reference, history, state)
-    if excluded is not None:
-        return Tier(REGIME, excluded[0], None, B_SCOPE, excluded[1])
-    designation = resolve(reference, state.refrigerant)
-    threshold = THRESHOLD_PERCENT[history.system.application]
-    when = "" if as_of >= APPLIES_FROM else "; duties start on 1 January 2026"
-    return Tier(REGIME, "≥ 15 lb, GWP > 53", None, B_THRESHOLDS,
-                f"{designation}, {fmt_lb(state.full_charge_ng)} full charge; leak rate at each "
-                f"addition against {threshold} % ({history.system.application.value}){when}")
-
-
-def _detection_obligations(history: SystemHistory, reference: ReferenceLike,
-                           as_of: date) -> list[Obligation]:
-    events = events_until(history, as_of)
-    installed = first_event(events, (EventKind.IN_SERVICE,))
-    if installed is None or installed.performed_on < DETECTION_INSTALLED_FROM:
-        return []
-    due_from = (APPLIES_FROM if installed.performed_on >= APPLIES_FROM
-                else DETECTION_EXISTING_BY)
-    timeline = Timeline(events)
-
-    def required_at(day: date) -> bool:
-        st = timeline.state(day)
-        return (st.in_service and history.system.application in DETECTION_APPLICATIONS
-                and at_least_lb(st.full_charge_ng, DETECTION_LB)
-                and covers(reference, history, st))
-
-    def present_at(day: date) -> bool:
-        return timeline.state(day).detection_system
-
-    ons = [e for e in events if e.kind is EventKind.DETECTION_ON]
-    out: list[Obligation] = []
-    for trigger, lapse in detection_triggers([*timeline.dates, APPLIES_FROM], required_at,
-                                             present_at):
-        if trigger > as_of:
-            continue
-        due = max(trigger, due_from)
-        if present_at(trigger):
-            met = [e for e in ons if e.performed_on <= trigger][-1]
-        else:
-            met = first_event(ons, (EventKind.DETECTION_ON,), on_or_after=trigger, before=lapse)
-        if met is None and ((lapse is not None and lapse <= due)
-                            or retired_between(events, trigger, due)):
-            continue
-        out.append(Obligation(
-            REGIME, ObligationKind.DETECTION_SYSTEM, due, B_DETECTION,
-            status_of(due, met, as_of), history.system.id, history.site.code, None,
-            cause_on(events, trigger), None if met is None else met.id,
-            f"fit automatic leak detection (≥ {DETECTION_LB} lb, installed "
-            f"{installed.performed_on.isoformat()}){late_note(due, met)}"))
-    return out
-
-
-def compute_obligations(
-    histories: Sequence[SystemHistory], reference: ReferenceLike, as_of: date
-) -> tuple[list[Obligation], list[Finding]]:
-    """Duties under 40 CFR 84 Subpart C: leak-rate exceedances and automatic leak detection.
-
-    Args:
-        histories: systems (of one or several sites) with their events.
-        reference: the refrigerant tables.
-        as_of: the day of evaluation; later events are ignored.
-    Returns:
-        (obligations earliest due first, findings about the data).
-    """
-    obligations: list[Obligation] = []
-    findings: list[Finding] = []
-    for history in histories:
-        findings.extend(history_findings(history, reference, as_of))
-        obs, found = leak_rate_obligations(history, as_of, rule(reference, history))
-        obligations.extend(obs)
-        obligations.extend(_detection_obligations(history, reference, as_of))
-        findings.extend(found)
-    obligations.sort(key=obligation_sort_key)
-    return obligations, findings
+REGIME = Regime(
+    code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    scope_basis=B_SCOPE, change_dates=(APPLIES_FROM,),
+    classify=en.LeakRateScope(SCOPE, "≥ 15 lb, GWP > 53", B_THRESHOLDS, APPLIES_FROM,
+                              "; duties start on 1 January 2026", DETECTION_LB,
+                              DETECTION_APPLICATIONS),
+    duties=LEAK_DUTIES,
+    chronic_percent=CHRONIC_PERCENT, leak_rates=True, mass_unit="lb", countries=frozenset({"US"}),
+)
+tier_of = REGIME.tier_of
+compute_obligations = REGIME.compute_obligations

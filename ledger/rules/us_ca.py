@@ -19,60 +19,18 @@ see docs/rules/us-ca.md for sources, marks and what is left out:
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from datetime import date, timedelta
+from datetime import date
 from decimal import Decimal
-from itertools import groupby
 
-from ledger.domain.records import (
-    Basis,
-    Confidence,
-    EventKind,
-    Finding,
-    Obligation,
-    ObligationKind,
-    SystemHistory,
-    SystemState,
-    Tier,
-)
-from ledger.domain.state import state_of
-from ledger.rules.common import (
-    BELOW_THRESHOLD,
-    MONTH,
-    NG_PER_LB,
-    OUT_OF_SCOPE,
-    QUARTER,
-    UNKNOWN_REFRIGERANT,
-    YEAR,
-    Cadence,
-    Constant,
-    ReferenceLike,
-    Timeline,
-    at_least_lb,
-    calendar_windows,
-    events_until,
-    first_event,
-    fmt_lb,
-    history_findings,
-    late_note,
-    leak_found_events,
-    obligation_sort_key,
-    resolve,
-    retired_between,
-    service_segments,
-    status_of,
-    tier_for_state,
-)
+from ledger.domain.records import Basis, Confidence
+from ledger.rules import engines as en
+from ledger.rules.common import MONTH, QUARTER, YEAR, Constant
+from ledger.rules.regime import Regime
 
-REGIME = "us-ca"
+CODE = "us-ca"
 REGIME_VERSION = "us-ca-2"  # bump when a rule or constant here changes
 TITLE = "California refrigerant management program (17 CCR 95380 ff.)"
 GWP_BASIS = "ar4"
-
-# Where the regime applies, and how a site under it is shown (`ledger.rules.site_profile`).
-SUBDIVISIONS: frozenset[str] = frozenset({"US-CA"})
-MASS_UNIT = "lb"
-LEAK_RATES = True  # shown with the federal regimes of a US site
 
 B_SCOPE = Basis("17 CCR 95380 ff.", Confidence.SECONDARY,
                 "systems with more than 50 lb of a refrigerant with GWP 150 or more (AR4)")
@@ -136,215 +94,41 @@ CONSTANTS: tuple[Constant, ...] = (
 )
 
 
-def _over_lb(mass_ng: int, pounds: Decimal) -> bool:
-    return Decimal(mass_ng) > pounds * NG_PER_LB
-
-
-def _excluded(reference: ReferenceLike, state: SystemState) -> tuple[str, str] | None:
-    designation = resolve(reference, state.refrigerant)
-    if designation is None:
-        return (UNKNOWN_REFRIGERANT,
-                f"refrigerant {state.refrigerant!r} is not in the reference data")
-    figure = reference.gwp(designation, GWP_BASIS)
-    gwp = Decimal(figure.value)
-    if gwp < GWP_FROM:
-        unlisted = getattr(figure, "unlisted", ())
-        note = f" ({', '.join(unlisted)} not listed in AR4, counted as 0)" if unlisted else ""
-        return OUT_OF_SCOPE, f"{designation} has GWP {gwp.normalize():f}{note}, under 150"
-    if not _over_lb(state.full_charge_ng, SYSTEM_OVER_LB):
-        return BELOW_THRESHOLD, (f"{designation}, {fmt_lb(state.full_charge_ng)}: not over 50 lb")
-    return None
+SCOPE = en.ChargeScope(
+    basis=B_SCOPE, gwp_basis=GWP_BASIS, gwp_from=GWP_FROM,
+    low_gwp="{d} has GWP {gwp}{note}, under 150",
+    charge_lb=SYSTEM_OVER_LB, charge_strictly_over=True, too_small="{d}, {lb}: not over 50 lb",
+)
+# 95385 by system size, largest first; automatic leak detection waives the two larger ones.
+INSPECTIONS = en.InspectionBands(SCOPE, (
+    en.InspectionBand(LARGE_LB, "large", "≥ 2 000 lb", MONTH,
+                      "monthly leak inspection (≥ 2 000 lb, no automatic leak detection; applies "
+                      "to a circuit inside an enclosed building)", B_INSPECTION_LARGE,
+                      waived_by_detection=B_ALD_WAIVER_LARGE),
+    en.InspectionBand(MEDIUM_LB, "medium", "200–2 000 lb", QUARTER,
+                      "quarterly leak inspection (200 to < 2 000 lb, no automatic leak detection)",
+                      B_INSPECTION_MEDIUM, waived_by_detection=B_ALD_WAIVER_MEDIUM),
+    en.InspectionBand(Decimal(0), "small", "50–200 lb", YEAR,
+                      "annual leak inspection (> 50 to < 200 lb)", B_INSPECTION_SMALL),
+), en.RepairTerms(REPAIR_DAYS, B_REPAIR, "", B_REPAIR))
 
 
 def size_of(full_charge_ng: int) -> str:
     """Size class of a covered system (or of a facility, by its largest system)."""
-    if at_least_lb(full_charge_ng, LARGE_LB):
-        return "large"
-    if at_least_lb(full_charge_ng, MEDIUM_LB):
-        return "medium"
-    return "small"
+    return INSPECTIONS.band_of(full_charge_ng).size
 
 
-def covered(reference: ReferenceLike, state: SystemState) -> bool:
-    """Whether the program covers a system in a state (in service, GWP ≥ 150, over 50 lb)."""
-    return state.in_service and _excluded(reference, state) is None
-
-
-def cadence_of(reference: ReferenceLike, state: SystemState) -> Cadence | None:
-    """The inspection cadence of a system in a state (95385).
-
-    None when the program does not cover the system, and when an automatic leak detection
-    system waives the inspections of a system of 200 lb or more (95385(a)(1)(B), (b)).
-    """
-    if not covered(reference, state):
-        return None
-    if at_least_lb(state.full_charge_ng, LARGE_LB):
-        if state.detection_system:
-            return None
-        return Cadence("monthly leak inspection (≥ 2 000 lb, no automatic leak detection; "
-                       "applies to a circuit inside an enclosed building)", B_INSPECTION_LARGE,
-                       period=MONTH)
-    if at_least_lb(state.full_charge_ng, MEDIUM_LB):
-        if state.detection_system:
-            return None
-        return Cadence("quarterly leak inspection (200 to < 2 000 lb, no automatic leak "
-                       "detection)", B_INSPECTION_MEDIUM, period=QUARTER)
-    return Cadence("annual leak inspection (> 50 to < 200 lb)", B_INSPECTION_SMALL, period=YEAR)
-
-
-_MONTHS = {MONTH: 1, QUARTER: 3, YEAR: 12}
-
-
-def tier_of(history: SystemHistory, reference: ReferenceLike, as_of: date) -> Tier:
-    """The system's size band and inspection interval on ``as_of`` (95385).
-
-    Args:
-        history: the system and its events.
-        reference: the refrigerant tables.
-        as_of: the day.
-    """
-    state = state_of(events_until(history, as_of), as_of)
-    idle = tier_for_state(REGIME, state, B_SCOPE)
-    if idle is not None:
-        return idle
-    excluded = _excluded(reference, state)
-    if excluded is not None:
-        return Tier(REGIME, excluded[0], None, B_SCOPE, excluded[1])
-    cadence = cadence_of(reference, state)
-    size = size_of(state.full_charge_ng)
-    band = {"large": "≥ 2 000 lb", "medium": "200–2 000 lb", "small": "50–200 lb"}[size]
-    designation = resolve(reference, state.refrigerant)
-    if cadence is None:
-        waiver = B_ALD_WAIVER_LARGE if size == "large" else B_ALD_WAIVER_MEDIUM
-        return Tier(REGIME, band, None, waiver,
-                    f"{designation}, {fmt_lb(state.full_charge_ng)}: automatic leak detection "
-                    f"used, periodic inspections waived ({waiver.citation})")
-    assert cadence.period is not None
-    return Tier(REGIME, band, _MONTHS[cadence.period], cadence.basis,
-                f"{designation}, {fmt_lb(state.full_charge_ng)}: {cadence.label}")
-
-
-def _system_obligations(history: SystemHistory, reference: ReferenceLike,
-                        as_of: date) -> list[Obligation]:
-    events = events_until(history, as_of)
-    if not any(e.kind is EventKind.IN_SERVICE for e in events):
-        return []
-    timeline = Timeline(events)
-    system_id, site_code = history.system.id, history.site.code
-    out: list[Obligation] = []
-
-    def cadence_at(day: date) -> Cadence | None:
-        return cadence_of(reference, timeline.state(day))
-
-    checks = [e for e in events if e.kind is EventKind.CHECK]
-    for seg in service_segments(events):
-        start = max(seg.start_on, PROGRAM_FROM)
-        if seg.end_on is not None and start >= seg.end_on:
-            continue
-        for w in calendar_windows(spans=[(start, None, seg.cause)], stop_on=seg.end_on,
-                                  cadence_at=cadence_at,
-                                  change_dates=[*timeline.dates, PROGRAM_FROM],
-                                  checks=checks, as_of=as_of):
-            detail = w.cadence.label
-            if w.missed:
-                detail += (f"; missed: no inspection from {w.opens_on.isoformat()} "
-                           f"to {w.due_on.isoformat()}")
-            out.append(Obligation(REGIME, ObligationKind.LEAK_INSPECTION, w.due_on, w.cadence.basis,
-                                  w.status, system_id, site_code, w.opens_on, w.cause,
-                                  None if w.met_by is None else w.met_by.id, detail))
-
-    for leak in leak_found_events(events):
-        if leak.performed_on < PROGRAM_FROM or not covered(reference, timeline.state(leak.performed_on)):
-            continue
-        due = leak.performed_on + timedelta(days=REPAIR_DAYS)
-        met = first_event(events, (EventKind.REPAIR,), on_or_after=leak.performed_on)
-        if met is None and retired_between(events, leak.performed_on, due):
-            continue
-        where = f" at {leak.location}" if leak.location else ""
-        out.append(Obligation(REGIME, ObligationKind.REPAIR, due, B_REPAIR,
-                              status_of(due, met, as_of), system_id, site_code, None, leak.id,
-                              None if met is None else met.id,
-                              f"repair the leak found{where} on {leak.performed_on.isoformat()} "
-                              f"within {REPAIR_DAYS} days{late_note(due, met)}"))
-    return out
-
-
-def _largest_in_year(histories: Sequence[SystemHistory], reference: ReferenceLike, year: int,
-                     as_of: date) -> tuple[int, str] | None:
-    """(charge, tag) of the largest covered system in service at some time in ``year``."""
-    start, end = date(year, 1, 1), min(date(year, 12, 31), as_of)
-    best: tuple[int, str] | None = None
-    for h in histories:
-        events = events_until(h, end)
-        st = state_of(events, end)
-        if not st.in_service:
-            if st.retired_on is None or st.retired_on <= start:
-                continue
-            st = state_of(events, st.retired_on - timedelta(days=1))
-            if not st.in_service:
-                continue
-        if _excluded(reference, st) is not None:
-            continue
-        if best is None or st.full_charge_ng > best[0]:
-            best = (st.full_charge_ng, h.system.tag)
-    return best
-
-
-def first_record_year(histories: Sequence[SystemHistory]) -> int | None:
-    """The first calendar year the ledger holds a record of these systems, placement included.
-
-    Every year from then on has its report (from the program's start). A later record never
-    removes an earlier year's duty: a system placed in service long before its records were
-    moved into the ledger has those years' reports listed until their filings are recorded.
-    """
-    years = [e.performed_on.year for h in histories for e in h.events]
-    return min(years) if years else None
-
-
-def _report_obligations(site_code: str, histories: Sequence[SystemHistory],
-                        reference: ReferenceLike, as_of: date) -> list[Obligation]:
-    # One report per calendar year of a large or medium facility, from the first year the
-    # ledger holds records of the site; an unfiled one stays overdue after the next falls due
-    # (as the 125 % report of 82.157(j) does). A filing recorded with `refledger report filed`
-    # meets it (services.obligations.apply_filings).
-    month, day = REPORT_DAY
-    last = as_of.year - 1 if as_of <= date(as_of.year, month, day) else as_of.year
-    first = first_record_year(histories)
-    if first is None:
-        return []
-    out: list[Obligation] = []
-    for year in range(max(first, PROGRAM_FROM.year), last + 1):
-        largest = _largest_in_year(histories, reference, year, as_of)
-        if largest is None or size_of(largest[0]) == "small":
-            continue
-        due = date(year + 1, month, day)
-        out.append(Obligation(REGIME, ObligationKind.REPORT, due, B_REPORT,
-                              status_of(due, None, as_of), None, site_code, None, None, None,
-                              f"annual report for {year} ({size_of(largest[0])} facility: largest "
-                              f"system {largest[1]}, {fmt_lb(largest[0])}); record the filing "
-                              "with `refledger report filed`"))
-    return out
-
-
-def compute_obligations(
-    histories: Sequence[SystemHistory], reference: ReferenceLike, as_of: date
-) -> tuple[list[Obligation], list[Finding]]:
-    """Leak inspections, repairs and facility reports under 17 CCR 95380 ff.
-
-    Args:
-        histories: systems (of one or several sites) with their events.
-        reference: the refrigerant tables.
-        as_of: the day of evaluation; later events are ignored.
-    Returns:
-        (obligations earliest due first, findings about the data).
-    """
-    obligations: list[Obligation] = []
-    findings: list[Finding] = []
-    for history in histories:
-        findings.extend(history_findings(history, reference, as_of))
-        obligations.extend(_system_obligations(history, reference, as_of))
-    by_site = sorted(histories, key=lambda h: h.site.code)
-    for code, group in groupby(by_site, key=lambda h: h.site.code):
-        obligations.extend(_report_obligations(code, list(group), reference, as_of))
-    obligations.sort(key=obligation_sort_key)
-    return obligations, findings
+REGIME = Regime(
+    code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    scope_basis=B_SCOPE, classify=INSPECTIONS, change_dates=(PROGRAM_FROM,),
+    duties=(
+        en.CalendarInspections(PROGRAM_FROM),
+        en.RepairDeadline("repair the leak found{where} on {on} {rule}", PROGRAM_FROM),
+    ),
+    site_duties=(en.AnnualReport(PROGRAM_FROM, REPORT_DAY, B_REPORT, INSPECTIONS,
+                                 frozenset({"large", "medium"})),),
+    # California only; its sites show pounds and the federal leak-rate tables
+    subdivisions=frozenset({"US-CA"}), mass_unit="lb", leak_rates=True,
+)
+tier_of = REGIME.tier_of
+compute_obligations = REGIME.compute_obligations
