@@ -112,6 +112,14 @@ def test_bands_by_full_charge():
     assert _tier("R-404A", lb(200)).basis.confidence is Confidence.MEMORY
 
 
+def test_a_band_before_its_start_date_has_no_interval_yet():
+    # from memory (145): 200 to < 1 500 lb inspections from 1 January 2026; 115(2) checked
+    early = _tier("R-404A", lb(300), as_of=D(2025, 6, 1))
+    assert (early.band, early.interval_months) == ("200–1 500 lb", None)
+    assert "from 2026-01-01" in early.reason
+    assert _tier("R-404A", lb(300), as_of=D(2026, 1, 1)).interval_months == 3
+
+
 def test_monthly_inspection_of_1500_lb_from_2024():
     # 173-443-145(1)(b)(i): "Beginning January 1, 2024, … Conduct a leak inspection of the
     # full system each month" (checked); calendar months are our reading
