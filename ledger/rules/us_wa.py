@@ -21,42 +21,46 @@ from ledger.rules.regime import Regime
 
 CODE, REGIME_VERSION, GWP_BASIS = "us-wa", "us-wa-1", "ar4"
 TITLE = "Washington refrigerant management program (chapter 173-443 WAC, Part II)"
-_W = "WAC 173-443-"
-
-B_SCOPE = Basis(f"{_W}020(4)", Confidence.CHECKED,
-                "\"a full charge of 50 or more pounds and that uses a refrigerant with a global "
-                "warming potential (GWP) of 150 or more\" (justia, read Dec 2026)")
-B_GWP = Basis(f"{_W}030", Confidence.MEMORY,
-              "definitions not read; AR4 as for us-ca and us-84c (Ecology's GHG rules use AR4: "
-              "\"the GWP of HFCs ranges from 12 to 14,800\", 2021 bill report)")
-B_LARGE = Basis(f"{_W}145(1)(b)(i)", Confidence.CHECKED,
-                "\"Beginning January 1, 2024, … Conduct a leak inspection of the full system each "
-                "month … unless an automatic leak detection system … is installed and "
-                "functioning correctly on the full system\" (calendar months are our reading)")
-B_MID = Basis(f"{_W}145", Confidence.MEMORY,
-              "200 to under 1 500 lb quarterly from 1 January 2026 unless automatic leak "
-              "detection is used; the date matches 115(2) (\"By March 15, 2026\")")
-B_SMALL = Basis(f"{_W}145", Confidence.MEMORY,
-                "50 to under 200 lb once a year from 1 January 2028; the date matches 115(3)")
-B_DETECTION = Basis(f"{_W}145(2)(a)(i)", Confidence.CHECKED,
-                    "refrigeration systems of 1 500 lb or more: \"By January 1, 2025, install an "
-                    "automatic leak detection system\"; later systems from placement (our "
-                    "reading); the replace-by-2027 plan of (2)(a)(ii) is not recorded")
-B_REPAIR = Basis(f"{_W}165", Confidence.CHECKED,
-                 "14 days from detection, as 195(1)(c) cites it: \"conditions allowing more than "
-                 "14 days to repair a refrigerant leak after detection under WAC 173-443-165 (3) "
-                 "or (4)\" (those longer periods are not modelled)")
-B_REGISTER = Basis(f"{_W}115", Confidence.CHECKED,
-                   "\"By March 15, 2024\" (1 500 lb or more), 2026 (200 to 1,499), 2028 (50 to "
-                   "199) for systems operating on 1 January of that year; later ones \"By March "
-                   "15th of the calendar year after the year in which the … system begins "
-                   "operations\"")
-B_REPORT = Basis(f"{_W}185", Confidence.MEMORY,
-                 "annual report by 15 March for the previous year, from the band's first year "
-                 "(2024, 2026, 2028); text not read")
-B_RECORDS = Basis(f"{_W}195(1)", Confidence.CHECKED,
-                  "\"Beginning January 1, 2024, … must maintain the following records for a "
-                  "minimum of five years\"")
+# One basis per section cited (the names in the order of the rows): the words read, or what
+# stands in for a text not read.
+CHECKED, MEMORY = Confidence.CHECKED, Confidence.MEMORY
+(B_SCOPE, B_GWP, B_LARGE, B_MID, B_SMALL, B_DETECTION, B_REPAIR, B_REGISTER, B_REPORT,
+ B_RECORDS) = (Basis(f"WAC 173-443-{section}", mark, note) for section, mark, note in (
+    ("020(4)", CHECKED,
+     "\"a full charge of 50 or more pounds and that uses a refrigerant with a global "
+     "warming potential (GWP) of 150 or more\" (justia, read Dec 2026)"),
+    ("030", MEMORY,
+     "definitions not read; AR4 as for us-ca and us-84c (Ecology's GHG rules use AR4: "
+     "\"the GWP of HFCs ranges from 12 to 14,800\", 2021 bill report)"),
+    ("145(1)(b)(i)", CHECKED,
+     "\"Beginning January 1, 2024, … Conduct a leak inspection of the full system each "
+     "month … unless an automatic leak detection system … is installed and "
+     "functioning correctly on the full system\" (calendar months are our reading)"),
+    ("145", MEMORY,
+     "200 to under 1 500 lb quarterly from 1 January 2026 unless automatic leak "
+     "detection is used; the date matches 115(2) (\"By March 15, 2026\")"),
+    ("145", MEMORY,
+     "50 to under 200 lb once a year from 1 January 2028; the date matches 115(3)"),
+    ("145(2)(a)(i)", CHECKED,
+     "refrigeration systems of 1 500 lb or more: \"By January 1, 2025, install an "
+     "automatic leak detection system\"; later systems from placement (our "
+     "reading); the replace-by-2027 plan of (2)(a)(ii) is not recorded"),
+    ("165", CHECKED,
+     "14 days from detection, as 195(1)(c) cites it: \"conditions allowing more than "
+     "14 days to repair a refrigerant leak after detection under WAC 173-443-165 (3) "
+     "or (4)\" (those longer periods are not modelled)"),
+    ("115", CHECKED,
+     "\"By March 15, 2024\" (1 500 lb or more), 2026 (200 to 1,499), 2028 (50 to "
+     "199) for systems operating on 1 January of that year; later ones \"By March "
+     "15th of the calendar year after the year in which the … system begins "
+     "operations\""),
+    ("185", MEMORY,
+     "annual report by 15 March for the previous year, from the band's first year "
+     "(2024, 2026, 2028); text not read"),
+    ("195(1)", CHECKED,
+     "\"Beginning January 1, 2024, … must maintain the following records for a "
+     "minimum of five years\""),
+))
 
 SYSTEM_FROM_LB, MID_LB, LARGE_LB = Decimal(50), Decimal(200), Decimal(1500)  # all "or more"
 GWP_FROM = Decimal(150)  # "or more"
