@@ -29,7 +29,7 @@ from ledger.domain.records import (
     Severity,
     SystemHistory,
 )
-from ledger.rules import eu, gb, us_82f, us_84c, us_ca
+from ledger.rules import eu, gb, us_82f, us_84c, us_ca, us_wa
 from ledger.rules.common import (
     OUT_OF_SCOPE,
     ReferenceLike,
@@ -41,7 +41,8 @@ from ledger.rules.regime import Regime
 __all__ = ["EU_MEMBER_STATES", "REGIMES", "SiteProfile", "compute_all", "default_regimes", "site_profile"]
 
 # Every regime, in the order `default_regimes` gives them: a new regime adds its REGIME here.
-_REGISTRY: tuple[Regime, ...] = (eu.REGIME, gb.REGIME, us_82f.REGIME, us_84c.REGIME, us_ca.REGIME)
+_REGISTRY: tuple[Regime, ...] = (eu.REGIME, gb.REGIME, us_82f.REGIME, us_84c.REGIME, us_ca.REGIME,
+                                 us_wa.REGIME)
 
 REGIMES: Mapping[RegimeCode, Regime] = MappingProxyType({r.code: r for r in _REGISTRY})
 
@@ -109,8 +110,8 @@ def default_regimes(country: str, subdivision: str | None = None) -> tuple[Regim
     Returns:
         ("eu",) for EU member states; ("gb",) for the United Kingdom, except ("eu",) for
         Northern Ireland ("GB-NIR"), where the EU F-gas Regulation applies under the Windsor
-        Framework (from memory); ("us-82f", "us-84c") for the US, plus "us-ca" in California;
-        () anywhere else.
+        Framework (from memory); ("us-82f", "us-84c") for the US, plus "us-ca" in California
+        and "us-wa" in Washington; () anywhere else.
     """
     country = country.strip().upper()
     sub = (subdivision or "").strip().upper()

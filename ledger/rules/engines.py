@@ -86,7 +86,8 @@ from ledger.rules.regime import PERIOD_MONTHS, Assessment, Job, Regime
 __all__ = [
     "AnnualReport", "BandTest", "BandedChecks", "CalendarInspections", "ChargeScope",
     "ChronicReport", "DetectionSystem", "ExceedanceInspections", "FollowUpWindow",
-    "InspectionBand", "InspectionBands", "LeakRateRepair", "LeakRateScope", "PeriodicCheck",
+    "InspectionBand", "InspectionBands", "LeakRateRepair", "LeakRateScope", "OneTimeFiling",
+    "PeriodicCheck",
     "RepairDeadline", "RepairTerms", "annex_co2e_t", "fraction_kg", "mixture_co2e_t",
     "unknown_refrigerant",
 ]
@@ -346,6 +347,8 @@ class InspectionBand:
     printed: str  # the row `refledger rules` prints: "inspection, <printed>"
     waived_by_detection: Basis | None = None  # automatic leak detection waives it
     printed_waived: str = ""  # the row of the waiver, if any
+    applies_from: date | None = None  # the band's duties start on this day (a phase-in by size;
+    # the regime lists it in ``change_dates``): no inspection before it, no report for earlier years
 
     def rows(self) -> tuple[Constant, ...]:
         """The constants printed for this band: its period in months, and its waiver."""
@@ -364,6 +367,9 @@ class InspectionBands:
     scope: ChargeScope
     bands: tuple[InspectionBand, ...]  # largest first; the last one starts at 0 lb
     repair: RepairTerms
+    pending: str = "; from {on}"  # said of a band whose ``applies_from`` has not come
+    detection_lb: Decimal | None = None  # automatic leak detection required from this charge...
+    detection_applications: frozenset[Application] = frozenset()  # ...for these applications
 
     def rows(self) -> tuple[Constant, ...]:
         """The constants printed for the bands, largest first."""
@@ -381,11 +387,16 @@ class InspectionBands:
         b = self.band_of(state.full_charge_ng)
         said = f"{resolve(reference, state.refrigerant)}, {fmt_lb(state.full_charge_ng)}: "
         duty: dict[str, Any] = {"repair_days": self.repair.days, "repair_basis": self.repair.basis,
-                "repair_rule": self.repair.rule}
+                "repair_rule": self.repair.rule, "detection_required": (
+                    self.detection_lb is not None and system.application in self.detection_applications
+                    and at_least_lb(state.full_charge_ng, self.detection_lb))}
         if b.waived_by_detection is not None and state.detection_system:
             return Assessment(b.band, f"{said}automatic leak detection used, periodic "
                               f"inspections waived ({b.waived_by_detection.citation})",
                               b.waived_by_detection, None, **duty)
+        if b.applies_from is not None and day < b.applies_from:
+            return Assessment(b.band, said + b.label + self.pending.format(on=b.applies_from.isoformat()),
+                              b.basis, None, **duty)
         cadence = Cadence(b.label, b.basis, period=b.period)
         return Assessment(b.band, said + b.label, b.basis, cadence, **duty)
 
@@ -440,7 +451,7 @@ class CalendarInspections:
             if seg.end_on is not None and start >= seg.end_on:
                 continue
             _inspections(job, [(start, None, seg.cause)], seg.end_on, _cadence_at(job), checks,
-                         [*job.booked.dates, self.applies_from])
+                         [*job.changes, self.applies_from])
 
 
 def _inspections(job: Job, spans: list[tuple[date, date | None, EventId | None]],
@@ -587,6 +598,34 @@ class DetectionSystem:
                                   as_of=job.as_of, emit_from=job.regime.emit_from):
             job.add(ObligationKind.DETECTION_SYSTEM_CHECK, w.due_on, w.cadence.basis, w.met_by,
                     w.cause, _window_detail(w, "check"))
+
+
+@dataclass(frozen=True)
+class OneTimeFiling:
+    """One filing per system (a registration), due on (month, day) of the year its band's
+    duties start (`InspectionBand.applies_from`, else ``applies_from``) when the system was
+    covered by then, else of the year after the one it became covered in.
+
+    ``detail`` takes {band} and {on} (the first day the regime covers the system). A filing
+    recorded with `refledger report filed` for the year before the due date meets it.
+    """
+
+    applies_from: date
+    due: tuple[int, int]  # (month, day)
+    basis: Basis
+    bands: InspectionBands
+    detail: str
+
+    def run(self, job: Job) -> None:
+        begun = next((d for d in job.booked.dates
+                      if (a := job.assessment(d)) is not None and a.in_scope), None)
+        if begun is None:
+            return
+        band = self.bands.band_of(job.state(begun).full_charge_ng)
+        start = band.applies_from or self.applies_from
+        year = start.year if begun <= start else begun.year + 1
+        job.add(ObligationKind.REPORT, date(year, *self.due), self.basis, None,
+                cause_on(job.events, begun), self.detail.format(band=band.band, on=begun.isoformat()))
 
 
 def banded_duties(*, follow_up_earliest_days: int, follow_up_months: int, detection_basis: Basis,
@@ -842,8 +881,10 @@ class AnnualReport:
             largest = self._largest_in_year(regime, booked, reference, year, as_of)
             if largest is None:
                 continue
-            size = self.bands.band_of(largest[0]).size
-            if size not in self.sizes:
+            band = self.bands.band_of(largest[0])
+            size = band.size
+            if size not in self.sizes or (band.applies_from is not None
+                                          and year < band.applies_from.year):
                 continue
             due = date(year + 1, month, day)
             out.append(Obligation(regime.code, ObligationKind.REPORT, due, self.basis,

@@ -141,7 +141,7 @@ def test_calendar_windows_by_quarter():
 
 
 def test_regimes_are_read_only_and_complete():
-    assert set(REGIMES) == {"eu", "gb", "us-82f", "us-84c", "us-ca"}
+    assert set(REGIMES) == {"eu", "gb", "us-82f", "us-84c", "us-ca", "us-wa"}
     with pytest.raises(TypeError):
         REGIMES["xx"] = REGIMES["eu"]  # type: ignore[index]
     for code, module in REGIMES.items():
@@ -163,6 +163,7 @@ def test_regimes_are_read_only_and_complete():
         ("US", None, ("us-82f", "us-84c")),
         ("US", "US-TX", ("us-82f", "us-84c")),
         ("US", "US-CA", ("us-82f", "us-84c", "us-ca")),  # 17 CCR 95380 ff. in California
+        ("US", "US-WA", ("us-82f", "us-84c", "us-wa")),  # chapter 173-443 WAC in Washington
         ("CH", None, ()),  # not an EU member state (public EU list)
         ("JP", None, ()),
     ],

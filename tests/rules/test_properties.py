@@ -38,6 +38,7 @@ SITES = {
     "us-82f": site("US1", "US", ("us-82f", "us-84c")),
     "us-84c": site("US2", "US", ("us-82f", "us-84c"), method="rolling"),
     "us-ca": site("CA1", "US", ("us-82f", "us-84c", "us-ca"), subdivision="US-CA"),
+    "us-wa": site("WA1", "US", ("us-82f", "us-84c", "us-wa"), subdivision="US-WA"),
 }
 REFRIGERANTS = {
     "eu": ("TEST-1000", "R-455A", "R-404A", "R-744"),
@@ -45,6 +46,7 @@ REFRIGERANTS = {
     "us-82f": ("R-22", "TEST-HCFC-MIX"),
     "us-84c": ("R-404A", "R-134a"),
     "us-ca": ("R-404A", "TEST-150"),
+    "us-wa": ("R-404A", "TEST-150", "R-455A"),
 }
 CHARGES = {
     "eu": (kg(3), kg(20), kg(60), kg(150), kg(520)),
@@ -52,9 +54,11 @@ CHARGES = {
     "us-82f": (lb(40), lb(60), lb(300), lb(700)),
     "us-84c": (lb(20), lb(300), lb(1600)),
     "us-ca": (lb(60), lb(300), lb(2500)),
+    "us-wa": (lb(50), lb(300), lb(1600)),
 }
 BASES = {"eu": D(2023, 9, 1), "gb": D(2014, 6, 1), "us-82f": D(2020, 1, 1),
-         "us-84c": D(2025, 6, 1), "us-ca": D(2024, 11, 1)}
+         "us-84c": D(2025, 6, 1), "us-ca": D(2024, 11, 1),
+         "us-wa": D(2023, 10, 1)}
 PERIODIC = (ObligationKind.LEAK_CHECK, ObligationKind.LEAK_INSPECTION)
 
 
