@@ -66,6 +66,7 @@ class SiteProfile:
     chronic_percent: Decimal | None  # share of full charge added in a year that calls for a report
     record_items: tuple[tuple[str, str, str], ...]  # (item, what the text asks, where shown)
     record_title: str | None  # e.g. "EU 517/2014 Art 6"; None when no record map applies
+    certificate_scopes: frozenset[str] = frozenset()  # certificate scopes valid at the site
 
 
 FALLBACK_BASIS = "eu"  # GWP basis of a site without a known regime
@@ -94,6 +95,7 @@ def site_profile(regimes: Sequence[RegimeCode]) -> SiteProfile:
         chronic_percent=chronic,
         record_items=() if recorded is None else recorded.record_items,
         record_title=None if recorded is None else recorded.record_title,
+        certificate_scopes=frozenset().union(*(r.certificate_scopes for r in values)),
     )
 
 

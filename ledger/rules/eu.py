@@ -205,7 +205,7 @@ REGIME = Regime(
                             follow_up_months=FOLLOW_UP_MONTHS, detection_basis=B_DETECTION,
                             detection_from=APPLIES_FROM, detection_check_basis=B_DETECTION_CHECK,
                             detection_check_months=DETECTION_CHECK_MONTHS),
-    emit_from=APPLIES_FROM, change_dates=(APPLIES_FROM,), certified_only=True,
+    emit_from=APPLIES_FROM, change_dates=(APPLIES_FROM,), certified_only=True, certificate_scopes=frozenset({"eu"}),
     countries=COUNTRIES, subdivisions=SUBDIVISIONS, record_title=RECORD_TITLE,
     record_items=RECORD_ITEMS,
 )

@@ -145,7 +145,7 @@ REGIME = Regime(
                             detection_from=APPLIES_FROM, detection_check_months=DETECTION_CHECK_MONTHS,
                             follow_up_months=FOLLOW_UP_MONTHS,
                             follow_up_earliest_days=FOLLOW_UP_EARLIEST_DAYS),
-    certified_only=True, countries=frozenset({"GB"}),
+    certified_only=True, certificate_scopes=frozenset({"gb"}), countries=frozenset({"GB"}),
     except_subdivisions=frozenset({"GB-NIR"}),  # Northern Ireland: regime eu
     record_title=eu.RECORD_TITLE, record_items=eu.RECORD_ITEMS,  # 517/2014 Art 6, as retained
 )

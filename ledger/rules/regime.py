@@ -121,6 +121,7 @@ class Regime:
     record_title: str | None = None
     record_items: tuple[tuple[str, str, str], ...] = ()  # (item, what is asked, where shown)
     certified_only: bool = False  # only checks by a certified person meet a check duty
+    certificate_scopes: frozenset[str] = frozenset()  # certificate scopes valid at its sites
 
     # The names the regime modules offered before regimes were values (services read them).
     @property

@@ -109,6 +109,7 @@ def is_ods(reference: ReferenceLike, designation: str) -> bool:
 
 REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    certificate_scopes=frozenset({"us-608"}),  # Clean Air Act section 608 (40 CFR 82.161)
     scope_basis=B_APPLIES,
     classify=en.LeakRateScope(SCOPE, "≥ 50 lb ozone-depleting", B_THRESHOLDS),
     duties=(REPAIRS, INSPECTIONS, REPORTS),

@@ -125,6 +125,7 @@ SCOPE = en.ChargeScope(
 
 REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    certificate_scopes=frozenset({"us-608"}),  # Clean Air Act section 608 (40 CFR 82.161)
     scope_basis=B_SCOPE, change_dates=(APPLIES_FROM,),
     classify=en.LeakRateScope(SCOPE, "≥ 15 lb, GWP > 53", B_THRESHOLDS, APPLIES_FROM,
                               "; duties start on 1 January 2026", DETECTION_LB,

@@ -117,6 +117,7 @@ def size_of(full_charge_ng: int) -> str:
 
 REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    certificate_scopes=frozenset({"us-608"}),  # Clean Air Act section 608 (40 CFR 82.161)
     scope_basis=B_SCOPE, classify=INSPECTIONS, change_dates=(PROGRAM_FROM,),
     duties=(
         en.CalendarInspections(PROGRAM_FROM),

@@ -107,6 +107,7 @@ CONSTANTS: tuple[Constant, ...] = (
 
 REGIME = Regime(
     code=CODE, version=REGIME_VERSION, title=TITLE, gwp_basis=GWP_BASIS, constants=CONSTANTS,
+    certificate_scopes=frozenset({"us-608"}),  # 205(1): "certificate issued under 40 C.F.R. § 82.161"
     scope_basis=B_SCOPE, classify=INSPECTIONS,
     change_dates=(LARGE_FROM, DETECTION_BY, MID_FROM, SMALL_FROM),
     duties=(

@@ -37,6 +37,7 @@ from ledger.domain.state import state_of
 from ledger.errors import InputError, LedgerError
 from ledger.inputs import COLUMNS, ORDER
 from ledger.reference import load_reference
+from ledger.rules import site_profile
 from ledger.store import chain
 from ledger.store import repository as repo
 from ledger.store.db import Database
@@ -567,7 +568,8 @@ class _Job:
                 },
             )
             facts = None if in_service is None else WorkFacts(
-                EventKind.IN_SERVICE, in_service, sites[site_code].regimes, charge or 0, flags["hermetic"], refrigerant)
+                EventKind.IN_SERVICE, in_service, sites[site_code].regimes, charge or 0, flags["hermetic"], refrigerant,
+                site_profile(sites[site_code].regimes).certificate_scopes)
             tech_id, cert_id, _ = self._tech_ids(techs, tech_name, facts)
             common = {
                 "system_id": system_id,
@@ -745,7 +747,7 @@ class _Job:
                 placed[sid] = placed_on(folds[sid])  # placing in service is never imported nor voided
             tech = techs[draft.technician][0] if draft.technician else None
             facts = WorkFacts(kind, on, sites[site_code].regimes, state.full_charge_ng, hermetic.get(sid, False),
-                              state.refrigerant)
+                              state.refrigerant, site_profile(sites[site_code].regimes).certificate_scopes)
             findings = validate_event(
                 draft,
                 state,

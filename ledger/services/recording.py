@@ -177,7 +177,10 @@ def add_system(
         today = site_today(the_site.timezone)
         if in_service_on > today:
             raise InputError("--in-service", in_service_on.isoformat(), f"is in the future (today is {today})")
-        facts = WorkFacts(EventKind.IN_SERVICE, in_service_on, the_site.regimes, charge_ng, hermetic, ref.designation)
+        from ledger.rules import site_profile
+
+        facts = WorkFacts(EventKind.IN_SERVICE, in_service_on, the_site.regimes, charge_ng, hermetic, ref.designation,
+                          site_profile(the_site.regimes).certificate_scopes)
         tech_id, cert_id, warnings = _technician_for(technician, facts, conn=conn)
         system_id = repo.insert_system(
             conn=conn,
@@ -525,7 +528,10 @@ def servicing_warnings(reference: Any, site: Site, system: System, state: System
 def work_facts(draft: EventDraft, state: SystemState, site: Site, system: System) -> WorkFacts:
     """What a certificate is judged against for this draft on this system (see domain.certificates)."""
     charge = draft.charge_ng if draft.kind is EventKind.IN_SERVICE and draft.charge_ng else state.full_charge_ng
-    return WorkFacts(draft.kind, draft.performed_on, site.regimes, charge or 0, system.hermetic, state.refrigerant)
+    from ledger.rules import site_profile
+
+    return WorkFacts(draft.kind, draft.performed_on, site.regimes, charge or 0, system.hermetic, state.refrigerant,
+                     site_profile(site.regimes).certificate_scopes)
 
 
 def _leak_rate_at(conn, site: Site, sys_: System, draft: EventDraft, event_id: int) -> dict[str, Any] | None:

@@ -296,3 +296,19 @@ def test_constants_name_their_sections():
     assert marks["records kept"] is Confidence.CHECKED
     assert marks["annual report due"] is Confidence.MEMORY
     assert us_wa.REGIME_VERSION == "us-wa-1"
+
+
+def test_2026_12_washington_sites_accept_section_608_certificates() -> None:
+    # WAC 173-443-205(1): the person "must hold a current, valid, and applicable certificate
+    # issued under 40 C.F.R. § 82.161" (app.leg.wa.gov, read December 2026). The regime names
+    # the certificates valid at its sites itself, so no code outside ledger/rules lists it.
+    from ledger.domain.certificates import SCOPE_REGIMES, Scope
+    from ledger.rules import REGIMES, default_regimes, site_profile
+
+    profile = site_profile(default_regimes("US", "US-WA"))
+    assert profile.certificate_scopes == frozenset({"us-608"})
+    # The regimes' declarations agree with the table kept for callers that give codes only.
+    for scope, codes in SCOPE_REGIMES.items():
+        for code in codes:
+            assert scope.value in REGIMES[code].certificate_scopes
+    assert Scope.US_608.value in REGIMES["us-wa"].certificate_scopes
