@@ -66,7 +66,7 @@ class LazyCommands(MutableMapping[str, Any]):
 
 def command_name(info: CommandInfo) -> str:
     """The name Typer gives a registered command."""
-    return info.name or typer.main.get_command_name(info.callback.__name__)  # type: ignore[union-attr]
+    return info.name or typer.main.get_command_name(info.callback.__name__)  # type: ignore[union-attr]  # registered: has a callback
 
 
 @dataclass(frozen=True)
@@ -171,6 +171,6 @@ def use_plain_coercion() -> None:
             )
         return self._runtime_param
 
-    get_runtime_param._refledger_plain = True  # type: ignore[attr-defined]
+    get_runtime_param._refledger_plain = True  # type: ignore[attr-defined]  # our marker on a function object
     get_runtime_param.__doc__ = original.__doc__
-    cls.get_runtime_param = get_runtime_param  # type: ignore[union-attr]
+    cls.get_runtime_param = get_runtime_param  # type: ignore[union-attr]  # Typer's class, patched on purpose

@@ -263,12 +263,12 @@ def verify(
         for row in conn.execute(stmt.execution_options(yield_per=STREAM_ROWS)).mappings():
             key = (row["site_code"], row["tag"])
             if key != current:
-                if rows:
-                    check(current, rows)  # type: ignore[arg-type]
+                if rows and current is not None:  # rows are only ever held under a key
+                    check(current, rows)
                 current, rows = key, []
             rows.append(dict(row))
-        if rows:
-            check(current, rows)  # type: ignore[arg-type]
+        if rows and current is not None:
+            check(current, rows)
         if made_at is not None:
             for name, entry in sorted(chains.items()):
                 in_scope = system_ids is None and (site_code is None or name.startswith(f"{site_code}/"))

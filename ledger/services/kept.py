@@ -45,7 +45,7 @@ import pickle
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, fields
 from datetime import UTC, date, datetime
-from typing import Any, TypeVar
+from typing import Any, Protocol, TypeVar
 
 from ledger.domain.records import (
     Basis,
@@ -171,7 +171,7 @@ _ANNUAL_FIELDS = ("site_id", "year", "basis", "as_of", "rules_key", "revision", 
 
 def annual_content(row: Any) -> str:
     """The digest kept with a kept annual part: its key, heads and body."""
-    get = row.get if isinstance(row, dict) else lambda k: getattr(row, k)
+    get: Callable[[str], Any] = row.get if isinstance(row, dict) else lambda k: getattr(row, k)
     head = "|".join(str(get(k)) for k in _ANNUAL_FIELDS)
     return hashlib.sha256(head.encode() + b"\0" + bytes(get("body"))).hexdigest()
 
@@ -379,7 +379,14 @@ def pack(part: Any) -> bytes:
     return pickle.dumps(tuple(getattr(part, f.name) for f in fields(part)), protocol=pickle.HIGHEST_PROTOCOL)
 
 
-P = TypeVar("P")
+class _SitePart(Protocol):
+    """A kept part: a dataclass of plain values that names its site."""
+
+    @property
+    def site_code(self) -> str: ...
+
+
+P = TypeVar("P", bound=_SitePart)
 
 
 def unpack(body: bytes, part_type: Callable[..., P]) -> P | None:
@@ -445,11 +452,12 @@ def annual_parts(
         now = datetime.now(UTC)
         rows = []
         for part in computed:
-            sid = ids.get(part.site_code)  # type: ignore[attr-defined]
-            if sid is None:
+            site_id = ids.get(part.site_code)
+            if site_id is None:
                 continue
-            row = {"site_id": sid, "year": year, "basis": chosen, "as_of": as_of, "rules_key": key,
-                   "revision": revisions[sid][1], "computed_at": now, "body": pack(part), "inputs": heads[sid]}
+            row = {"site_id": site_id, "year": year, "basis": chosen, "as_of": as_of, "rules_key": key,
+                   "revision": revisions[site_id][1], "computed_at": now, "body": pack(part),
+                   "inputs": heads[site_id]}
             row["content"] = annual_content(row)
             rows.append(row)
         keep_if_free(db, lambda conn: repo.replace_kept_annual(conn=conn, rows=rows))

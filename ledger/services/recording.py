@@ -490,7 +490,7 @@ def record_visit(
         try:
             prepared.append(_prepared(d, reference))
         except LedgerError as exc:
-            exc.visit_part = d.kind  # type: ignore[attr-defined]
+            exc.visit_part = d.kind  # type: ignore[attr-defined]  # read back by the web form, on this one error
             raise
     logged: list[Logged] = []
     with db.write() as conn:

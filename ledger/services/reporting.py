@@ -15,7 +15,7 @@ from collections.abc import Iterable, Mapping, Sequence, Set
 from dataclasses import dataclass, field, fields
 from datetime import UTC, date, datetime
 from decimal import ROUND_HALF_UP, Context, Decimal, localcontext
-from typing import Any
+from typing import Any, overload
 
 from ledger import __version__
 from ledger.domain import emissions as em
@@ -77,6 +77,10 @@ def _kg(ng: int | None) -> Decimal | None:
     return None if ng is None else em.kg(ng)
 
 
+@overload
+def rounded(value: Decimal, places: int) -> Decimal: ...
+@overload
+def rounded(value: Decimal | None, places: int) -> Decimal | None: ...
 def rounded(value: Decimal | None, places: int) -> Decimal | None:
     """Half-up rounding to ``places`` decimals (None stays None)."""
     if value is None:
@@ -136,7 +140,7 @@ def site_basis(site: Site) -> str:
 def charge_co2e_t(charge_ng: int, gwp: Decimal) -> Decimal:
     """t CO2e of a full charge: kg x GWP / 1000, rounded half-up to CO2E_PLACES (the one
     rounding every view of a system's charge uses; displays show it with ``fmt(.., TONNES)``)."""
-    return rounded(em.co2e_t(em.kg(charge_ng), gwp), CO2E_PLACES)  # type: ignore[return-value]
+    return rounded(em.co2e_t(em.kg(charge_ng), gwp), CO2E_PLACES)
 
 
 def check_basis(basis: str) -> str:
@@ -618,7 +622,7 @@ def method_json(m: em.MethodResult) -> dict[str, Any]:
     The total in kg is the sum of the rounded refrigerant rows it counts (those of 0 or more),
     so the printed rows add up to the printed total (rounding the exact total could differ from
     that sum by a milligram)."""
-    parts = [
+    parts: list[dict[str, Any]] = [
         {
             "refrigerant": p.refrigerant,
             "category": p.category,

@@ -106,7 +106,7 @@ def drafts_from(form: VisitForm, *, unit: str, technician: str | None, recorded_
         form.errors["visit"] = "visit: fill in at least one part (leak check, repair, top-up or follow-up)"
     if form.errors or on is None:
         return []
-    return [EventDraft(kind=kind, performed_on=on, **common, **fields) for kind, fields in parts]  # type: ignore[arg-type]
+    return [EventDraft(kind=kind, performed_on=on, **common, **fields) for kind, fields in parts]  # type: ignore[arg-type]  # pydantic checks each field's type
 
 
 def place_error(form: VisitForm, exc: LedgerError, kind: EventKind | None) -> None:

@@ -6,6 +6,7 @@ dependency on every route; every write also checks the form's CSRF token.
 from __future__ import annotations
 
 import tempfile
+from collections.abc import Callable
 from datetime import date
 from decimal import ROUND_HALF_UP, Decimal
 from pathlib import Path
@@ -181,17 +182,18 @@ def _file(data: Any, fmt: str, stem: str, what: str) -> Response:
     """Write a report into a temporary folder and send it."""
     folder = Path(tempfile.mkdtemp(prefix="refledger-web-"))
     path = folder / f"{stem}.{fmt}"
+    writer: Callable[[Path, Any], Path]
     if what == "logbook":
         if fmt == "pdf":
             from ledger.exports.pdf import write_logbook_pdf as writer
         else:
             from ledger.exports.xlsx import write_logbook_xlsx as writer
     elif fmt == "pdf":
-        from ledger.exports.pdf import write_annual_pdf as writer  # type: ignore[assignment]
+        from ledger.exports.pdf import write_annual_pdf as writer
     elif fmt == "xlsx":
-        from ledger.exports.xlsx import write_annual_xlsx as writer  # type: ignore[assignment]
+        from ledger.exports.xlsx import write_annual_xlsx as writer
     else:
-        from ledger.exports.csv import write_annual_csv as writer  # type: ignore[assignment]
+        from ledger.exports.csv import write_annual_csv as writer
     writer(path, data)
     media = {"pdf": "application/pdf", "csv": "text/csv",
              "xlsx": "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"}[fmt]
