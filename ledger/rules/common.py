@@ -27,6 +27,7 @@ from ledger.domain.dates import add_months, quarter_end
 from ledger.domain.leak_rate import NG_PER_KG, NG_PER_LB
 from ledger.domain.records import (
     Basis,
+    Confidence,
     Event,
     EventId,
     EventKind,
@@ -82,6 +83,9 @@ __all__ = [
     "system_source",
     "tier_for_state",
 ]
+
+# The confidence marks, short, for the tables of bases the regime modules declare.
+CHECKED, SECONDARY, MEMORY, POLICY = Confidence.CHECKED, Confidence.SECONDARY, Confidence.MEMORY, Confidence.POLICY
 
 # Tier bands that are not a band of any rule; `compute_all` uses OUT_OF_SCOPE to tell that no
 # regime of a site covers a system.

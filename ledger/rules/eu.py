@@ -25,9 +25,9 @@ from __future__ import annotations
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.records import Basis, Confidence
+from ledger.domain.records import Basis
 from ledger.rules import engines as en
-from ledger.rules.common import Constant, ReferenceLike, fmt_kg, fmt_t
+from ledger.rules.common import CHECKED, MEMORY, POLICY, SECONDARY, Constant, ReferenceLike, fmt_kg, fmt_t
 from ledger.rules.regime import Regime
 
 CODE = "eu"
@@ -71,36 +71,40 @@ RECORD_ITEMS: tuple[tuple[str, str, str], ...] = (
 
 _REG = "Reg. (EU) 2024/573"
 
-B_APPLIES = Basis(f"{_REG} (date of application)", Confidence.SECONDARY,
-                  "applies from 11 March 2024 and repeals Reg. (EU) 517/2014")
-B_SCOPE = Basis(f"{_REG} Art 5(1)", Confidence.CHECKED,
-                "leak checks cover Annex I gases from 5 t CO2e and Annex II section 1 gases "
-                "from 1 kg; other substances are outside this regulation's leak-check duty")
-B_TIERS = Basis(f"{_REG} Art 5", Confidence.SECONDARY,
-                "CO2e tiers, intervals and their doubling with a leak detection system from the "
-                "German Environment Agency FAQ and trade guidance; thresholds are in Art 5(1), "
-                "the intervals in a later paragraph of Art 5 whose number was not read")
-B_ANNEX_II = Basis(f"{_REG} Art 5", Confidence.SECONDARY,
-                   "Annex II section 1: \"ab 1 kg alle 12 Monate … ab 10 kg alle 6 … ab 100 kg "
-                   "alle 3\", doubled with a leak detection system (bfs-kaelte-klima.de)")
-B_HERMETIC = Basis(f"{_REG} Art 5(1)", Confidence.CHECKED,
-                   "hermetically sealed and labelled equipment")
-B_RESIDENTIAL = Basis(f"{_REG} Art 5(1)", Confidence.CHECKED,
-                      "hermetically sealed equipment in residential buildings under 3 kg; applied "
-                      "to the fluorinated part of the charge (our reading)")
-B_DETECTION = Basis(f"{_REG} Art 6", Confidence.SECONDARY,
-                    "leak detection system from 500 t CO2e or 100 kg Annex II section 1 "
-                    "(secondary source); transitional dates not checked")
-B_DETECTION_CHECK = Basis(f"{_REG} Art 6", Confidence.MEMORY,
-                          "12-month check of the detection system carried over from "
-                          "Reg. (EU) 517/2014 Art 5(3); not yet checked in 2024/573")
-B_REPAIR = Basis(f"{_REG} Art 4(5)", Confidence.POLICY,
-                 "the law says 'without undue delay'; the 14 days shown are a site-policy "
-                 "deadline, not a legal one")
-B_FOLLOW_UP = Basis(f"{_REG} Art 4(5)", Confidence.CHECKED,
-                    "for equipment that must be leak-checked under Art 5(1): \"frühestens nach "
-                    "Ablauf einer Betriebszeit von 24 Stunden, spätestens jedoch innerhalb eines "
-                    "Monats nach der Reparatur\" (German text quoted by Landesinnung Kälte-Klima)")
+(B_APPLIES, B_SCOPE, B_TIERS, B_ANNEX_II, B_HERMETIC, B_RESIDENTIAL, B_DETECTION,
+ B_DETECTION_CHECK, B_REPAIR, B_FOLLOW_UP) = (
+    Basis(f"{_REG} {section}".rstrip(), mark, note) for section, mark, note in (
+    ("(date of application)", SECONDARY,
+     "applies from 11 March 2024 and repeals Reg. (EU) 517/2014"),
+    ("Art 5(1)", CHECKED,
+     "leak checks cover Annex I gases from 5 t CO2e and Annex II section 1 gases "
+     "from 1 kg; other substances are outside this regulation's leak-check duty"),
+    ("Art 5", SECONDARY,
+     "CO2e tiers, intervals and their doubling with a leak detection system from the "
+     "German Environment Agency FAQ and trade guidance; thresholds are in Art 5(1), "
+     "the intervals in a later paragraph of Art 5 whose number was not read"),
+    ("Art 5", SECONDARY,
+     "Annex II section 1: \"ab 1 kg alle 12 Monate … ab 10 kg alle 6 … ab 100 kg "
+     "alle 3\", doubled with a leak detection system (bfs-kaelte-klima.de)"),
+    ("Art 5(1)", CHECKED,
+     "hermetically sealed and labelled equipment"),
+    ("Art 5(1)", CHECKED,
+     "hermetically sealed equipment in residential buildings under 3 kg; applied "
+     "to the fluorinated part of the charge (our reading)"),
+    ("Art 6", SECONDARY,
+     "leak detection system from 500 t CO2e or 100 kg Annex II section 1 "
+     "(secondary source); transitional dates not checked"),
+    ("Art 6", MEMORY,
+     "12-month check of the detection system carried over from "
+     "Reg. (EU) 517/2014 Art 5(3); not yet checked in 2024/573"),
+    ("Art 4(5)", POLICY,
+     "the law says 'without undue delay'; the 14 days shown are a site-policy "
+     "deadline, not a legal one"),
+    ("Art 4(5)", CHECKED,
+     "for equipment that must be leak-checked under Art 5(1): \"frühestens nach "
+     "Ablauf einer Betriebszeit von 24 Stunden, spätestens jedoch innerhalb eines "
+     "Monats nach der Reparatur\" (German text quoted by Landesinnung Kälte-Klima)"),
+))
 
 APPLIES_FROM = date(2024, 3, 11)  # earlier windows belong to 517/2014 (regime gb's text)
 

@@ -24,10 +24,10 @@ from __future__ import annotations
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.records import Basis, Confidence
+from ledger.domain.records import Basis
 from ledger.rules import engines as en
 from ledger.rules import eu
-from ledger.rules.common import Constant, fmt_kg, fmt_t
+from ledger.rules.common import CHECKED, POLICY, SECONDARY, Constant, fmt_kg, fmt_t
 from ledger.rules.regime import Regime
 
 CODE = "gb"
@@ -38,41 +38,44 @@ GWP_BASIS = "gb"  # Reg. (EU) 517/2014 values as retained (docs/refrigerants.md)
 _FGAS = "Reg. (EU) 517/2014 as retained in GB"
 _ODS = "Reg. (EC) 1005/2009 Art 23(2) as retained in GB (gov.uk ODS leak-check guidance)"
 
-B_APPLIES = Basis(f"{_FGAS} Art 27", Confidence.SECONDARY,
-                  "applies from 1 January 2015 (IHK Rostock: \"Seit dem 01.01.2015 gilt die "
-                  "Verordnung (EU) Nr. 517/2014\")")
-B_SCOPE = Basis(f"{_FGAS} Art 4(1)", Confidence.CHECKED,
-                "fluorinated greenhouse gases of Annex I, or mixtures containing them, from "
-                "5 t CO2e")
-B_TIERS = Basis(f"{_FGAS} Art 4(3)", Confidence.CHECKED,
-                "5 / 50 / 500 t CO2e: every 12 / 6 / 3 months, 24 / 12 / 6 with a leak "
-                "detection system")
-B_HERMETIC = Basis(f"{_FGAS} Art 4(1)", Confidence.CHECKED,
-                   "hermetically sealed and labelled equipment under 10 t CO2e (gov.uk); the "
-                   "exemption is the second subparagraph of Art 4(1), Art 4(2) being the "
-                   "equipment list (inferred from Art 5(1)'s wording)")
-B_DETECTION = Basis(f"{_FGAS} Art 5(1)", Confidence.CHECKED, "from 500 t CO2e")
-B_DETECTION_CHECK = Basis(f"{_FGAS} Art 5(3)", Confidence.CHECKED,
-                          "\"mindestens einmal alle 12 Monate kontrolliert\" (gesetze.legal)")
-B_REPAIR = Basis(f"{_FGAS} Art 3(3)", Confidence.POLICY, eu.B_REPAIR.note)  # the same site policy
-B_FOLLOW_UP = Basis(f"{_FGAS} Art 3(3)", Confidence.CHECKED,
-                    "where the equipment must be leak-checked: \"en el plazo de un mes tras la "
-                    "reparación\" (517/2014 Art 3(3), Spanish text)")
-B_ODS_TIERS = Basis(_ODS, Confidence.CHECKED,
-                    "HCFC/CFC equipment: 3 kg (6 kg hermetically sealed) / 30 kg / 300 kg: every "
-                    "12 / 6 / 3 months (gov.uk: \"12 months if … 3kg or more … 6 months … 30kg "
-                    "… 3 months … 300kg\")")
-B_ODS_REPAIR = Basis(_ODS, Confidence.CHECKED, "\"repair it within 14 days\" (gov.uk)")
-B_ODS_FOLLOW_UP = Basis(_ODS, Confidence.CHECKED,
-                        "\"repeat the test within one month\" (gov.uk)")
+(B_APPLIES, B_SCOPE, B_TIERS, B_HERMETIC, B_DETECTION, B_DETECTION_CHECK, B_REPAIR, B_FOLLOW_UP,
+ B_ODS_TIERS, B_ODS_REPAIR, B_ODS_FOLLOW_UP) = (Basis(citation, mark, note) for citation, mark, note in (
+    (f"{_FGAS} Art 27", SECONDARY,
+     "applies from 1 January 2015 (IHK Rostock: \"Seit dem 01.01.2015 gilt die "
+     "Verordnung (EU) Nr. 517/2014\")"),
+    (f"{_FGAS} Art 4(1)", CHECKED,
+     "fluorinated greenhouse gases of Annex I, or mixtures containing them, from "
+     "5 t CO2e"),
+    (f"{_FGAS} Art 4(3)", CHECKED,
+     "5 / 50 / 500 t CO2e: every 12 / 6 / 3 months, 24 / 12 / 6 with a leak "
+     "detection system"),
+    (f"{_FGAS} Art 4(1)", CHECKED,
+     "hermetically sealed and labelled equipment under 10 t CO2e (gov.uk); the "
+     "exemption is the second subparagraph of Art 4(1), Art 4(2) being the "
+     "equipment list (inferred from Art 5(1)'s wording)"),
+    (f"{_FGAS} Art 5(1)", CHECKED,
+     "from 500 t CO2e"),
+    (f"{_FGAS} Art 5(3)", CHECKED,
+     "\"mindestens einmal alle 12 Monate kontrolliert\" (gesetze.legal)"),
+    (f"{_FGAS} Art 3(3)", POLICY,
+     eu.B_REPAIR.note),
+    (f"{_FGAS} Art 3(3)", CHECKED,
+     "where the equipment must be leak-checked: \"en el plazo de un mes tras la "
+     "reparación\" (517/2014 Art 3(3), Spanish text)"),
+    (_ODS, CHECKED,
+     "HCFC/CFC equipment: 3 kg (6 kg hermetically sealed) / 30 kg / 300 kg: every "
+     "12 / 6 / 3 months (gov.uk: \"12 months if … 3kg or more … 6 months … 30kg "
+     "… 3 months … 300kg\")"),
+    (_ODS, CHECKED,
+     "\"repair it within 14 days\" (gov.uk)"),
+    (_ODS, CHECKED,
+     "\"repeat the test within one month\" (gov.uk)"),
+))
 
 APPLIES_FROM = date(2015, 1, 1)
 
-CO2E_BANDS: tuple[tuple[Decimal, int, str], ...] = (
-    (Decimal(500), 3, "≥ 500 t CO2e"),
-    (Decimal(50), 6, "50–500 t CO2e"),
-    (Decimal(5), 12, "5–50 t CO2e"),
-)
+# 517/2014 Art 4(3)'s bands, which 2024/573 Art 5 kept: one table, read from regime eu.
+CO2E_BANDS: tuple[tuple[Decimal, int, str], ...] = eu.CO2E_BANDS
 ODS_BANDS: tuple[tuple[Decimal, int, str], ...] = (
     (Decimal(300), 3, "≥ 300 kg HCFC/CFC"),
     (Decimal(30), 6, "30–300 kg HCFC/CFC"),

@@ -28,9 +28,9 @@ from datetime import date
 from decimal import Decimal
 
 from ledger.domain.leak_rate import YEAR_DAYS
-from ledger.domain.records import Basis, Confidence
+from ledger.domain.records import Basis
 from ledger.rules import engines as en
-from ledger.rules.common import Constant, ReferenceLike
+from ledger.rules.common import CHECKED, MEMORY, SECONDARY, Constant, ReferenceLike
 from ledger.rules.regime import Regime
 
 CODE = "us-82f"
@@ -40,32 +40,35 @@ GWP_BASIS = "ar4"
 
 ODS_CLASSES = frozenset({"HCFC", "CFC"})  # class II / class I refrigerants
 
-B_APPLIES = Basis("40 CFR 82.157(a)", Confidence.CHECKED,
-                  "\"As of April 10, 2020, this section applies only to appliances with a full "
-                  "charge of 50 or more pounds of any class I or class II refrigerant\" (eCFR "
-                  "text; 85 FR 14150)")
-B_THRESHOLDS = Basis("40 CFR 82.157(c)(2)", Confidence.CHECKED,
-                     "20 % commercial refrigeration, 30 % industrial process refrigeration, "
-                     "10 % comfort cooling and other appliances")
-B_RATE = Basis("40 CFR 82.152 (leak rate)", Confidence.SECONDARY,
-               "annualizing and rolling-average methods over 365 days")
-B_ROLLING_RESET = Basis("40 CFR 82.152 (leak rate)", Confidence.MEMORY,
-                        "rolling average counted only since the last successful follow-up "
-                        "verification test, if shorter than 365 days")
-B_REPAIR = Basis("40 CFR 82.157(d)", Confidence.SECONDARY,
-                 "repair within 30 days of the exceedance (120-day shutdown extension and "
-                 "retrofit/retirement plans not modelled)")
-B_INITIAL = Basis("40 CFR 82.157(e)", Confidence.SECONDARY,
-                  "initial verification test after the repair, within the repair period")
-B_FOLLOW_UP = Basis("40 CFR 82.157(e)", Confidence.SECONDARY,
-                    "follow-up verification test within 10 days of the initial test")
-B_INSPECTION = Basis("40 CFR 82.157(g)", Confidence.MEMORY,
-                     "quarterly (commercial / industrial process refrigeration of 500 lb or more) "
-                     "or annual leak inspections until a year under the threshold; "
-                     "calendar-period reading is ours")
-B_REPORT = Basis("40 CFR 82.157(j)", Confidence.SECONDARY,
-                 "125 % of the full charge added in a calendar year: report by 1 March of the "
-                 "next year (EPA fact sheet)")
+(B_APPLIES, B_THRESHOLDS, B_RATE, B_ROLLING_RESET, B_REPAIR, B_INITIAL, B_FOLLOW_UP, B_INSPECTION,
+ B_REPORT) = (Basis(citation, mark, note) for citation, mark, note in (
+    ("40 CFR 82.157(a)", CHECKED,
+     "\"As of April 10, 2020, this section applies only to appliances with a full "
+     "charge of 50 or more pounds of any class I or class II refrigerant\" (eCFR "
+     "text; 85 FR 14150)"),
+    ("40 CFR 82.157(c)(2)", CHECKED,
+     "20 % commercial refrigeration, 30 % industrial process refrigeration, "
+     "10 % comfort cooling and other appliances"),
+    ("40 CFR 82.152 (leak rate)", SECONDARY,
+     "annualizing and rolling-average methods over 365 days"),
+    ("40 CFR 82.152 (leak rate)", MEMORY,
+     "rolling average counted only since the last successful follow-up "
+     "verification test, if shorter than 365 days"),
+    ("40 CFR 82.157(d)", SECONDARY,
+     "repair within 30 days of the exceedance (120-day shutdown extension and "
+     "retrofit/retirement plans not modelled)"),
+    ("40 CFR 82.157(e)", SECONDARY,
+     "initial verification test after the repair, within the repair period"),
+    ("40 CFR 82.157(e)", SECONDARY,
+     "follow-up verification test within 10 days of the initial test"),
+    ("40 CFR 82.157(g)", MEMORY,
+     "quarterly (commercial / industrial process refrigeration of 500 lb or more) "
+     "or annual leak inspections until a year under the threshold; "
+     "calendar-period reading is ours"),
+    ("40 CFR 82.157(j)", SECONDARY,
+     "125 % of the full charge added in a calendar year: report by 1 March of the "
+     "next year (EPA fact sheet)"),
+))
 
 APPLIES_FROM = date(2020, 4, 10)
 FULL_CHARGE_LB = Decimal(50)  # = 22 679 618 500 000 ng exactly

@@ -24,10 +24,10 @@ from __future__ import annotations
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.records import Application, Basis, Confidence
+from ledger.domain.records import Application, Basis
 from ledger.rules import engines as en
 from ledger.rules import us_82f
-from ledger.rules.common import Constant
+from ledger.rules.common import MEMORY, SECONDARY, Constant
 from ledger.rules.regime import Regime
 
 CODE = "us-84c"
@@ -39,35 +39,39 @@ _SUBPART = "40 CFR 84 Subpart C (89 FR 82682)"
 _REPAIR = "40 CFR 84.106"  # leak repair; section per Hixson (EH&S consultancy), Apr 2025
 _ALD = "40 CFR 84.108"  # automatic leak detection; same source
 
-B_SCOPE = Basis(_SUBPART, Confidence.SECONDARY,
-                "from 1 January 2026, appliances with 15 lb or more of a refrigerant with GWP "
-                "above 53; residential and light-commercial air conditioning excluded (trade "
-                "press)")
-B_GWP = Basis(_SUBPART, Confidence.MEMORY, "GWP values of the AIM Act framework are AR4")
-B_THRESHOLDS = Basis(_SUBPART, Confidence.SECONDARY,
-                     "20 % commercial refrigeration, 30 % industrial process refrigeration, "
-                     "10 % comfort cooling, transport and other")
-B_REPAIR = Basis(_REPAIR, Confidence.SECONDARY,
-                 "\"Repair within 30 days (120 days if an industrial process shutdown is "
-                 "required)\" (Hixson, citing 84.106)")
-B_INITIAL = Basis(_REPAIR, Confidence.SECONDARY,
-                  "\"Verification test on each repair must be within 30 days\" (Hixson)")
-B_FOLLOW_UP = Basis(_REPAIR, Confidence.SECONDARY,
-                    "\"Follow-up verification test must be performed within 10 days of initial "
-                    "verification test\" (Hixson)")
-B_INSPECTION = Basis(f"{_REPAIR}(g)", Confidence.MEMORY,
-                     "leak inspections after an exceedance, as in 40 CFR 82.157(g); the 500 lb "
-                     "and 12-month figures were not found for Part 84")
-B_REPORT = Basis(f"{_REPAIR}(m)", Confidence.MEMORY,
-                 "125 % of the full charge added in a calendar year: report by 1 March (not "
-                 "found in a source for Part 84)")
-B_DETECTION_SIZE = Basis(_ALD, Confidence.SECONDARY,
-                         "automatic leak detection for commercial / industrial process "
-                         "refrigeration \"with a charge of 1,500 pounds or more\" (HVACInsider)")
-B_DETECTION = Basis(_ALD, Confidence.MEMORY,
-                    "automatic leak detection for commercial / industrial process refrigeration "
-                    "of 1 500 lb or more (secondary): at installation from 2026, by 1 January "
-                    "2027 for systems installed 2017-2025 (dates from memory)")
+(B_SCOPE, B_GWP, B_THRESHOLDS, B_REPAIR, B_INITIAL, B_FOLLOW_UP, B_INSPECTION, B_REPORT,
+ B_DETECTION_SIZE, B_DETECTION) = (Basis(citation, mark, note) for citation, mark, note in (
+    (_SUBPART, SECONDARY,
+     "from 1 January 2026, appliances with 15 lb or more of a refrigerant with GWP "
+     "above 53; residential and light-commercial air conditioning excluded (trade "
+     "press)"),
+    (_SUBPART, MEMORY,
+     "GWP values of the AIM Act framework are AR4"),
+    (_SUBPART, SECONDARY,
+     "20 % commercial refrigeration, 30 % industrial process refrigeration, "
+     "10 % comfort cooling, transport and other"),
+    (_REPAIR, SECONDARY,
+     "\"Repair within 30 days (120 days if an industrial process shutdown is "
+     "required)\" (Hixson, citing 84.106)"),
+    (_REPAIR, SECONDARY,
+     "\"Verification test on each repair must be within 30 days\" (Hixson)"),
+    (_REPAIR, SECONDARY,
+     "\"Follow-up verification test must be performed within 10 days of initial "
+     "verification test\" (Hixson)"),
+    (f"{_REPAIR}(g)", MEMORY,
+     "leak inspections after an exceedance, as in 40 CFR 82.157(g); the 500 lb "
+     "and 12-month figures were not found for Part 84"),
+    (f"{_REPAIR}(m)", MEMORY,
+     "125 % of the full charge added in a calendar year: report by 1 March (not "
+     "found in a source for Part 84)"),
+    (_ALD, SECONDARY,
+     "automatic leak detection for commercial / industrial process "
+     "refrigeration \"with a charge of 1,500 pounds or more\" (HVACInsider)"),
+    (_ALD, MEMORY,
+     "automatic leak detection for commercial / industrial process refrigeration "
+     "of 1 500 lb or more (secondary): at installation from 2026, by 1 January "
+     "2027 for systems installed 2017-2025 (dates from memory)"),
+))
 
 APPLIES_FROM = date(2026, 1, 1)
 GWP_ABOVE = Decimal(53)

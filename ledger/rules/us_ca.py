@@ -22,9 +22,9 @@ from __future__ import annotations
 from datetime import date
 from decimal import Decimal
 
-from ledger.domain.records import Basis, Confidence
+from ledger.domain.records import Basis
 from ledger.rules import engines as en
-from ledger.rules.common import MONTH, QUARTER, YEAR, Constant
+from ledger.rules.common import CHECKED, MONTH, QUARTER, SECONDARY, YEAR, Constant
 from ledger.rules.regime import Regime
 
 CODE = "us-ca"
@@ -32,39 +32,44 @@ REGIME_VERSION = "us-ca-2"  # bump when a rule or constant here changes
 TITLE = "California refrigerant management program (17 CCR 95380 ff.)"
 GWP_BASIS = "ar4"
 
-B_SCOPE = Basis("17 CCR 95380 ff.", Confidence.SECONDARY,
-                "systems with more than 50 lb of a refrigerant with GWP 150 or more (AR4)")
-B_OVER = Basis("17 CCR 95385(c)", Confidence.CHECKED,
-               "\"full charge greater than 50, but less than 200 pounds\" (justia, read Dec 2026)")
-B_START = Basis("17 CCR 95385", Confidence.CHECKED,
-                "\"after January 1, 2011, the owner or operator … must conduct a leak "
-                "inspection\" (justia, read Dec 2026); earlier periods are not listed")
-B_SIZE = Basis("17 CCR 95383(a)-(b), 95385(a)-(b)", Confidence.CHECKED,
-               "facility size by its largest system: large 2 000 lb or more, medium 200 to "
-               "1 999 lb, small over 50 to under 200 lb (\"greater than or equal to 2,000 "
-               "pounds\"; justia, read Dec 2026)")
-B_INSPECTION_LARGE = Basis("17 CCR 95385(a)(1)(A)", Confidence.CHECKED,
-                           "2 000 lb or more: monthly, for a refrigerant circuit \"located "
-                           "entirely within an enclosed building\"; outdoor systems fall under "
-                           "(a)(3), which was not read (calendar-month reading is ours)")
-B_ALD_WAIVER_LARGE = Basis("17 CCR 95385(a)(1)(B)", Confidence.CHECKED,
-                           "\"A monthly leak inspection … is not required … if an automatic leak "
-                           "detection system … is used\" (casetext / justia, read Dec 2026)")
-B_INSPECTION_MEDIUM = Basis("17 CCR 95385(b)", Confidence.CHECKED,
-                            "200 to under 2 000 lb: \"once every three months\" (calendar-quarter "
-                            "reading is ours)")
-B_ALD_WAIVER_MEDIUM = Basis("17 CCR 95385(b)", Confidence.CHECKED,
-                            "\"A leak inspection … is not required pursuant to this subsection (b) "
-                            "if an automatic leak detection system … is used\" (justia, read Dec 2026)")
-B_INSPECTION_SMALL = Basis("17 CCR 95385(c)", Confidence.CHECKED,
-                           "over 50 to under 200 lb: \"must annually conduct a leak inspection\"")
+(B_SCOPE, B_OVER, B_START, B_SIZE, B_INSPECTION_LARGE, B_ALD_WAIVER_LARGE, B_INSPECTION_MEDIUM,
+ B_ALD_WAIVER_MEDIUM, B_INSPECTION_SMALL) = (Basis(citation, mark, note) for citation, mark, note in (
+    ("17 CCR 95380 ff.", SECONDARY,
+     "systems with more than 50 lb of a refrigerant with GWP 150 or more (AR4)"),
+    ("17 CCR 95385(c)", CHECKED,
+     "\"full charge greater than 50, but less than 200 pounds\" (justia, read Dec 2026)"),
+    ("17 CCR 95385", CHECKED,
+     "\"after January 1, 2011, the owner or operator … must conduct a leak "
+     "inspection\" (justia, read Dec 2026); earlier periods are not listed"),
+    ("17 CCR 95383(a)-(b), 95385(a)-(b)", CHECKED,
+     "facility size by its largest system: large 2 000 lb or more, medium 200 to "
+     "1 999 lb, small over 50 to under 200 lb (\"greater than or equal to 2,000 "
+     "pounds\"; justia, read Dec 2026)"),
+    ("17 CCR 95385(a)(1)(A)", CHECKED,
+     "2 000 lb or more: monthly, for a refrigerant circuit \"located "
+     "entirely within an enclosed building\"; outdoor systems fall under "
+     "(a)(3), which was not read (calendar-month reading is ours)"),
+    ("17 CCR 95385(a)(1)(B)", CHECKED,
+     "\"A monthly leak inspection … is not required … if an automatic leak "
+     "detection system … is used\" (casetext / justia, read Dec 2026)"),
+    ("17 CCR 95385(b)", CHECKED,
+     "200 to under 2 000 lb: \"once every three months\" (calendar-quarter "
+     "reading is ours)"),
+    ("17 CCR 95385(b)", CHECKED,
+     "\"A leak inspection … is not required pursuant to this subsection (b) "
+     "if an automatic leak detection system … is used\" (justia, read Dec 2026)"),
+    ("17 CCR 95385(c)", CHECKED,
+     "over 50 to under 200 lb: \"must annually conduct a leak inspection\""),
+))
 B_INSPECTION = B_INSPECTION_LARGE  # the basis of the section as a whole, for findings
-B_REPAIR = Basis("17 CCR 95386", Confidence.CHECKED,
-                 "repair within 14 days of detection (45-day extensions not modelled; CARB "
-                 "RMP page: \"leak repair within 14 days of detection\")")
-B_REPORT = Basis("17 CCR 95380 ff. (annual report)", Confidence.SECONDARY,
-                 "annual report by 1 March for large and medium facilities (CARB list-serve "
-                 "2011 and CARB 2014 notice); the section number is not confirmed")
+(B_REPAIR, B_REPORT) = (Basis(citation, mark, note) for citation, mark, note in (
+    ("17 CCR 95386", CHECKED,
+     "repair within 14 days of detection (45-day extensions not modelled; CARB "
+     "RMP page: \"leak repair within 14 days of detection\")"),
+    ("17 CCR 95380 ff. (annual report)", SECONDARY,
+     "annual report by 1 March for large and medium facilities (CARB list-serve "
+     "2011 and CARB 2014 notice); the section number is not confirmed"),
+))
 
 PROGRAM_FROM = date(2011, 1, 1)
 GWP_FROM = Decimal(150)
@@ -99,11 +104,12 @@ INSPECTIONS = en.InspectionBands(SCOPE, (
 
 
 CONSTANTS: tuple[Constant, ...] = (
-    Constant("program in force from", PROGRAM_FROM, "date", B_START),
-    Constant("refrigerant GWP from (AR4)", GWP_FROM, "", B_SCOPE),
-    Constant("system charge over", SYSTEM_OVER_LB, "lb", B_OVER),
-    Constant("medium size from", MEDIUM_LB, "lb", B_SIZE),
-    Constant("large size from", LARGE_LB, "lb", B_SIZE),
+    *(Constant(name, value, unit, basis) for name, value, unit, basis in (
+        ("program in force from", PROGRAM_FROM, "date", B_START),
+        ("refrigerant GWP from (AR4)", GWP_FROM, "", B_SCOPE),
+        ("system charge over", SYSTEM_OVER_LB, "lb", B_OVER),
+        ("medium size from", MEDIUM_LB, "lb", B_SIZE),
+        ("large size from", LARGE_LB, "lb", B_SIZE))),
     *INSPECTIONS.rows(),
     Constant("repair within", REPAIR_DAYS, "days of detection", B_REPAIR),
     Constant("annual report due", "1 March (large and medium facilities)", "", B_REPORT),
