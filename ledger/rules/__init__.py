@@ -18,6 +18,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from datetime import date
 from decimal import Decimal
+from functools import lru_cache
 from itertools import groupby
 from types import MappingProxyType
 
@@ -81,8 +82,14 @@ def site_profile(regimes: Sequence[RegimeCode]) -> SiteProfile:
     Returns:
         GWP basis and mass unit of the first known regime (else "eu" and "kg"); leak rates
         when any regime judges them; the chronic-leak share and the record-item map of the
-        first regime declaring one.
+        first regime declaring one; the certificate scopes any of them accepts. Memoised per
+        tuple of codes (REGIMES is read-only): import and reports ask once per row.
     """
+    return _profile(tuple(regimes))
+
+
+@lru_cache(maxsize=256)
+def _profile(regimes: tuple[RegimeCode, ...]) -> SiteProfile:
     known = tuple(code for code in regimes if code in REGIMES)
     values = [REGIMES[code] for code in known]
     chronic = next((r.chronic_percent for r in values if r.chronic_percent is not None), None)
